@@ -1,0 +1,21 @@
+"""Errors meant for the user: each message says what went wrong and what to do.
+
+The CLI prints them as one line; the window shows them in a message box.
+``PresetError`` (a ``ValueError``) lives in ``presets.py``.
+"""
+
+
+class SamplewrightError(Exception):
+    """Base class of errors whose message is fit to show a user as it is."""
+
+
+class ModelError(SamplewrightError):
+    """The model is missing, unreadable or not a causal language model."""
+
+
+class PassageError(SamplewrightError):
+    """The passage is empty, unreadable or not UTF-8 text."""
+
+
+class LibraryError(SamplewrightError):
+    """The preset library or a settings file cannot be read or written."""

@@ -1,0 +1,151 @@
+"""The sampling stages: each reshapes a batch of next-token logits.
+
+Every stage is a pure function ``(logits, ...) -> new logits`` on a float64
+tensor of shape ``(rows, vocab)``, with ``-inf`` marking removed tokens. It
+never modifies its input. Parameters are per-row tensors so one batch can
+hold rows of different presets. A parameter at its neutral value leaves its
+row exactly unchanged.
+
+Truncation stages work on the softmax of their input, i.e. on the
+renormalised distribution left by the stage before. Ties are settled towards
+the lower token id (a stable sort), which transformers does not promise.
+
+References:
+    Temperature: Ackley, Hinton & Sejnowski (1985), "A Learning Algorithm for
+        Boltzmann Machines", Cognitive Science 9(1).
+    Top-k: Fan, Lewis & Dauphin (2018), "Hierarchical Neural Story
+        Generation", ACL 2018.
+    Top-p (nucleus): Holtzman, Buys, Du, Forbes & Choi (2020), "The Curious
+        Case of Neural Text Degeneration", ICLR 2020, eq. 2.
+    Min-p: Nguyen et al. (2024), "Turning Up the Heat: Min-p Sampling for
+        Creative and Coherent LLM Outputs", arXiv:2407.01082.
+    Typical: Meister, Pimentel, Wiher & Cotterell (2023), "Locally Typical
+        Sampling", TACL 11.
+    Repetition penalty: Keskar et al. (2019), "CTRL: A Conditional
+        Transformer Language Model for Controllable Generation",
+        arXiv:1909.05858.
+    No-repeat n-gram: Paulus, Xiong & Socher (2017), "A Deep Reinforced Model
+        for Abstractive Summarization", arXiv:1705.04304.
+    Frequency / presence penalties: no paper; the additive form is a common
+        hosted-API convention.
+"""
+from __future__ import annotations
+
+from typing import Sequence
+
+import torch
+
+NEG_INF = float("-inf")
+
+#: Mass tolerance of top-p and typical sampling: a prefix whose mass reaches
+#: ``p - MASS_TOLERANCE`` is enough, so a sum such as 0.5 + 0.3 meets 0.8
+#: whatever the rounding.
+MASS_TOLERANCE = 1e-6
+
+
+def _col(values: torch.Tensor) -> torch.Tensor:
+    return values.to(torch.float64).unsqueeze(-1)
+
+
+def _mask_from_sorted(keep_sorted: torch.Tensor, order: torch.Tensor) -> torch.Tensor:
+    keep = torch.zeros_like(keep_sorted)
+    return keep.scatter(-1, order, keep_sorted)
+
+
+def temperature(logits: torch.Tensor, t: torch.Tensor) -> torch.Tensor:
+    """Divide the logits by ``t`` (per row). ``t = 0`` is greedy: only the
+    first arg-max survives (ties to the lowest id, as ``torch.argmax``).
+    ``t = 1`` is neutral. Valid range 0 to 5."""
+    greedy = t == 0
+    out = logits / _col(torch.where(greedy, torch.ones_like(t), t))
+    if bool(greedy.any()):
+        top = logits.argmax(dim=-1, keepdim=True)
+        one_hot = torch.full_like(logits, NEG_INF).scatter(-1, top, 0.0)
+        out = torch.where(greedy.unsqueeze(-1), one_hot, out)
+    return out
+
+
+def top_k(logits: torch.Tensor, k: torch.Tensor) -> torch.Tensor:
+    """Keep exactly the ``k`` most probable tokens (per row); among tokens tied
+    at the k-th place the lower ids are kept. ``k = 0`` is off."""
+    order = torch.sort(logits, dim=-1, descending=True, stable=True).indices
+    rank = torch.arange(logits.shape[-1]).expand_as(logits)
+    keep_sorted = (rank < k.unsqueeze(-1)) | (k == 0).unsqueeze(-1)
+    keep = _mask_from_sorted(keep_sorted, order)
+    return logits.masked_fill(~keep, NEG_INF)
+
+
+def _prefix_until_mass(probs: torch.Tensor, order: torch.Tensor, mass: torch.Tensor) -> torch.Tensor:
+    """Keep, in ``order``, the shortest prefix whose probability reaches
+    ``mass - MASS_TOLERANCE``; always at least the first token."""
+    sorted_probs = probs.gather(-1, order)
+    before = torch.cumsum(sorted_probs, dim=-1) - sorted_probs
+    keep_sorted = before < _col(mass) - MASS_TOLERANCE
+    keep_sorted[..., 0] = True
+    return _mask_from_sorted(keep_sorted, order)
+
+
+def top_p(logits: torch.Tensor, p: torch.Tensor) -> torch.Tensor:
+    """Nucleus sampling: keep the shortest run of most probable tokens (ties:
+    lower id first) whose mass reaches ``p`` (within ``MASS_TOLERANCE``).
+    ``p = 1`` is off and skips the row."""
+    probs = torch.softmax(logits, dim=-1)
+    order = torch.sort(probs, dim=-1, descending=True, stable=True).indices
+    keep = _prefix_until_mass(probs, order, p) | (p >= 1).unsqueeze(-1)
+    return logits.masked_fill(~keep, NEG_INF)
+
+
+def min_p(logits: torch.Tensor, fraction: torch.Tensor) -> torch.Tensor:
+    """Keep tokens whose probability is at least ``fraction`` times the top
+    token's. ``fraction = 0`` is off; the top token always stays."""
+    probs = torch.softmax(logits, dim=-1)
+    threshold = _col(fraction) * probs.max(dim=-1, keepdim=True).values
+    return logits.masked_fill(probs < threshold, NEG_INF)
+
+
+def typical_p(logits: torch.Tensor, mass: torch.Tensor) -> torch.Tensor:
+    """Locally typical sampling: rank tokens by how far their surprisal lies
+    from the distribution's entropy and keep the closest ones until they hold
+    ``mass`` (ties: lower id first). ``mass = 1`` is off and skips the row."""
+    log_probs = torch.log_softmax(logits, dim=-1)
+    probs = log_probs.exp()
+    live = probs > 0
+    entropy = -torch.where(live, probs * log_probs, torch.zeros_like(probs)).sum(-1, keepdim=True)
+    distance = torch.where(live, (-log_probs - entropy).abs(), torch.full_like(probs, float("inf")))
+    order = torch.sort(distance, dim=-1, stable=True).indices
+    keep = _prefix_until_mass(probs, order, mass) | (mass >= 1).unsqueeze(-1)
+    return logits.masked_fill(~keep, NEG_INF)
+
+
+def repetition_penalty(logits: torch.Tensor, penalty: torch.Tensor, seen: torch.Tensor) -> torch.Tensor:
+    """Penalise every distinct token id marked in ``seen`` (bool, rows × vocab)
+    once: a positive logit is divided by ``penalty``, a negative one
+    multiplied. ``penalty = 1`` is off."""
+    p = _col(penalty)
+    scaled = torch.where(logits > 0, logits / p, logits * p)
+    return torch.where(seen, scaled, logits)
+
+
+def frequency_presence(logits: torch.Tensor, frequency: torch.Tensor, presence: torch.Tensor,
+                       counts: torch.Tensor) -> torch.Tensor:
+    """Subtract ``count × frequency + [count > 0] × presence`` from each logit,
+    where ``counts`` (rows × vocab) counts the generated tokens only."""
+    counts = counts.to(torch.float64)
+    return logits - counts * _col(frequency) - (counts > 0).to(torch.float64) * _col(presence)
+
+
+def banned_ngram_tokens(history: Sequence[int], n: int) -> set[int]:
+    """Token ids that would complete an n-gram already present in ``history``."""
+    if n <= 0 or len(history) < n:
+        return set()
+    history = list(history)
+    if n == 1:
+        return set(history)
+    tail = history[len(history) - n + 1:]
+    return {history[s + n - 1] for s in range(len(history) - n + 1) if history[s:s + n - 1] == tail}
+
+
+def no_repeat_ngram(logits: torch.Tensor, banned: torch.Tensor) -> torch.Tensor:
+    """Remove the tokens marked in ``banned`` (bool, rows × vocab), as
+    computed by :func:`banned_ngram_tokens`."""
+    return logits.masked_fill(banned, NEG_INF)

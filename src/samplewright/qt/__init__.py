@@ -1,0 +1,1 @@
+"""The desktop window: presents what the core computes."""
