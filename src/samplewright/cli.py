@@ -1,0 +1,265 @@
+"""The ``samplewright`` command line, on the same core as the window.
+
+Subcommands: ``audition`` (generate samples for several presets), ``step``
+(the next-token distribution under each preset), ``check`` (validate a
+preset or settings file), ``window`` (open the desktop window), and the
+library/exchange commands registered by :mod:`samplewright.cli_exchange`.
+
+Errors print one line on stderr and exit with status 2; never a traceback.
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+from pathlib import Path
+from typing import Sequence
+
+from .core.errors import SamplewrightError
+from .core.presets import Preset, PresetError
+
+EXIT_ERROR = 2
+
+
+def _add_common(parser: argparse.ArgumentParser) -> None:
+    src = parser.add_mutually_exclusive_group()
+    src.add_argument("--passage", metavar="FILE", help="draft passage to continue (.txt or .md, UTF-8)")
+    src.add_argument("--text", metavar="STRING", help="the passage given directly")
+    parser.add_argument("--preset", metavar="X", action="append", default=[],
+                        help="preset JSON file, or the name of a starter or library preset (repeatable)")
+    parser.add_argument("--model", metavar="PATH", help="model folder or .gguf file (default: the built-in model)")
+    parser.add_argument("--library", metavar="DIR", help="preset library folder (default: your library)")
+    parser.add_argument("--top", type=int, default=10, metavar="N", help="top tokens to show (default 10)")
+    parser.add_argument("--json", action="store_true", help="print one JSON object instead of text")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser with every subcommand."""
+    parser = argparse.ArgumentParser(prog="samplewright", description=(
+        "Audition sampling presets on a draft passage with a local model."))
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+
+    aud = sub.add_parser("audition", help="write samples of the passage for several presets")
+    _add_common(aud)
+    aud.add_argument("--samples", type=int, default=3, metavar="N", help="samples per preset (default 3)")
+    aud.add_argument("--tokens", type=int, default=48, metavar="N", help="new tokens per sample (default 48)")
+    aud.add_argument("--seed", type=int, default=0, metavar="N", help="run seed shared by all presets (default 0)")
+    aud.set_defaults(handler=run_audition)
+
+    step = sub.add_parser("step", help="show how each preset reshapes the next-token distribution")
+    _add_common(step)
+    step.add_argument("--after", metavar="STRING", default="",
+                      help="text already generated after the passage (the step comes after it)")
+    step.set_defaults(handler=run_step)
+
+    check = sub.add_parser("check", help="validate a preset file or a settings file")
+    check.add_argument("file", metavar="FILE")
+    check.add_argument("--json", action="store_true")
+    check.set_defaults(handler=run_check)
+
+    window = sub.add_parser("window", help="open the desktop window")
+    window.set_defaults(handler=run_window)
+
+    try:
+        from . import cli_exchange
+    except ImportError:  # the exchange commands are optional for a partial install
+        cli_exchange = None
+    if cli_exchange is not None:
+        cli_exchange.register(sub)
+    return parser
+
+
+def _passage(args) -> str:
+    from .core.passages import demo_passages, read_passage
+
+    if args.text is not None:
+        return args.text
+    if args.passage:
+        return read_passage(args.passage)
+    return next(iter(demo_passages().values()))
+
+
+def resolve_preset(spec: str, library_dir: str | None = None) -> Preset:
+    """A preset from a JSON file path, or by name from the starter set or the library.
+
+    Raises:
+        SamplewrightError: when nothing of that name or path exists.
+        PresetError: when the file holds an invalid preset.
+    """
+    path = Path(spec)
+    if spec.endswith(".json") or path.is_file():
+        if not path.is_file():
+            raise SamplewrightError(f"preset file not found: {spec}")
+        try:
+            data = json.loads(path.read_text(encoding="utf-8"))
+        except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+            raise SamplewrightError(f"{spec} is not a JSON preset file: {exc}") from None
+        return Preset.from_dict(data)
+    from .core import library
+
+    for preset in library.starter_presets():
+        if preset.name.casefold() == spec.casefold():
+            return preset
+    lib = library.PresetLibrary(library_dir or library.default_library_dir())
+    found = lib.find(spec)
+    if found is None:
+        names = ", ".join(p.name for p in library.starter_presets())
+        raise SamplewrightError(f"no preset named {spec!r} (starter presets: {names})")
+    return getattr(found, "preset", found)
+
+
+def _presets(args) -> list[Preset]:
+    if args.preset:
+        return [resolve_preset(spec, args.library) for spec in args.preset]
+    from .core.library import starter_presets
+
+    return list(starter_presets())[:3]
+
+
+def _engine(args):
+    from .core.engine import Engine
+    from .core.model import load_model
+
+    def progress(message, fraction):
+        if sys.stderr.isatty() and not args.json:
+            print(f"  {message}", file=sys.stderr)
+
+    return Engine(load_model(args.model, progress=progress))
+
+
+def _check_range(name: str, value: int, low: int, high: int) -> None:
+    if not low <= value <= high:
+        raise SamplewrightError(f"--{name} must be from {low} to {high}, got {value}")
+
+
+def run_audition(args) -> int:
+    """Generate samples and print them with their metrics."""
+    from .core.metrics import preset_metrics
+    from .core.results import AuditionRequest
+
+    _check_range("samples", args.samples, 1, 16)
+    _check_range("tokens", args.tokens, 1, 512)
+    passage, presets = _passage(args), _presets(args)
+    engine = _engine(args)
+    request = AuditionRequest(passage, presets, samples=args.samples, max_new_tokens=args.tokens, seed=args.seed)
+    bar = _progress_bar(not args.json)
+    result = engine.audition(request, on_token=bar.update if bar else None)
+    if bar:
+        bar.close()
+    report = [{"name": preset.name,
+               "samples": [{"text": s.text, "token_ids": s.token_ids, "stop_reason": s.stop_reason}
+                           for s in row],
+               "metrics": preset_metrics(row)}
+              for preset, row in zip(presets, result.samples)]
+    if args.json:
+        print(json.dumps({"seed": args.seed, "passage_tokens": len(result.passage_ids),
+                          "passage_dropped": result.passage_dropped, "presets": report}, ensure_ascii=False))
+        return 0
+    _print_audition(report, presets, result)
+    return 0
+
+
+def _print_audition(report, presets, result) -> None:
+    if result.passage_dropped:
+        print(f"(the passage was longer than the model's context: its first {result.passage_dropped} "
+              "tokens were left out)")
+    for entry, preset in zip(report, presets):
+        print(f"\n== {entry['name']} ({preset.describe()})")
+        for i, sample in enumerate(entry["samples"], 1):
+            text = " ".join(sample["text"].split())
+            print(f"  [{i}] {text}  <{sample['stop_reason']}>")
+        print("  " + "  ".join(f"{k}={_fmt(v)}" for k, v in entry["metrics"].items() if k != "stop_reasons"))
+    print("\nGenerated text can be wrong, biased or offensive: review it under your team's policy before use.")
+
+
+def _fmt(value) -> str:
+    return "–" if value is None else f"{value:.3f}"
+
+
+class _TerminalBar:
+    """A progress bar on stderr, shown only on a terminal (tqdm)."""
+
+    def __init__(self):
+        from tqdm import tqdm
+
+        self._bar = tqdm(total=0, unit="tok", file=sys.stderr, leave=False)
+
+    def update(self, event) -> None:
+        self._bar.total = event.total_tokens
+        self._bar.n = event.done_tokens
+        self._bar.refresh()
+
+    def close(self) -> None:
+        self._bar.close()
+
+
+def _progress_bar(wanted: bool):
+    return _TerminalBar() if wanted and sys.stderr.isatty() else None
+
+
+def run_step(args) -> int:
+    """Print the next-token distribution raw and under each preset."""
+    _check_range("top", args.top, 1, 200)
+    passage, presets = _passage(args), _presets(args)
+    engine = _engine(args)
+    tokenizer = engine.loaded.tokenizer
+    after = tokenizer.encode(args.after, add_special_tokens=False) if args.after else []
+    view = engine.step(passage, presets, sample_ids=after, top=args.top)
+    entries = [{"name": ps.name, "kept": ps.kept, "kept_raw_mass": ps.kept_raw_mass,
+                "entropy_bits": ps.entropy_bits, "raw_entropy_bits": ps.raw_entropy_bits,
+                "top": [{"id": r.id, "text": r.text, "raw_p": r.raw_p, "p": r.p, "cut_by": r.cut_by}
+                        for r in ps.top]}
+               for ps in view.presets]
+    if args.json:
+        print(json.dumps({"context_tokens": view.context_tokens, "presets": entries}, ensure_ascii=False))
+        return 0
+    print(f"Next token after {view.context_tokens} tokens; raw entropy {view.raw_entropy_bits:.2f} bits")
+    for entry in entries:
+        print(f"\n== {entry['name']}: kept {entry['kept']} tokens holding {entry['kept_raw_mass']:.1%} "
+              f"of the raw mass; entropy {entry['raw_entropy_bits']:.2f} -> {entry['entropy_bits']:.2f} bits")
+        for row in entry["top"]:
+            cut = f"cut by {row['cut_by']}" if row["cut_by"] else ""
+            print(f"  {row['text']!r:>16}  raw {row['raw_p']:.3f}  -> {row['p']:.3f}  {cut}")
+    return 0
+
+
+def run_check(args) -> int:
+    """Validate a preset file or a settings file and print one line."""
+    from .core.settings_file import check_file
+
+    verdict = check_file(args.file)
+    print(json.dumps({"file": args.file, "ok": True, "verdict": verdict}) if args.json else verdict)
+    return 0
+
+
+def run_window(args) -> int:
+    """Open the desktop window."""
+    from .qt.app import main as window_main
+
+    return window_main([])
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Entry point of the ``samplewright`` command; returns the exit status."""
+    os.environ.setdefault("HF_HUB_OFFLINE", "1")
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "handler", None):
+        parser.print_help()
+        return 0
+    try:
+        return args.handler(args)
+    except (SamplewrightError, PresetError) as exc:
+        print(f"samplewright: {exc}", file=sys.stderr)
+        return EXIT_ERROR
+    except KeyboardInterrupt:
+        print("samplewright: stopped", file=sys.stderr)
+        return 130
+    except OSError as exc:
+        print(f"samplewright: {exc.strerror or exc}: {exc.filename or ''}".rstrip(": "), file=sys.stderr)
+        return EXIT_ERROR
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,112 @@
+"""Diversity and coherence measures over one preset's samples.
+
+A metric that is undefined for the given samples (one sample, samples
+shorter than n) is ``None``, never an exception.
+
+References:
+    distinct-n: Li, Galley, Brockett, Gao & Dolan (2016), "A
+        Diversity-Promoting Objective Function for Neural Conversation
+        Models", NAACL-HLT 2016. We count lowercased whitespace words, pool
+        all samples of a preset, and divide distinct n-grams by the number of
+        n-grams (the paper divides by the number of words; later code
+        usually divides by n-grams, as here).
+    self-BLEU: Zhu et al. (2018), "Texygen: A Benchmarking Platform for Text
+        Generation Models", SIGIR 2018. Each sample is scored with sacrebleu's
+        sentence BLEU (Post 2018) against the others; the mean is divided by
+        100. Higher means the samples resemble each other more.
+    seq-rep-n: Welleck et al. (2020), "Neural Text Generation with
+        Unlikelihood Training", ICLR 2020: per sample, 1 - unique n-grams /
+        n-grams over model tokens, averaged over samples with n-grams.
+    Surprisal: Shannon (1948). Mean of -log2 p_raw(token) over generated
+        tokens, under the unshaped model at temperature 1.
+"""
+from __future__ import annotations
+
+import math
+from collections import Counter
+from typing import Iterable, Optional, Sequence
+
+import numpy as np
+
+from .results import STOP_REASONS, Sample
+
+METRIC_KEYS = ("distinct_1", "distinct_2", "distinct_3", "self_bleu", "seq_rep_4",
+               "mean_surprisal_bits", "mean_kept", "mean_length")
+
+
+def entropy_bits(probs) -> float:
+    """Shannon entropy in bits of a probability vector (normalised first; 0·log 0 = 0)."""
+    p = np.asarray(probs, dtype=np.float64)
+    total = p.sum()
+    if total <= 0:
+        raise ValueError("entropy needs a vector with positive mass")
+    p = p / total
+    p = p[p > 0]  # after normalising: a subnormal input can underflow to 0
+    return float(-(p * np.log2(p)).sum())
+
+
+def _ngrams(items: Sequence, n: int) -> list[tuple]:
+    return [tuple(items[i:i + n]) for i in range(len(items) - n + 1)]
+
+
+def distinct_n(texts: Iterable[str], n: int) -> Optional[float]:
+    """Distinct n-grams / all n-grams over lowercased whitespace words, pooled
+    over ``texts``; ``None`` when there is no n-gram at all."""
+    grams: list[tuple] = []
+    for text in texts:
+        grams.extend(_ngrams(text.lower().split(), n))
+    if not grams:
+        return None
+    return len(set(grams)) / len(grams)
+
+
+def self_bleu(texts: Sequence[str]) -> Optional[float]:
+    """Mean sentence BLEU-4 (sacrebleu) of each text against all the others,
+    scaled to 0–1; ``None`` with fewer than two texts."""
+    import sacrebleu
+
+    texts = list(texts)
+    if len(texts) < 2:
+        return None
+    scores = [sacrebleu.sentence_bleu(hyp, texts[:i] + texts[i + 1:]).score for i, hyp in enumerate(texts)]
+    return float(np.mean(scores)) / 100.0
+
+
+def seq_rep_n(token_lists: Iterable[Sequence[int]], n: int = 4) -> Optional[float]:
+    """Mean over sequences of 1 - unique n-grams / n-grams; sequences shorter
+    than n are skipped; ``None`` when none is long enough."""
+    values = []
+    for tokens in token_lists:
+        grams = _ngrams(list(tokens), n)
+        if grams:
+            values.append(1.0 - len(set(grams)) / len(grams))
+    return float(np.mean(values)) if values else None
+
+
+def mean_surprisal_bits(raw_probs: Iterable[float]) -> Optional[float]:
+    """Mean of -log2 p over the raw probabilities of the drawn tokens."""
+    values = [-math.log2(p) if p > 0 else math.inf for p in raw_probs]
+    return float(np.mean(values)) if values else None
+
+
+def preset_metrics(samples: Sequence[Sample]) -> dict:
+    """All metrics of one preset's samples, plus ``stop_reasons`` counts.
+
+    Returns:
+        A dict with the keys of ``METRIC_KEYS`` (float or None) and
+        ``stop_reasons`` (reason -> count).
+    """
+    texts = [s.text for s in samples]
+    tokens = [t for s in samples for t in s.tokens]
+    reasons = Counter(s.stop_reason for s in samples if s.stop_reason)
+    return {
+        "distinct_1": distinct_n(texts, 1),
+        "distinct_2": distinct_n(texts, 2),
+        "distinct_3": distinct_n(texts, 3),
+        "self_bleu": self_bleu(texts),
+        "seq_rep_4": seq_rep_n([s.token_ids for s in samples], 4),
+        "mean_surprisal_bits": mean_surprisal_bits(t.raw_p for t in tokens),
+        "mean_kept": float(np.mean([t.kept for t in tokens])) if tokens else None,
+        "mean_length": float(np.mean([len(s.tokens) for s in samples])) if samples else None,
+        "stop_reasons": {r: reasons[r] for r in STOP_REASONS if reasons[r]},
+    }

@@ -1,0 +1,106 @@
+"""Metrics against published worked examples and reference libraries."""
+import math
+
+import numpy as np
+import pytest
+import sacrebleu
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from scipy.stats import entropy as scipy_entropy
+
+from samplewright.core.metrics import (METRIC_KEYS, distinct_n, entropy_bits, mean_surprisal_bits,
+                                       preset_metrics, self_bleu, seq_rep_n)
+from samplewright.core.results import Sample, TokenStep
+
+
+def test_distinct_n_hand_counted():
+    # REFERENCES §10 (Li et al. 2016), counted by hand: 10 words, 6 distinct; 8 bigrams, 5 distinct.
+    texts = ["the tide table is posted", "The tide table is late"]
+    assert distinct_n(texts, 1) == pytest.approx(0.6)
+    assert distinct_n(texts, 2) == pytest.approx(0.625)
+    # Trigrams: 6 in all; "the tide table" and "tide table is" repeat -> 4 distinct.
+    assert distinct_n(texts, 3) == pytest.approx(4 / 6)
+
+
+def test_distinct_n_undefined_is_none():
+    assert distinct_n(["short one"], 3) is None
+    assert distinct_n([], 1) is None
+
+
+def test_self_bleu_worked_example():
+    # REFERENCES §10 (Zhu et al. 2018 with sacrebleu): per sample 75.9836, 75.9836, 6.5673 -> 0.528448.
+    texts = ["the harbour bell rings at noon", "the harbour bell rings at dusk", "a gull sat on the ticket booth"]
+    assert self_bleu(texts) == pytest.approx(0.528448, abs=1e-6)
+
+
+@settings(max_examples=25, deadline=None)
+@given(st.lists(st.text(alphabet="abc de", min_size=1, max_size=30), min_size=2, max_size=5))
+def test_self_bleu_against_sacrebleu_corpus_free_definition(texts):
+    # Reference library: sacrebleu's BLEU with effective order gives the same sentence score.
+    scorer = sacrebleu.metrics.BLEU(effective_order=True)
+    expected = np.mean([scorer.sentence_score(h, texts[:i] + texts[i + 1:]).score
+                        for i, h in enumerate(texts)]) / 100
+    assert self_bleu(texts) == pytest.approx(expected, abs=1e-12)
+
+
+def test_self_bleu_needs_two_samples():
+    assert self_bleu(["only one"]) is None
+
+
+def test_seq_rep_4_worked_example():
+    # REFERENCES §10 (Welleck et al. 2020): six 4-grams, five distinct -> 1/6.
+    assert seq_rep_n([[5, 6, 7, 8, 5, 6, 7, 8, 9]], 4) == pytest.approx(1 / 6)
+    assert seq_rep_n([[1, 2, 3]], 4) is None
+    # Sequences too short are skipped in the mean.
+    assert seq_rep_n([[1, 2, 3], [1, 2, 3, 4, 5]], 4) == 0.0
+
+
+def test_surprisal_worked_example():
+    # REFERENCES §10 (Shannon 1948): p = 0.5, 0.25, 0.125, 0.125 -> mean 2.25 bits, perplexity 4.756828.
+    mean = mean_surprisal_bits([0.5, 0.25, 0.125, 0.125])
+    assert mean == pytest.approx(2.25)
+    assert 2 ** mean == pytest.approx(4.756828, abs=1e-6)
+    assert mean_surprisal_bits([]) is None
+
+
+@pytest.mark.parametrize("p, bits", [([0.5, 0.25, 0.125, 0.125], 1.75), ([2, 1, 0.5, 0.5], 1.75),
+                                     ([0.5, 0.5, 0], 1.0), ([0, 1, 0], 0.0)])
+def test_entropy_worked_examples(p, bits):
+    # REFERENCES §10 (Shannon 1948).
+    assert entropy_bits(p) == pytest.approx(bits)
+
+
+@settings(max_examples=100, deadline=None)
+@given(st.lists(st.floats(0, 10, allow_nan=False), min_size=1, max_size=50).filter(lambda v: sum(v) > 1e-6))
+def test_entropy_against_scipy(p):
+    # Reference library: scipy.stats.entropy normalises its input first, as we do.
+    assert entropy_bits(p) == pytest.approx(scipy_entropy(p, base=2), abs=1e-9)
+
+
+def _sample(text, ids, raw_p, kept, reason="length"):
+    tokens = [TokenStep(i, "x", r, r, k, 1.0, 1.0) for i, r, k in zip(ids, raw_p, kept)]
+    return Sample(0, 0, tokens, reason, text)
+
+
+def test_preset_metrics_collects_every_key():
+    samples = [_sample("the harbour bell rings at noon", [1, 2, 3, 4, 5], [0.5] * 5, [3] * 5),
+               _sample("the harbour bell rings at dusk", [1, 2, 3, 4, 6], [0.25] * 5, [5] * 5, "eos")]
+    m = preset_metrics(samples)
+    assert set(METRIC_KEYS) <= set(m)
+    assert m["mean_surprisal_bits"] == pytest.approx(1.5)
+    assert m["mean_kept"] == pytest.approx(4.0)
+    assert m["mean_length"] == pytest.approx(5.0)
+    assert m["seq_rep_4"] == 0.0
+    assert m["stop_reasons"] == {"length": 1, "eos": 1}
+
+
+def test_preset_metrics_single_short_sample_gives_nulls_not_errors():
+    m = preset_metrics([_sample("hi", [7], [0.9], [1])])
+    assert m["self_bleu"] is None and m["distinct_2"] is None and m["seq_rep_4"] is None
+    assert m["distinct_1"] == 1.0
+    assert not math.isnan(m["mean_surprisal_bits"])
+
+
+def test_preset_metrics_of_empty_samples():
+    m = preset_metrics([_sample("", [], [], [], "eos"), _sample("", [], [], [], "eos")])
+    assert m["distinct_1"] is None and m["mean_surprisal_bits"] is None and m["mean_length"] == 0.0

@@ -1,0 +1,176 @@
+"""``samplewright.shape`` on hand-worked examples of the published definitions,
+boundaries included, and on facts of the trade.
+
+Worked numbers come from /work/shared/REFERENCES.md (computed there with
+numpy in float64); the section is named beside each check.
+"""
+import numpy as np
+import pytest
+import torch
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from scipy.stats import entropy as scipy_entropy
+
+from samplewright import Preset, shape
+from samplewright.core.metrics import entropy_bits
+
+P4 = np.log([0.5, 0.3, 0.15, 0.05])
+
+
+def close(a, b):
+    np.testing.assert_allclose(a, b, atol=1e-6)
+
+
+# --- Temperature (REFERENCES §1; Ackley, Hinton & Sejnowski 1985) -----------------
+@pytest.mark.parametrize("t, expected, bits", [
+    (1.0, [0.665241, 0.244728, 0.090031], 1.200893),
+    (0.5, [0.866813, 0.117310, 0.015876], 0.636311),
+    (2.0, [0.506480, 0.307196, 0.186324], 1.471825),
+])
+def test_temperature_worked(t, expected, bits):
+    p = shape([2.0, 1.0, 0.0], Preset("t", temperature=t))
+    close(p, expected)
+    assert entropy_bits(p) == pytest.approx(bits, abs=1e-6)
+
+
+def test_temperature_zero_is_greedy_ties_to_lower_id():
+    # REFERENCES §1: [1, 3, 3, 0] at T = 0 -> one-hot on id 1 (first arg-max).
+    close(shape([1.0, 3.0, 3.0, 0.0], Preset("g", temperature=0)), [0, 1, 0, 0])
+
+
+# --- Top-k (REFERENCES §2; Fan, Lewis & Dauphin 2018) -------------------------------
+def test_top_k_worked():
+    close(shape([1, 3, 2, 0.5], Preset("k", top_k=2)), [0, 0.731059, 0.268941, 0])
+    close(shape([1, 3, 2, 0.5], Preset("k", top_k=5)), [0.085369, 0.630796, 0.232057, 0.051779])
+
+
+def test_top_k_tie_keeps_exactly_k_lower_ids():
+    close(shape([2, 1, 2, 2], Preset("k", top_k=2)), [0.5, 0, 0.5, 0])
+
+
+# --- Top-p (REFERENCES §3; Holtzman et al. 2020, eq. 2) -----------------------------
+def test_top_p_reached_exactly_keeps_the_token_that_reaches_it():
+    # 0.5 + 0.3 = 0.8 exactly: with the 1e-6 tolerance id 1 reaches p, id 2 is cut.
+    close(shape(P4, Preset("p", top_p=0.8)), [0.625, 0.375, 0, 0])
+
+
+def test_top_p_worked():
+    close(shape(P4, Preset("p", top_p=0.81)), [0.526316, 0.315789, 0.157895, 0])
+    close(shape(P4, Preset("p", top_p=0.4)), [1, 0, 0, 0])
+
+
+# --- Min-p (REFERENCES §4; Nguyen et al. 2024) -------------------------------------
+def test_min_p_worked():
+    close(shape(P4, Preset("m", min_p=0.2)), [0.526316, 0.315789, 0.157895, 0])
+    close(shape(P4, Preset("m", min_p=0.7)), [1, 0, 0, 0])
+
+
+# --- Typical (REFERENCES §5; Meister et al. 2023) ----------------------------------
+@pytest.mark.parametrize("mass, expected", [
+    (0.2, [0, 1, 0, 0]),                     # the top token is dropped
+    (0.5, [0.625, 0.375, 0, 0]),
+    (0.9, [0.526316, 0.315789, 0.157895, 0]),
+])
+def test_typical_worked(mass, expected):
+    close(shape(P4, Preset("y", typical_p=mass)), expected)
+
+
+# --- Penalties (REFERENCES §6-8) ----------------------------------------------------
+def test_repetition_penalty_worked():
+    # Keskar et al. 2019, sign-aware form: z = [2, -1, 0.5, 3], history [0, 1, 1], theta 2.
+    p = shape([2.0, -1.0, 0.5, 3.0], Preset("r", repetition_penalty=2.0), history=[0, 1, 1])
+    close(p, [0.110554, 0.005504, 0.067054, 0.816888])
+
+
+def test_frequency_presence_count_generated_tokens_only():
+    # REFERENCES §7 (hosted-API convention, no paper): counted tokens [2, 2, 3].
+    preset = Preset("f", frequency_penalty=0.5, presence_penalty=0.25)
+    close(shape([1.0] * 4, preset, generated=[2, 2, 3]), [0.362467, 0.362467, 0.103849, 0.171217])
+    # The passage alone (history, not generated) is not counted.
+    close(shape([1.0] * 4, preset, history=[2, 2, 3]), [0.25] * 4)
+
+
+@pytest.mark.parametrize("n, banned", [(3, {9}), (2, {9}), (4, set()), (1, {4, 7, 9})])
+def test_no_repeat_ngram_worked(n, banned):
+    # REFERENCES §8 (Paulus, Xiong & Socher 2017): history [4, 7, 9, 4, 7].
+    p = shape(np.zeros(12), Preset("n", no_repeat_ngram_size=n), history=[4, 7, 9, 4, 7])
+    assert {i for i in range(12) if p[i] == 0} == banned
+
+
+def test_stage_that_removes_everything_keeps_the_most_probable():
+    # Every token of a 3-token vocabulary is banned: the most probable stays, no NaN.
+    p = shape([0.1, 2.0, 1.0], Preset("n", no_repeat_ngram_size=1), history=[0, 1, 2])
+    close(p, [0, 1, 0])
+
+
+# --- Order (REFERENCES §9) -----------------------------------------------------------
+def test_order_changes_the_result():
+    z = np.log([0.4, 0.3, 0.2, 0.1])
+    default = Preset("o", top_k=2, top_p=0.55)
+    swapped = default.replace(order=("penalties", "temperature", "top_p", "top_k", "min_p", "typical_p"))
+    close(shape(z, default), [1, 0, 0, 0])
+    close(shape(z, swapped), [0.571429, 0.428571, 0, 0])
+
+
+# --- Input handling ------------------------------------------------------------------
+def test_shape_accepts_torch_and_numpy_and_leaves_input_unchanged():
+    z = torch.tensor([0.5, 2.0, -1.0, 0.0])
+    before = z.clone()
+    preset = Preset("x", temperature=0.7, top_k=3, repetition_penalty=1.5)
+    np.testing.assert_array_equal(shape(z, preset, history=[1]), shape(z.numpy(), preset, history=[1]))
+    assert torch.equal(z, before)
+
+
+def test_extreme_and_minus_inf_logits():
+    z = np.array([100.0, -np.inf, 99.0, -100.0]) * 100
+    p = shape(z, Preset("x", temperature=1.5, top_p=0.9))
+    assert np.isfinite(p).all() and p[1] == 0 and p.sum() == pytest.approx(1.0)
+
+
+@pytest.mark.parametrize("bad", [[], [[1.0, 2.0]], [np.nan, 1.0], [np.inf, 0.0], [-np.inf, -np.inf]])
+def test_shape_rejects_bad_logits(bad):
+    with pytest.raises(ValueError):
+        shape(np.array(bad, dtype=float), Preset("x"))
+
+
+def test_shape_rejects_history_outside_vocabulary():
+    with pytest.raises(ValueError, match="outside the vocabulary"):
+        shape([0.0, 1.0], Preset("x", repetition_penalty=1.2), history=[5])
+
+
+# --- Facts of the trade (common practice, no source) ---------------------------------
+logit_vectors = st.lists(st.floats(-8, 8, allow_nan=False), min_size=2, max_size=40).map(np.array)
+
+
+@settings(max_examples=60, deadline=None)
+@given(logit_vectors)
+def test_temperature_one_leaves_the_distribution_unchanged(z):
+    # Common practice: T = 1 is plain softmax.
+    expected = np.exp(z - z.max()) / np.exp(z - z.max()).sum()
+    np.testing.assert_allclose(shape(z, Preset("t")), expected, rtol=1e-12, atol=1e-15)
+
+
+@settings(max_examples=60, deadline=None)
+@given(logit_vectors, st.floats(0.1, 2.0), st.floats(0.1, 2.0))
+def test_entropy_rises_with_temperature(z, t1, t2):
+    # Common practice (dH/d(1/T) = -Var(z)/T^2 <= 0, REFERENCES §1).
+    low, high = sorted((t1, t2))
+    h_low = scipy_entropy(shape(z, Preset("a", temperature=low)), base=2)
+    h_high = scipy_entropy(shape(z, Preset("b", temperature=high)), base=2)
+    assert h_high >= h_low - 1e-9
+
+
+@settings(max_examples=60, deadline=None)
+@given(logit_vectors, st.integers(1, 50))
+def test_top_k_keeps_exactly_k(z, k):
+    # Common practice: top-k keeps min(k, V) tokens.
+    assert np.count_nonzero(shape(z, Preset("k", top_k=k))) == min(k, len(z))
+
+
+@settings(max_examples=60, deadline=None)
+@given(logit_vectors, st.floats(0.05, 0.99))
+def test_top_p_set_grows_as_the_distribution_flattens(z, p):
+    # Common practice: a flatter distribution needs more tokens to reach the same mass.
+    sharp = np.count_nonzero(shape(z, Preset("a", temperature=0.5, top_p=p)))
+    flat = np.count_nonzero(shape(z, Preset("b", temperature=2.0, top_p=p)))
+    assert flat >= sharp
