@@ -144,3 +144,42 @@ def test_documented_tie_difference_top_k():
     theirs = torch.softmax(tlp.TopKLogitsWarper(2)(None, z.clone()), -1)[0]
     torch.testing.assert_close(ours, torch.tensor([0.5, 0, 0.5, 0], dtype=torch.float64))
     torch.testing.assert_close(theirs, torch.tensor([1 / 3, 0, 1 / 3, 1 / 3], dtype=torch.float64))
+
+
+@pytest.mark.parametrize("scale", [0.05, 1.0, 6.0])
+def test_large_vocabulary_matches_transformers(scale):
+    # A vocabulary larger than stages.CANDIDATES: flat rows (small scale) need more
+    # tokens than the candidates hold and take the full-sort path.
+    z = torch.randn(4, 3000, generator=torch.Generator().manual_seed(7), dtype=torch.float64) * scale
+    four = lambda v: torch.full((4,), v, dtype=torch.float64)
+    same_logits(stages.top_p(z, four(0.9)), tlp.TopPLogitsWarper(0.9)(None, z.clone()))
+    same_logits(stages.typical_p(z, four(0.9)), tlp.TypicalLogitsWarper(0.9)(None, z.clone()))
+    same_logits(stages.top_k(z, torch.full((4,), 1500)), tlp.TopKLogitsWarper(1500)(None, z.clone()))
+
+
+def _reference_prefix(key, probs, mass):
+    """Independent definition: numpy lexsort by (key descending, id ascending)."""
+    order = np.lexsort((np.arange(len(key)), -key))
+    kept, total = [], 0.0
+    for i in order:
+        if kept and total >= mass - stages.MASS_TOLERANCE:
+            break
+        kept.append(i)
+        total += probs[i]
+    return set(kept)
+
+
+@pytest.mark.parametrize("candidates", [3, 8, 1024])
+def test_candidate_ranking_equals_full_stable_sort_with_ties(monkeypatch, candidates):
+    # Integer logits give many exact ties, the case the candidate shortcut must get right.
+    monkeypatch.setattr(stages, "CANDIDATES", candidates)
+    gen = torch.Generator().manual_seed(3)
+    for trial in range(30):
+        z = torch.randint(-3, 3, (1, 40), generator=gen).to(torch.float64)
+        for p in (0.1, 0.5, 0.9):
+            probs = torch.softmax(z, -1)[0].numpy()
+            ours = set(torch.nonzero(~torch.isneginf(stages.top_p(z, row(p)))[0]).flatten().tolist())
+            assert ours == _reference_prefix(probs, probs, p), (trial, p)
+            k = int(trial % 7)
+            kept_k = set(torch.nonzero(~torch.isneginf(stages.top_k(z, row(k, torch.long)))[0]).flatten().tolist())
+            assert kept_k == (set(np.lexsort((np.arange(40), -z[0].numpy()))[:k].tolist()) if k else set(range(40)))

@@ -122,6 +122,18 @@ STAGES = {
 }
 
 
+def _is_neutral(name: str, params: RowParams, history: RowHistory) -> bool:
+    """True when every row's parameters leave this stage a no-op, so the batch
+    can skip it (the sorts in top-k, top-p and typical are the chain's cost)."""
+    if name == "penalties":
+        return (bool((params.repetition_penalty == 1).all()) and bool((params.frequency_penalty == 0).all())
+                and bool((params.presence_penalty == 0).all()) and not bool(history.banned.any()))
+    neutral = {"temperature": (params.temperature, 1), "top_k": (params.top_k, 0), "top_p": (params.top_p, 1),
+               "min_p": (params.min_p, 0), "typical_p": (params.typical_p, 1)}
+    values, off = neutral[name]
+    return bool((values == off).all())
+
+
 def _keep_one_if_empty(before: torch.Tensor, after: torch.Tensor) -> torch.Tensor:
     """Where a stage removed every token of a row, keep that row's most
     probable token (by the stage's input) so no distribution is ever NaN."""
@@ -170,7 +182,8 @@ def _run_group(logits, params, history, order, keep_stages) -> ChainOutput:
     after = {} if keep_stages else None
     current = logits
     for name in order:
-        current = _keep_one_if_empty(current, STAGES[name](current, params, history))
+        if not _is_neutral(name, params, history):
+            current = _keep_one_if_empty(current, STAGES[name](current, params, history))
         if after is not None:
             after[name] = current
     return ChainOutput(current, after)

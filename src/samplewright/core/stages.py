@@ -47,8 +47,9 @@ def _col(values: torch.Tensor) -> torch.Tensor:
     return values.to(torch.float64).unsqueeze(-1)
 
 
-def _mask_from_sorted(keep_sorted: torch.Tensor, order: torch.Tensor) -> torch.Tensor:
-    keep = torch.zeros_like(keep_sorted)
+def _mask_from_sorted(keep_sorted: torch.Tensor, order: torch.Tensor, vocab: int) -> torch.Tensor:
+    """Scatter a keep-flag per ranked position back to token ids."""
+    keep = torch.zeros(*keep_sorted.shape[:-1], vocab, dtype=torch.bool)
     return keep.scatter(-1, order, keep_sorted)
 
 
@@ -68,21 +69,58 @@ def temperature(logits: torch.Tensor, t: torch.Tensor) -> torch.Tensor:
 def top_k(logits: torch.Tensor, k: torch.Tensor) -> torch.Tensor:
     """Keep exactly the ``k`` most probable tokens (per row); among tokens tied
     at the k-th place the lower ids are kept. ``k = 0`` is off."""
-    order = torch.sort(logits, dim=-1, descending=True, stable=True).indices
-    rank = torch.arange(logits.shape[-1]).expand_as(logits)
-    keep_sorted = (rank < k.unsqueeze(-1)) | (k == 0).unsqueeze(-1)
-    keep = _mask_from_sorted(keep_sorted, order)
+    k_eff = k.clamp(0, logits.shape[-1])
+    k_max = int(k_eff.max())
+    if k_max == 0:
+        return logits.clone()
+    kth = torch.topk(logits, k_max, dim=-1).values.gather(-1, (k_eff.clamp(min=1) - 1).unsqueeze(-1))
+    above = logits > kth
+    tied = logits == kth
+    # Among the ties with the k-th value, keep the lowest ids until k are kept.
+    room = k_eff.unsqueeze(-1) - above.sum(-1, keepdim=True)
+    keep = above | (tied & (torch.cumsum(tied, dim=-1) <= room)) | (k_eff == 0).unsqueeze(-1)
     return logits.masked_fill(~keep, NEG_INF)
 
 
-def _prefix_until_mass(probs: torch.Tensor, order: torch.Tensor, mass: torch.Tensor) -> torch.Tensor:
-    """Keep, in ``order``, the shortest prefix whose probability reaches
-    ``mass - MASS_TOLERANCE``; always at least the first token."""
-    sorted_probs = probs.gather(-1, order)
-    before = torch.cumsum(sorted_probs, dim=-1) - sorted_probs
-    keep_sorted = before < _col(mass) - MASS_TOLERANCE
-    keep_sorted[..., 0] = True
-    return _mask_from_sorted(keep_sorted, order)
+#: How many leading tokens are ranked before a row falls back to a full sort.
+CANDIDATES = 1024
+
+
+def _prefix_keep(probs_sorted: torch.Tensor, mass: torch.Tensor) -> torch.Tensor:
+    before = torch.cumsum(probs_sorted, dim=-1) - probs_sorted
+    keep = before < _col(mass) - MASS_TOLERANCE
+    keep[..., 0] = True
+    return keep
+
+
+def _prefix_until_mass(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tensor) -> torch.Tensor:
+    """Rank tokens by ``key`` (descending, ties lower id first) and keep the
+    shortest prefix whose probability reaches ``mass - MASS_TOLERANCE``;
+    always at least the first token.
+
+    Only the top ``CANDIDATES`` keys are ranked (a full sort of the vocabulary
+    costs more than the model's forward pass); a row whose prefix is not
+    settled inside them (its last kept key is not strictly above every key
+    left out) is ranked in full, so the result equals a full stable sort.
+    """
+    vocab = probs.shape[-1]
+    m = min(CANDIDATES, vocab)
+    values, ids = torch.topk(key, m, dim=-1)
+    # Candidates in id order first, so the stable sort by value puts ties lower id first.
+    by_id = torch.sort(ids, dim=-1).indices
+    values, ids = values.gather(-1, by_id), ids.gather(-1, by_id)
+    by_value = torch.sort(values, dim=-1, descending=True, stable=True).indices
+    values, ids = values.gather(-1, by_value), ids.gather(-1, by_value)
+    keep_sorted = _prefix_keep(probs.gather(-1, ids), mass)
+    keep = _mask_from_sorted(keep_sorted, ids, vocab)
+    if m < vocab:
+        last = keep_sorted.sum(-1, keepdim=True) - 1
+        unsettled = (values.gather(-1, last) <= values[..., -1:]).squeeze(-1).nonzero().flatten()
+        if unsettled.numel():
+            order = torch.sort(key[unsettled], dim=-1, descending=True, stable=True).indices
+            full = _prefix_keep(probs[unsettled].gather(-1, order), mass[unsettled])
+            keep[unsettled] = _mask_from_sorted(full, order, vocab)
+    return keep
 
 
 def top_p(logits: torch.Tensor, p: torch.Tensor) -> torch.Tensor:
@@ -90,8 +128,7 @@ def top_p(logits: torch.Tensor, p: torch.Tensor) -> torch.Tensor:
     lower id first) whose mass reaches ``p`` (within ``MASS_TOLERANCE``).
     ``p = 1`` is off and skips the row."""
     probs = torch.softmax(logits, dim=-1)
-    order = torch.sort(probs, dim=-1, descending=True, stable=True).indices
-    keep = _prefix_until_mass(probs, order, p) | (p >= 1).unsqueeze(-1)
+    keep = _prefix_until_mass(probs, probs, p) | (p >= 1).unsqueeze(-1)
     return logits.masked_fill(~keep, NEG_INF)
 
 
@@ -111,9 +148,9 @@ def typical_p(logits: torch.Tensor, mass: torch.Tensor) -> torch.Tensor:
     probs = log_probs.exp()
     live = probs > 0
     entropy = -torch.where(live, probs * log_probs, torch.zeros_like(probs)).sum(-1, keepdim=True)
-    distance = torch.where(live, (-log_probs - entropy).abs(), torch.full_like(probs, float("inf")))
-    order = torch.sort(distance, dim=-1, stable=True).indices
-    keep = _prefix_until_mass(probs, order, mass) | (mass >= 1).unsqueeze(-1)
+    # Closeness = minus the distance of the surprisal from the entropy; removed tokens never rank.
+    closeness = torch.where(live, -(-log_probs - entropy).abs(), torch.full_like(probs, NEG_INF))
+    keep = _prefix_until_mass(probs, closeness, mass) | (mass >= 1).unsqueeze(-1)
     return logits.masked_fill(~keep, NEG_INF)
 
 
