@@ -1,0 +1,260 @@
+"""Careful file handling for a folder several people write to.
+
+- :func:`atomic_write` replaces a file so that readers, and a write killed at
+  any point, see either the old or the new content, whole: the new bytes go to
+  a temporary file in the same folder, are flushed and fsync'ed, then
+  ``os.replace`` swaps them in (atomic on POSIX and Windows within one file
+  system) and the folder is fsync'ed so the rename itself survives a crash.
+- :func:`hold_lock` takes the folder's lock (the filelock package) with a
+  timeout and leaves a note saying who holds it, so a busy library can name
+  the person to wait for.
+- :func:`explain_os_error` turns an ``OSError`` into a :class:`LibraryError`
+  whose message says what happened and what to do.
+- :func:`parse_json` reads untrusted JSON strictly (no NaN, no duplicate keys).
+
+Nothing here imports Qt or torch.
+"""
+from __future__ import annotations
+
+import contextlib
+import errno
+import getpass
+import json
+import os
+import socket
+import tempfile
+from pathlib import Path
+from typing import Any, Iterator
+
+import filelock
+
+from .errors import LibraryError
+from .presets import now_iso
+
+LOCK_NAME = ".samplewright.lock"
+OWNER_NOTE_NAME = ".samplewright.lock.owner"
+TEMP_SUFFIX = ".partial"
+
+# Read once: os.umask can only be read by setting it.
+_UMASK = os.umask(0o022)
+os.umask(_UMASK)
+
+
+class BadContent(ValueError):
+    """A file's bytes are not what was expected; the message is the short reason."""
+
+
+def current_user() -> str:
+    """The login name of the person running Samplewright, or ``"unknown"``."""
+    try:
+        return getpass.getuser() or "unknown"
+    except (OSError, KeyError, ImportError):
+        return "unknown"
+
+
+def read_limited(path: Path, limit: int) -> bytes:
+    """Read at most ``limit`` bytes of a file.
+
+    Raises:
+        BadContent: when the file is larger than ``limit``.
+        OSError: when the file cannot be read.
+    """
+    with open(path, "rb") as handle:
+        data = handle.read(limit + 1)
+    if len(data) > limit:
+        raise BadContent(f"larger than {_size_words(limit)}")
+    return data
+
+
+def _size_words(limit: int) -> str:
+    return f"{limit / 1_000_000:g} MB" if limit >= 1_000_000 else f"{limit / 1000:g} kB"
+
+
+def _reject_constant(name: str) -> Any:
+    raise BadContent(f"{name} is not a number JSON allows")
+
+
+def _bounded_int(text: str) -> int:
+    # No field needs more digits; a huge integer would only overflow float conversions later.
+    if len(text.lstrip("-")) > 30:
+        raise BadContent(f"the number {text[:20]}... is too large")
+    return int(text)
+
+
+def _unique_keys(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    for key, value in pairs:
+        if key in out:
+            raise BadContent(f"the key {key[:60]!r} appears twice in one object")
+        out[key] = value
+    return out
+
+
+def parse_json(data: bytes) -> Any:
+    """Decode UTF-8 JSON strictly: no NaN/Infinity, no repeated keys, no 31-digit integers.
+
+    Raises:
+        BadContent: with a short reason (not UTF-8, where the JSON breaks, ...).
+    """
+    try:
+        text = data.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise BadContent("not UTF-8 text") from None
+    try:
+        return json.loads(text, parse_constant=_reject_constant, parse_int=_bounded_int,
+                          object_pairs_hook=_unique_keys)
+    except json.JSONDecodeError as exc:
+        raise BadContent(f"not valid JSON ({exc.msg} at line {exc.lineno}, column {exc.colno})") from None
+    except RecursionError:
+        raise BadContent("not usable JSON (nested too deeply)") from None
+    except BadContent:
+        raise
+    except ValueError as exc:  # e.g. an integer with too many digits
+        raise BadContent(f"not usable JSON ({str(exc)[:120]})") from None
+
+
+def dump_json(obj: Any) -> bytes:
+    """Human-readable, diff-friendly JSON bytes: sorted keys, indent 2, final newline."""
+    return (json.dumps(obj, indent=2, sort_keys=True, ensure_ascii=False) + "\n").encode("utf-8")
+
+
+def fsync_folder(folder: Path) -> None:
+    """Make a rename in ``folder`` durable, where the platform allows it (not on Windows)."""
+    if os.name == "nt":
+        return
+    try:
+        fd = os.open(folder, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(fd)
+    except OSError:  # some file systems refuse fsync on a folder; the rename still happened
+        pass
+    finally:
+        os.close(fd)
+
+
+def atomic_write(path: Path, data: bytes) -> None:
+    """Replace ``path`` with ``data`` so that it is always either old or new, whole.
+
+    Raises:
+        OSError: when the folder cannot be written (the old file is untouched).
+    """
+    path = Path(path)
+    fd, temp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=TEMP_SUFFIX)
+    try:
+        with os.fdopen(fd, "wb") as handle:
+            handle.write(data)
+            handle.flush()
+            os.fsync(handle.fileno())
+        _set_shared_mode(temp, path)
+        os.replace(temp, path)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            os.unlink(temp)
+        raise
+    fsync_folder(path.parent)
+
+
+def _set_shared_mode(temp: str, target: Path) -> None:
+    # mkstemp creates files only the owner may read; colleagues must read them too.
+    try:
+        mode = target.stat().st_mode & 0o777
+    except OSError:
+        mode = 0o666 & ~_UMASK
+    with contextlib.suppress(OSError, NotImplementedError):
+        os.chmod(temp, mode)
+
+
+def move(source: Path, target: Path) -> None:
+    """Atomically move a file within one library (same file system) and make it durable.
+
+    Raises:
+        OSError: when the move is refused; the file then stays where it was.
+    """
+    os.replace(source, target)
+    fsync_folder(Path(target).parent)
+    if Path(source).parent != Path(target).parent:
+        fsync_folder(Path(source).parent)
+
+
+def explain_os_error(exc: OSError, where: Path, action: str,
+                     outcome: str = "Nothing in the library was changed") -> LibraryError:
+    """A :class:`LibraryError` for a failed file operation, saying what to do.
+
+    Args:
+        exc: the error raised by the operating system.
+        where: the folder (or file) concerned, named in the message.
+        action: what was being done, completing "Could not ...", e.g. "save 'Greedy baseline'".
+        outcome: what the failure left as it was, said before the advice.
+    """
+    code = exc.errno
+    if code in (errno.ENOSPC, getattr(errno, "EDQUOT", errno.ENOSPC)):
+        why, advice = f"the disk holding {where} is full", "free some space, or save a copy elsewhere"
+    elif code == errno.EROFS:
+        why, advice = f"{where} is on a read-only drive", "save a copy elsewhere"
+    elif isinstance(exc, PermissionError) or code in (errno.EACCES, errno.EPERM):
+        why = f"you do not have permission to write in {where}"
+        advice = "ask the folder's owner for write access, or save a copy elsewhere"
+    elif isinstance(exc, FileNotFoundError) or code == errno.ENOENT:
+        why = f"{where} is not there (an unplugged drive or a moved folder?)"
+        advice = "reconnect the drive or choose the library folder again"
+    else:
+        why, advice = f"{exc.strerror or exc} ({where})", "try again, or save a copy elsewhere"
+    return LibraryError(f"Could not {action}: {why}. {outcome}; {advice}.")
+
+
+def folder_missing_error(folder: Path) -> LibraryError:
+    """The error for a library folder that does not exist (any more)."""
+    return LibraryError(
+        f"The library folder {folder} is not there (an unplugged drive or a moved folder?). "
+        "Reconnect the drive or choose the library folder again; unsaved presets are still open.")
+
+
+def _owner_note(user: str) -> dict[str, Any]:
+    return {"user": user, "host": socket.gethostname(), "pid": os.getpid(), "since": now_iso()}
+
+
+def describe_holder(folder: Path) -> str:
+    """Who holds the lock of ``folder``, from its owner note, in words."""
+    try:
+        note = parse_json(read_limited(Path(folder) / OWNER_NOTE_NAME, 4096))
+        return (f"{str(note['user'])[:60]} on {str(note['host'])[:60]} (process {int(note['pid'])}) "
+                f"since {str(note['since'])[:32]}")
+    except (OSError, BadContent, KeyError, TypeError, ValueError):
+        return f"another program (it holds {Path(folder) / LOCK_NAME})"
+
+
+@contextlib.contextmanager
+def hold_lock(folder: Path, timeout: float, user: str) -> Iterator[None]:
+    """Hold the write lock of ``folder`` for the duration of a ``with`` block.
+
+    Raises:
+        LibraryError: when the folder is gone, cannot be written, or the lock
+            is still held by someone else after ``timeout`` seconds (the
+            message names them).
+    """
+    folder = Path(folder)
+    # filelock would create a missing folder: that would hide an unplugged drive.
+    if not folder.is_dir():
+        raise folder_missing_error(folder)
+    lock = filelock.FileLock(str(folder / LOCK_NAME), timeout=timeout)
+    try:
+        lock.acquire()
+    except filelock.Timeout:
+        raise LibraryError(
+            f"The library {folder} is busy: {describe_holder(folder)} is saving to it. "
+            f"Try again in a moment; your changes are still open.") from None
+    except OSError as exc:
+        raise explain_os_error(exc, folder, "lock the library for writing") from exc
+    try:
+        atomic_write(folder / OWNER_NOTE_NAME, dump_json(_owner_note(user)))
+    except OSError as exc:
+        lock.release()
+        raise explain_os_error(exc, folder, "lock the library for writing") from exc
+    try:
+        yield
+    finally:
+        with contextlib.suppress(OSError):
+            os.unlink(folder / OWNER_NOTE_NAME)
+        lock.release()
