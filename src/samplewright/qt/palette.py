@@ -1,0 +1,69 @@
+"""Colours and second cues shared by every view.
+
+Colours: the eight-colour palette of Okabe & Ito (2008), "Color Universal
+Design (CUD): How to make figures and presentations that are friendly to
+colorblind people" (J*Fly, University of Tokyo), which stays distinguishable
+under the common forms of colour-vision deficiency. Colour is never the only
+cue: each preset column carries its number, and each stage that cuts a token
+is marked by its own letter.
+"""
+from __future__ import annotations
+
+from ..core.presets import DEFAULT_ORDER
+
+#: Okabe & Ito (2008) colours, by their published names.
+OKABE_ITO = {
+    "black": "#000000",
+    "orange": "#E69F00",
+    "sky_blue": "#56B4E9",
+    "bluish_green": "#009E73",
+    "yellow": "#F0E442",
+    "blue": "#0072B2",
+    "vermillion": "#D55E00",
+    "reddish_purple": "#CC79A7",
+}
+
+#: The unshaped distribution is drawn in a neutral grey so every preset colour stands out against it.
+RAW_COLOUR = "#8C8C8C"
+
+#: Colours of the up-to-six auditioned presets, in column order. Yellow is left
+#: out: it is too pale on a white background for thin bars and text.
+PRESET_COLOURS = (
+    OKABE_ITO["blue"], OKABE_ITO["orange"], OKABE_ITO["bluish_green"],
+    OKABE_ITO["vermillion"], OKABE_ITO["reddish_purple"], OKABE_ITO["sky_blue"],
+)
+
+#: One letter per stage: the second cue for "which stage cut this token".
+STAGE_LETTERS = {
+    "penalties": "R",
+    "temperature": "T",
+    "top_k": "K",
+    "top_p": "P",
+    "min_p": "M",
+    "typical_p": "Y",
+}
+
+#: Plain names of the stages, for legends and tooltips.
+STAGE_NAMES = {
+    "penalties": "repetition penalties",
+    "temperature": "temperature",
+    "top_k": "top-k",
+    "top_p": "top-p",
+    "min_p": "min-p",
+    "typical_p": "typical sampling",
+}
+
+#: Background of the token a sample drew at the current step.
+DRAWN_HIGHLIGHT = "#F0E442"
+
+assert set(STAGE_LETTERS) == set(DEFAULT_ORDER), "every stage needs a letter"
+
+
+def preset_colour(index: int) -> str:
+    """The colour of the preset in audition column ``index`` (wraps around)."""
+    return PRESET_COLOURS[index % len(PRESET_COLOURS)]
+
+
+def stage_legend() -> str:
+    """One line explaining the stage letters, e.g. ``K = top-k · P = top-p``."""
+    return " · ".join(f"{STAGE_LETTERS[s]} = {STAGE_NAMES[s]}" for s in DEFAULT_ORDER)

@@ -1,0 +1,274 @@
+"""The preset editor: every field checked as it is typed, with its meaning shown.
+
+Each field is checked by :func:`samplewright.core.presets.validate_field`, the
+same check the core applies, so the editor and the library can never
+disagree. An invalid value shows the reason and the allowed range beside the
+field, and Save stays disabled until every field is valid.
+"""
+from __future__ import annotations
+
+from typing import Any, Optional
+
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtWidgets import (QAbstractItemView, QFormLayout, QHBoxLayout, QLabel, QLineEdit, QListWidget,
+                               QPlainTextEdit, QPushButton, QScrollArea, QVBoxLayout, QWidget)
+
+from ..core.presets import FIELDS, Preset, PresetError, validate_field
+from . import palette
+
+NUMBER_FIELDS = ("temperature", "top_k", "top_p", "min_p", "typical_p", "repetition_penalty",
+                 "frequency_penalty", "presence_penalty", "no_repeat_ngram_size", "max_new_tokens")
+WHOLE_NUMBERS = ("top_k", "no_repeat_ngram_size", "max_new_tokens")
+ERROR_STYLE = "color: #B00020;"
+HELP_STYLE = "color: #505050;"
+
+
+def parse_field(field: str, text: str) -> Any:
+    """Turn the text typed for ``field`` into a validated value.
+
+    Raises:
+        PresetError: naming the field, with the reason and allowed range.
+    """
+    if field in NUMBER_FIELDS:
+        try:
+            value: Any = float(text.strip().replace(",", "."))
+        except ValueError:
+            raise PresetError(field, f"'{text}' is not a number; allowed: {FIELDS[field][2]}") from None
+        if field in WHOLE_NUMBERS and value.is_integer():
+            value = int(value)
+        return validate_field(field, value)
+    if field == "tags":
+        return validate_field(field, [t.strip() for t in text.split(",") if t.strip()])
+    if field == "stop":
+        lines = [line.replace("\\n", "\n") for line in text.splitlines() if line != ""]
+        return validate_field(field, lines)
+    return validate_field(field, text)
+
+
+def field_text(field: str, value: Any) -> str:
+    """The text an editor field shows for ``value``."""
+    if field == "tags":
+        return ", ".join(value)
+    if field == "stop":
+        return "\n".join(s.replace("\n", "\\n") for s in value)
+    if isinstance(value, float):
+        return f"{value:g}"
+    return str(value)
+
+
+class QtPresetEditor(QWidget):
+    """Edits one preset; emits the edited preset when the user saves.
+
+    Signals:
+        save_requested(Preset): Save was pressed with every field valid.
+        validity_changed(bool): whether every field is currently valid.
+    """
+
+    save_requested = Signal(object)
+    validity_changed = Signal(bool)
+
+    def __init__(self, parent: Optional[QWidget] = None):
+        super().__init__(parent)
+        self.original: Optional[Preset] = None
+        self.errors: dict[str, str] = {}
+        self.inputs: dict[str, QWidget] = {}
+        self.error_labels: dict[str, QLabel] = {}
+        self._build()
+        self.set_preset(None)
+
+    # -- construction -------------------------------------------------------------
+    def _build(self) -> None:
+        self.title = QLabel()
+        self.title.setWordWrap(True)
+        form_host = QWidget()
+        self.form = QFormLayout(form_host)
+        self.form.setRowWrapPolicy(QFormLayout.WrapLongRows)
+        self.form.setFieldGrowthPolicy(QFormLayout.AllNonFixedFieldsGrow)
+        self._add_line("name", "Name", "A short name the team will recognise.")
+        self._add_line("description", "Description", "One line on when to use this preset.")
+        self._add_line("tags", "Tags", "Words to find the preset by, separated by commas.")
+        for field in NUMBER_FIELDS:
+            self._add_line(field, field, FIELDS[field][3], FIELDS[field][2])
+        self._add_text("stop", "stop", FIELDS["stop"][3] + " One per line; write \\n for a line break.")
+        self._add_order()
+        self._add_text("notes", "Notes", "Anything the team should know: what it was tuned for, by whom.")
+        scroll = QScrollArea()
+        scroll.setWidgetResizable(True)
+        scroll.setWidget(form_host)
+        scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarAlwaysOff)
+        self.save_button = QPushButton("Save preset")
+        self.save_button.setToolTip("Save the edited preset to the library (Ctrl+S)")
+        self.save_button.clicked.connect(self._on_save_clicked)
+        self.revert_button = QPushButton("Revert")
+        self.revert_button.setToolTip("Throw away the edits and show the saved preset again")
+        self.revert_button.clicked.connect(lambda: self.set_preset(self.original))
+        self.status = QLabel()
+        self.status.setWordWrap(True)
+        buttons = QHBoxLayout()
+        buttons.addWidget(self.status, 1)
+        buttons.addWidget(self.revert_button)
+        buttons.addWidget(self.save_button)
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(0, 0, 0, 0)
+        layout.addWidget(self.title)
+        layout.addWidget(scroll, 1)
+        layout.addLayout(buttons)
+
+    def _add_row(self, field: str, label: str, editor: QWidget, help_text: str, allowed: str = "") -> None:
+        editor.setAccessibleName(label)
+        tip = help_text + (f" Allowed: {allowed}." if allowed else "")
+        editor.setToolTip(tip)
+        help_label = QLabel(tip)
+        help_label.setWordWrap(True)
+        help_label.setStyleSheet(HELP_STYLE)
+        error = QLabel()
+        error.setWordWrap(True)
+        error.setStyleSheet(ERROR_STYLE)
+        error.setAccessibleName(f"{label} problem")
+        error.hide()
+        box = QVBoxLayout()
+        box.setSpacing(1)
+        box.addWidget(editor)
+        box.addWidget(error)
+        box.addWidget(help_label)
+        self.form.addRow(label, box)
+        self.inputs[field] = editor
+        self.error_labels[field] = error
+
+    def _add_line(self, field: str, label: str, help_text: str, allowed: str = "") -> None:
+        editor = QLineEdit()
+        editor.textEdited.connect(lambda text, f=field: self._on_field_edited(f, text))
+        self._add_row(field, label, editor, help_text, allowed)
+
+    def _add_text(self, field: str, label: str, help_text: str) -> None:
+        editor = QPlainTextEdit()
+        editor.setTabChangesFocus(True)
+        editor.setFixedHeight(editor.fontMetrics().lineSpacing() * 3 + 12)
+        editor.textChanged.connect(lambda f=field, e=editor: self._on_field_edited(f, e.toPlainText()))
+        self._add_row(field, label, editor, help_text)
+
+    def _add_order(self) -> None:
+        self.order_list = QListWidget()
+        self.order_list.setDragDropMode(QAbstractItemView.InternalMove)
+        self.order_list.setFixedHeight(self.order_list.fontMetrics().lineSpacing() * 6 + 16)
+        self.order_list.model().rowsMoved.connect(lambda *_: self._on_order_changed())
+        up, down = QPushButton("Move up"), QPushButton("Move down")
+        up.setToolTip("Apply the selected stage earlier")
+        down.setToolTip("Apply the selected stage later")
+        up.clicked.connect(lambda: self.move_stage(-1))
+        down.clicked.connect(lambda: self.move_stage(+1))
+        holder = QWidget()
+        row = QHBoxLayout(holder)
+        row.setContentsMargins(0, 0, 0, 0)
+        row.addWidget(self.order_list, 1)
+        column = QVBoxLayout()
+        column.addWidget(up)
+        column.addWidget(down)
+        column.addStretch(1)
+        row.addLayout(column)
+        self._add_row("order", "Stage order", holder, FIELDS["order"][3] + " Drag a stage, or use the buttons.")
+        self.order_list.setAccessibleName("Stage order")
+
+    # -- model → widgets ------------------------------------------------------------
+    def set_preset(self, preset: Optional[Preset]) -> None:
+        """Show ``preset`` for editing (None: nothing to edit)."""
+        self.original = preset
+        self.errors.clear()
+        shown = preset or Preset("(none)")
+        for field, editor in self.inputs.items():
+            if field == "order":
+                continue
+            text = field_text(field, getattr(shown, field))
+            editor.blockSignals(True)
+            editor.setPlainText(text) if isinstance(editor, QPlainTextEdit) else editor.setText(text)
+            editor.blockSignals(False)
+            self.error_labels[field].hide()
+        self.order_list.blockSignals(True)
+        self.order_list.clear()
+        for stage in shown.order:
+            self.order_list.addItem(f"{palette.STAGE_LETTERS[stage]}  {stage}")
+            self.order_list.item(self.order_list.count() - 1).setData(Qt.UserRole, stage)
+        self.order_list.blockSignals(False)
+        self.title.setText(f"<b>Editing:</b> {preset.name}" if preset else
+                           "<i>Choose a preset in the list to edit it.</i>")
+        self.setEnabled(preset is not None)
+        self._update_state()
+
+    # -- widgets → model -------------------------------------------------------------
+    def _on_field_edited(self, field: str, text: str) -> None:
+        try:
+            parse_field(field, text)
+        except PresetError as error:
+            self.errors[field] = str(error)
+            self.error_labels[field].setText(str(error))
+            self.error_labels[field].show()
+        else:
+            self.errors.pop(field, None)
+            self.error_labels[field].hide()
+        self._update_state()
+
+    def _on_order_changed(self) -> None:
+        self._update_state()
+
+    def move_stage(self, delta: int) -> None:
+        """Move the selected stage ``delta`` places (negative: earlier)."""
+        row = self.order_list.currentRow()
+        target = row + delta
+        if row < 0 or not 0 <= target < self.order_list.count():
+            return
+        item = self.order_list.takeItem(row)
+        self.order_list.insertItem(target, item)
+        self.order_list.setCurrentRow(target)
+        self._on_order_changed()
+
+    def stage_order(self) -> tuple[str, ...]:
+        """The stage order as currently listed."""
+        return tuple(self.order_list.item(i).data(Qt.UserRole) for i in range(self.order_list.count()))
+
+    def edited(self) -> Preset:
+        """The preset as currently typed.
+
+        Raises:
+            PresetError: when a field is invalid.
+        """
+        if self.original is None:
+            raise PresetError("preset", "no preset is being edited")
+        changes: dict[str, Any] = {"order": self.stage_order()}
+        for field, editor in self.inputs.items():
+            if field != "order":
+                text = editor.toPlainText() if isinstance(editor, QPlainTextEdit) else editor.text()
+                changes[field] = parse_field(field, text)
+        return self.original.replace(**changes)
+
+    def is_dirty(self) -> bool:
+        """Whether the typed values differ from the preset being edited."""
+        try:
+            return self.original is not None and self.edited() != self.original
+        except PresetError:
+            return True
+
+    def _update_state(self) -> None:
+        valid = not self.errors
+        self.save_button.setEnabled(self.original is not None and valid and self.is_dirty())
+        self.revert_button.setEnabled(self.original is not None and self.is_dirty())
+        if self.errors:
+            self.status.setText(f"<span style='{ERROR_STYLE}'>Fix {len(self.errors)} field(s) to save.</span>")
+        else:
+            self.status.setText("Unsaved changes." if self.is_dirty() else "")
+        self.validity_changed.emit(valid)
+
+    def _on_save_clicked(self) -> None:
+        if self.errors:
+            return
+        try:
+            preset = self.edited()
+        except PresetError as error:
+            self.status.setText(f"<span style='{ERROR_STYLE}'>{error}</span>")
+            return
+        self.save_requested.emit(preset)
+
+    def save(self) -> None:
+        """Save if allowed (the Ctrl+S shortcut calls this)."""
+        if self.save_button.isEnabled():
+            self._on_save_clicked()
+

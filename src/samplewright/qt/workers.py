@@ -1,0 +1,251 @@
+"""The engine's thread: model loading, auditions and step views run here.
+
+:class:`EngineWorker` lives in its own ``QThread`` and never touches a widget:
+it receives requests through queued signals, calls the core, and emits plain
+data tagged with the request's serial number. Requests are handled one at a
+time in arrival order, so the model is never used by two threads at once.
+Cancelling sets a number the running job compares with its own serial before
+every token.
+"""
+from __future__ import annotations
+
+import dataclasses
+import sys
+import time
+import traceback
+import weakref
+from typing import Any, Callable, Optional
+
+from PySide6.QtCore import QObject, QThread, Signal, Slot
+
+from ..core.errors import SamplewrightError
+
+#: Token events are sent to the window in batches at most this often (seconds).
+BATCH_SECONDS = 0.02
+
+_THREADS: "weakref.WeakSet[QThread]" = weakref.WeakSet()
+
+
+def running_threads() -> list[QThread]:
+    """Engine threads started by this module that are still running (tests check this is empty)."""
+    return [thread for thread in list(_THREADS) if thread.isRunning()]
+
+
+@dataclasses.dataclass(frozen=True)
+class ModelInfo:
+    """What the window shows about the loaded model."""
+
+    name: str
+    source: str
+    n_parameters: int
+    context_length: int
+    vocab_size: int
+    description: str
+
+
+@dataclasses.dataclass(frozen=True)
+class StepQuery:
+    """Arguments of ``Engine.step`` for one click on a token."""
+
+    passage: str
+    presets: list
+    sample_ids: tuple
+    drawn_id: Optional[int]
+    top: int = 20
+
+
+class Cancelled(Exception):
+    """Raised inside a job whose serial was cancelled."""
+
+
+def user_message(error: BaseException) -> str:
+    """A message fit for a message box: the error's own text for ours, a plain summary otherwise."""
+    if isinstance(error, SamplewrightError):
+        return str(error)
+    return (f"Something unexpected went wrong ({type(error).__name__}: {error}). "
+            "Try again; if it keeps happening, restart Samplewright and report the steps that led here.")
+
+
+class EngineWorker(QObject):
+    """Runs core calls for the window on its own thread.
+
+    Args:
+        model_loader: ``model_loader(source, progress) -> LoadedModel``.
+        engine_factory: ``engine_factory(loaded) -> Engine``.
+        metrics: ``metrics(samples) -> dict`` for one preset's samples.
+    """
+
+    load_progress = Signal(int, str, object)      # serial, message, fraction or None
+    model_ready = Signal(int, object)             # serial, ModelInfo
+    tokens_ready = Signal(int, object)            # serial, list[TokenEvent]
+    audition_ready = Signal(int, object, object)  # serial, AuditionResult, list[metrics dict]
+    step_ready = Signal(int, object)              # serial, StepView
+    passage_counted = Signal(int, object)         # serial, PassageTokens
+    failed = Signal(int, str, str)                # serial, job kind, message
+
+    def __init__(self, model_loader: Callable, engine_factory: Callable, metrics: Callable):
+        super().__init__()
+        self._load = model_loader
+        self._engine_factory = engine_factory
+        self._metrics = metrics
+        self._engine = None
+        self.cancelled: set[int] = set()
+        self.cancelled_through = 0
+
+    def cancel(self, serial: int) -> None:
+        """Stop the job with this serial (safe to call from any thread)."""
+        self.cancelled.add(serial)
+
+    def cancel_through(self, serial: int) -> None:
+        """Stop every job whose serial is ``serial`` or lower (safe to call from any thread)."""
+        self.cancelled_through = max(self.cancelled_through, serial)
+
+    def is_cancelled(self, serial: int) -> bool:
+        """Whether the job ``serial`` was asked to stop."""
+        return serial <= self.cancelled_through or serial in self.cancelled
+
+    def _check(self, serial: int) -> None:
+        if self.is_cancelled(serial):
+            raise Cancelled()
+
+    def _guard(self, serial: int, kind: str, job: Callable[[], Any]) -> None:
+        try:
+            job()
+        except Cancelled:
+            self.failed.emit(serial, kind, "")
+        except Exception as error:  # the window shows a message, never a traceback
+            if not isinstance(error, SamplewrightError):
+                traceback.print_exc(file=sys.stderr)
+            self.failed.emit(serial, kind, user_message(error))
+
+    @Slot(int, object)
+    def load_model(self, serial: int, source: Optional[str]) -> None:
+        """Load a model (``None`` = the default) and make it the engine's."""
+        def progress(message: str, fraction: Optional[float] = None) -> None:
+            self._check(serial)
+            self.load_progress.emit(serial, str(message), fraction)
+
+        def job():
+            loaded = self._load(source, progress)
+            self._check(serial)
+            self._engine = self._engine_factory(loaded)
+            self.model_ready.emit(serial, ModelInfo(
+                str(loaded.name), str(loaded.source), int(loaded.n_parameters), int(loaded.context_length),
+                int(loaded.vocab_size), str(loaded.describe())))
+        self._guard(serial, "load", job)
+
+    @Slot(int, object)
+    def run_audition(self, serial: int, request) -> None:
+        """Generate ``request``; token events go out in batches, then the result and metrics."""
+        def job():
+            engine = self._need_engine()
+            batch: list = []
+            last = [time.monotonic()]
+
+            def on_token(event) -> None:
+                batch.append(event)
+                now = time.monotonic()
+                if now - last[0] >= BATCH_SECONDS:
+                    self.tokens_ready.emit(serial, list(batch))
+                    batch.clear()
+                    last[0] = now
+
+            result = engine.audition(request, on_token=on_token,
+                                     should_stop=lambda: self.is_cancelled(serial))
+            if batch:
+                self.tokens_ready.emit(serial, list(batch))
+            metrics = [self._metrics(samples) for samples in result.samples]
+            self.audition_ready.emit(serial, result, metrics)
+        self._guard(serial, "audition", job)
+
+    @Slot(int, object)
+    def compute_step(self, serial: int, query: StepQuery) -> None:
+        """The distribution at one step of one sample, for every auditioned preset."""
+        def job():
+            self._check(serial)
+            view = self._need_engine().step(query.passage, query.presets, sample_ids=query.sample_ids,
+                                            top=query.top, drawn_id=query.drawn_id)
+            self.step_ready.emit(serial, view)
+        self._guard(serial, "step", job)
+
+    @Slot(int, str)
+    def count_passage(self, serial: int, text: str) -> None:
+        """Tokenise the passage to report its length and where it is cut."""
+        def job():
+            self._check(serial)
+            self.passage_counted.emit(serial, self._need_engine().encode_passage(text))
+        self._guard(serial, "count", job)
+
+    def _need_engine(self):
+        if self._engine is None:
+            raise SamplewrightError("No model is loaded yet. Wait for the model to finish loading, "
+                                    "or choose one with Model ▸ Switch model.")
+        return self._engine
+
+
+class EngineThread(QObject):
+    """Owns the worker's thread and sends it requests as queued signals.
+
+    Args:
+        worker: the worker to move onto the new thread.
+        parent: the Qt parent (the window).
+    """
+
+    _load = Signal(int, object)
+    _audition = Signal(int, object)
+    _step = Signal(int, object)
+    _count = Signal(int, str)
+
+    def __init__(self, worker: EngineWorker, parent: Optional[QObject] = None):
+        super().__init__(parent)
+        self.worker = worker
+        self.serial = 0
+        self.thread = QThread()
+        self.thread.setObjectName("samplewright-engine")
+        worker.moveToThread(self.thread)
+        self._load.connect(worker.load_model)
+        self._audition.connect(worker.run_audition)
+        self._step.connect(worker.compute_step)
+        self._count.connect(worker.count_passage)
+        _THREADS.add(self.thread)
+        self.thread.start()
+
+    def next_serial(self) -> int:
+        """A new request serial, larger than every earlier one."""
+        self.serial += 1
+        return self.serial
+
+    def load_model(self, source: Optional[str]) -> int:
+        """Queue a model load; returns its serial."""
+        serial = self.next_serial()
+        self._load.emit(serial, source)
+        return serial
+
+    def run_audition(self, request) -> int:
+        """Queue an audition; returns its serial."""
+        serial = self.next_serial()
+        self._audition.emit(serial, request)
+        return serial
+
+    def compute_step(self, query: StepQuery) -> int:
+        """Queue a step view; returns its serial."""
+        serial = self.next_serial()
+        self._step.emit(serial, query)
+        return serial
+
+    def count_passage(self, text: str) -> int:
+        """Queue a token count of ``text``; returns its serial."""
+        serial = self.next_serial()
+        self._count.emit(serial, text)
+        return serial
+
+    def cancel(self, serial: int) -> None:
+        """Cancel the request ``serial``."""
+        self.worker.cancel(serial)
+
+    def shutdown(self, wait_ms: int = 30000) -> bool:
+        """Cancel everything, stop the thread and wait for it; True when it stopped."""
+        self.worker.cancel_through(self.serial)
+        self.thread.quit()
+        stopped = self.thread.wait(wait_ms)
+        return bool(stopped)
