@@ -40,6 +40,18 @@ ConflictChoice = Literal["keep_both", "take_theirs", "overwrite"]
 CONFLICT_CHOICES: tuple[str, ...] = ("keep_both", "take_theirs", "overwrite")
 
 
+def starter_presets() -> tuple[Preset, ...]:
+    """The presets a new library starts with: invented examples for a ferry company's
+    communications team, read from ``resources/presets/starter.json`` (itself a settings
+    file, so the same schema and rules check it)."""
+    from importlib import resources
+
+    from .settings_file import parse_settings  # jsonschema loads only when needed
+
+    data = resources.files("samplewright").joinpath("resources", "presets", "starter.json").read_bytes()
+    return parse_settings(data, "starter.json").presets
+
+
 def default_library_dir() -> Path:
     """The personal library folder: ``$SAMPLEWRIGHT_LIBRARY_DIR``, else ``<user data>/samplewright/library``."""
     override = os.environ.get("SAMPLEWRIGHT_LIBRARY_DIR")
@@ -95,8 +107,9 @@ class PresetLibrary:
         folder: the library folder.
         user: the name written as ``modified_by`` (default: the login name).
         lock_timeout: seconds to wait for another writer before giving up.
-        create: create ``folder`` when it is missing (otherwise that is an error:
-            a missing shared folder is usually an unplugged drive).
+        create: create ``folder`` when it is missing. Otherwise that is an error (a
+            missing shared folder is usually an unplugged drive); the default, None,
+            creates only the personal :func:`default_library_dir`.
         seed: put the starter presets into a folder that is completely empty.
 
     Raises:
@@ -108,13 +121,15 @@ class PresetLibrary:
     """
 
     def __init__(self, folder: str | os.PathLike, *, user: str | None = None, lock_timeout: float = 5.0,
-                 create: bool = False, seed: bool = True):
+                 create: bool | None = None, seed: bool = True):
         self.folder = Path(folder).expanduser()
         self.user = user or current_user()
         self.lock_timeout = lock_timeout
         self.added, self.changed, self.removed = Emitter(), Emitter(), Emitter()
         self._records: dict[str, PresetRecord] = {}
         self.skipped: list[SkippedFile] = []
+        if create is None:
+            create = self.folder == default_library_dir()
         if not self.folder.is_dir():
             if not create:
                 raise folder_missing_error(self.folder)
@@ -411,8 +426,6 @@ class PresetLibrary:
             self._remember(theirs)
 
     def _seed(self) -> None:
-        from .starters import starter_presets
-
         with self._writing("put the starter presets into the new library"):
             for preset in starter_presets():
                 record = self._commit(PresetRecord(new_id(), 0, preset), expected=0)

@@ -168,6 +168,23 @@ def export_settings(presets: Iterable[Preset], path: str | Path, exported_by: st
     return _document_from(document, FORMAT_VERSION)
 
 
+def export_preset_file(preset: Preset, path: str | Path) -> Path:
+    """Save one preset as a plain preset file (its ``to_dict`` form) anywhere, atomically.
+
+    The way out when the library cannot be written: the file can be checked
+    with :func:`check_file` and added to a library later.
+
+    Raises:
+        LibraryError: when the file cannot be written (the old file, if any, is untouched).
+    """
+    path = Path(path)
+    try:
+        atomic_write(path, dump_json(preset.to_dict()))
+    except OSError as exc:
+        raise explain_os_error(exc, path.parent, f"write {path.name}", "No file was written") from exc
+    return path
+
+
 def read_settings(path: str | Path) -> SettingsDocument:
     """Read and check a settings file.
 

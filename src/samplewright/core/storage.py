@@ -208,7 +208,7 @@ def folder_missing_error(folder: Path) -> LibraryError:
     """The error for a library folder that does not exist (any more)."""
     return LibraryError(
         f"The library folder {folder} is not there (an unplugged drive or a moved folder?). "
-        "Reconnect the drive or choose the library folder again; unsaved presets are still open.")
+        "Reconnect the drive or choose the library folder again; nothing was read or written.")
 
 
 def _owner_note(user: str) -> dict[str, Any]:

@@ -1,0 +1,111 @@
+"""Command-line subcommands for the preset library and settings files.
+
+``export`` writes library presets to a settings file, ``import`` previews (and
+with ``--yes`` writes) a settings file into the library, ``library`` lists the
+library's presets and the files it skipped. Each handler returns an exit
+status; errors are raised as SamplewrightError/PresetError for the main CLI to
+print as one line. All the work is done in ``samplewright.core``.
+"""
+from __future__ import annotations
+
+import argparse
+import json
+
+from .core.errors import SamplewrightError
+from .core.importing import IMPORT_CHOICES, apply_import, preview_import
+from .core.library import PresetLibrary, default_library_dir
+from .core.settings_file import export_settings, read_settings
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    """Add the ``export``, ``import`` and ``library`` subcommands (each sets ``handler``)."""
+    export = subparsers.add_parser("export", help="write library presets to a settings file")
+    export.add_argument("names", nargs="*", metavar="PRESET", help="preset names or ids (default: all)")
+    export.add_argument("--out", metavar="FILE", required=True, help="the settings file to write")
+    export.add_argument("--model", metavar="NAME", help="the model the presets were tuned on")
+    _add_library_options(export)
+    export.set_defaults(handler=run_export)
+
+    imp = subparsers.add_parser("import", help="preview, then bring a settings file's presets into the library")
+    imp.add_argument("file", metavar="FILE", help="the settings file to read")
+    imp.add_argument("--yes", action="store_true", help="write the import (without it, only the preview)")
+    imp.add_argument("--on-conflict", choices=IMPORT_CHOICES, metavar="CHOICE",
+                     help="for a name already in the library with other parameters: keep_both (import as a "
+                          "copy), take_theirs or skip (keep the library's), overwrite (the file's wins)")
+    _add_library_options(imp)
+    imp.set_defaults(handler=run_import)
+
+    lib = subparsers.add_parser("library", help="list the library's presets and the files it skipped")
+    _add_library_options(lib)
+    lib.set_defaults(handler=run_library)
+
+
+def _add_library_options(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--library", metavar="DIR", help="the library folder (default: your own library)")
+    parser.add_argument("--json", action="store_true", help="print one JSON object instead of text")
+
+
+def _open(args: argparse.Namespace) -> PresetLibrary:
+    return PresetLibrary(args.library or default_library_dir())
+
+
+def _print_json(obj) -> None:
+    print(json.dumps(obj, ensure_ascii=False, indent=2))
+
+
+def run_export(args: argparse.Namespace) -> int:
+    """Export the named presets (or all) from the library to ``--out``."""
+    library = _open(args)
+    records = [library.find(name) for name in args.names] if args.names else library.records()
+    if not records:
+        raise SamplewrightError(f"The library {library.folder} has no presets to export.")
+    document = export_settings([r.preset for r in records], args.out, model=args.model)
+    names = [p.name for p in document.presets]
+    if args.json:
+        _print_json({"file": str(args.out), "presets": names, "model": document.model})
+    else:
+        print(f"Wrote {len(names)} preset(s) to {args.out}: {', '.join(names)}")
+    return 0
+
+
+def run_import(args: argparse.Namespace) -> int:
+    """Print what importing ``file`` would do; with ``--yes``, do it."""
+    document = read_settings(args.file)
+    library = _open(args)
+    plan = preview_import(document, library)
+    if args.yes and plan.conflicts and not args.on_conflict:
+        names = ", ".join(f"'{item.name}'" for item in plan.conflicts)
+        raise SamplewrightError(f"{names} already in the library with other parameters; add --on-conflict "
+                                f"{'|'.join(IMPORT_CHOICES)}. Nothing was imported.")
+    written = apply_import(plan, library, args.on_conflict) if args.yes else ()
+    if args.json:
+        _print_json({"file": str(args.file), "library": str(library.folder), "applied": bool(args.yes),
+                     **plan.to_json(),
+                     "written": [{"name": r.name, "id": r.id, "revision": r.revision} for r in written]})
+        return 0
+    print(f"Importing {args.file} into {library.folder}:")
+    for line in plan.lines():
+        print("  " + line)
+    if args.yes:
+        print(f"Wrote {len(written)} preset(s).")
+    else:
+        print("Nothing was written; add --yes to import.")
+    return 0
+
+
+def run_library(args: argparse.Namespace) -> int:
+    """List the library's presets and skipped files."""
+    library = _open(args)
+    records, skipped = library.records(), library.skipped
+    if args.json:
+        _print_json({"library": str(library.folder),
+                     "presets": [{"id": r.id, "name": r.name, "revision": r.revision, "modified_at": r.modified_at,
+                                  "modified_by": r.modified_by, "summary": r.preset.describe()} for r in records],
+                     "skipped": [{"file": s.name, "reason": s.reason} for s in skipped]})
+        return 0
+    print(f"{library.folder}: {len(records)} preset(s)")
+    for r in records:
+        print(f"  {r.name}  [rev {r.revision}, {r.modified_by} {r.modified_at}]  {r.preset.describe()}")
+    for s in skipped:
+        print(f"  skipped {s.name}: {s.reason}")
+    return 0
