@@ -107,15 +107,17 @@ def parse_json(data: bytes) -> Any:
         raise BadContent(f"not valid JSON ({exc.msg} at line {exc.lineno}, column {exc.colno})") from None
     except RecursionError:
         raise BadContent("not usable JSON (nested too deeply)") from None
-    except BadContent:
-        raise
-    except ValueError as exc:  # e.g. an integer with too many digits
+    except ValueError as exc:  # our own checks above, or an integer with too many digits
         raise BadContent(f"not usable JSON ({str(exc)[:120]})") from None
 
 
 def dump_json(obj: Any) -> bytes:
     """Human-readable, diff-friendly JSON bytes: sorted keys, indent 2, final newline."""
-    return (json.dumps(obj, indent=2, sort_keys=True, ensure_ascii=False) + "\n").encode("utf-8")
+    text = json.dumps(obj, indent=2, sort_keys=True, ensure_ascii=False) + "\n"
+    try:
+        return text.encode("utf-8")
+    except UnicodeEncodeError:  # a lone surrogate: only an escaped form is valid UTF-8
+        return (json.dumps(obj, indent=2, sort_keys=True, ensure_ascii=True) + "\n").encode("ascii")
 
 
 def fsync_folder(folder: Path) -> None:
