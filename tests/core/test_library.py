@@ -395,3 +395,15 @@ def test_unreadable_user_state_starts_empty_with_a_note(tmp_path):
     (tmp_path / "config" / "state.json").write_text("[not, json")
     state = UserState()
     assert state.favourites == set() and "could not be read" in state.problem
+
+
+def test_library_code_loads_without_torch_or_qt():
+    # The library must open fast and headless (project rule: no torch or Qt at module level).
+    import subprocess
+    import sys
+
+    code = ("import sys, samplewright.core.library, samplewright.core.settings_file, "
+            "samplewright.core.importing, samplewright.core.user_state, samplewright.cli_exchange; "
+            "print(sorted(m for m in ('torch', 'PySide6', 'pyqtgraph') if m in sys.modules))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+    assert out.strip() == "[]"
