@@ -207,3 +207,29 @@ def test_a_held_lock_times_out_with_a_message_naming_the_holder(tmp_path):
         holder.communicate("done\n", timeout=30)
     assert lib.get(record.id) == record
     assert lib.save(record.edited(record.preset.replace(top_k=4))).revision == 2
+
+
+BARE_HOLDER = textwrap.dedent("""
+    import sys, filelock
+    with filelock.FileLock(sys.argv[1] + "/.samplewright.lock"):
+        print("held", flush=True)
+        sys.stdin.readline()
+""")
+
+
+def test_an_unwritable_folder_is_reported_as_such_not_as_busy(tmp_path, monkeypatch):
+    # As root the folder stays writable, so os.access is made to answer as for a read-only share,
+    # and a bare lock holder (no owner note) stands for the lock file that cannot be opened.
+    from samplewright.core import storage
+
+    lib = PresetLibrary(tmp_path, seed=False, lock_timeout=0.3)
+    record = lib.add(BASE)
+    holder = spawn(BARE_HOLDER, tmp_path)
+    try:
+        assert holder.stdout.readline().strip() == "held"
+        monkeypatch.setattr(storage.os, "access", lambda path, mode: False)
+        with pytest.raises(LibraryError, match="permission to write") as err:
+            lib.save(record.edited(record.preset.replace(top_k=4)))
+        assert "busy" not in str(err.value)
+    finally:
+        holder.communicate("done\n", timeout=30)

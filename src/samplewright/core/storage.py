@@ -244,6 +244,10 @@ def hold_lock(folder: Path, timeout: float, user: str) -> Iterator[None]:
     try:
         lock.acquire()
     except filelock.Timeout:
+        # With no owner note, a lock file that cannot be opened for writing looks like a busy lock.
+        if not (folder / OWNER_NOTE_NAME).exists() and not os.access(folder, os.W_OK):
+            denied = PermissionError(errno.EACCES, "Permission denied")
+            raise explain_os_error(denied, folder, "lock the library for writing") from None
         raise LibraryError(
             f"The library {folder} is busy: {describe_holder(folder)} is saving to it. "
             f"Try again in a moment; your changes are still open.") from None
