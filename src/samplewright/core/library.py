@@ -128,8 +128,10 @@ class PresetLibrary:
         self.added, self.changed, self.removed = Emitter(), Emitter(), Emitter()
         self._records: dict[str, PresetRecord] = {}
         self.skipped: list[SkippedFile] = []
-        if create is None:
-            create = self.folder == default_library_dir()
+        self._prepare_folder(self.folder == default_library_dir() if create is None else create, seed)
+        self._records, self.skipped = self._scan()
+
+    def _prepare_folder(self, create: bool, seed: bool) -> None:
         if not self.folder.is_dir():
             if not create:
                 raise folder_missing_error(self.folder)
@@ -137,9 +139,13 @@ class PresetLibrary:
                 self.folder.mkdir(parents=True, exist_ok=True)
             except OSError as exc:
                 raise explain_os_error(exc, self.folder, "create the library folder") from exc
-        if seed and not any(self.folder.iterdir()):
-            self._seed()
-        self._records, self.skipped = self._scan()
+        try:
+            empty = not any(self.folder.iterdir())
+        except OSError as exc:
+            raise LibraryError(f"Could not read the library folder {self.folder}: {exc.strerror}.") from exc
+        if seed and empty:
+            with contextlib.suppress(LibraryError):  # a read-only empty folder still opens, empty
+                self._seed()
 
     # -- reading -------------------------------------------------------------------------------
 
