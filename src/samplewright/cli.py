@@ -102,11 +102,7 @@ def resolve_preset(spec: str, library_dir: str | None = None) -> Preset:
         if preset.name.casefold() == spec.casefold():
             return preset
     lib = library.PresetLibrary(library_dir or library.default_library_dir())
-    found = lib.find(spec)
-    if found is None:
-        names = ", ".join(p.name for p in library.starter_presets())
-        raise SamplewrightError(f"no preset named {spec!r} (starter presets: {names})")
-    return getattr(found, "preset", found)
+    return lib.find(spec).preset  # raises LibraryError naming what exists
 
 
 def _presets(args) -> list[Preset]:

@@ -12,8 +12,8 @@ from samplewright import Preset, PresetError
 from samplewright.core.presets import DEFAULT_ORDER, FIELDS, PARAMETERS, differences, validate_field
 
 BAD_VALUES = {
-    "temperature": [-0.1, 5.01, math.nan, math.inf, "1", True, None],
-    "top_k": [-1, 2.5, "3", True],
+    "temperature": [-0.1, 5.01, math.nan, math.inf, "1", True, None, 10**400],
+    "top_k": [-1, 2.5, "3", True, math.inf, 10**400],
     "top_p": [0, -0.5, 1.01, math.nan],
     "min_p": [-0.01, 1.0, 1.5],
     "typical_p": [0, 1.2, -1],

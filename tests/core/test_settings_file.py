@@ -167,7 +167,7 @@ names = st.text(min_size=1, max_size=MAX_TEXT["name"]).filter(
 presets = st.builds(
     Preset, name=names, description=text(200), notes=text(300),
     tags=st.lists(text(MAX_TEXT["tag"]), max_size=5).map(tuple),
-    temperature=st.floats(0, 5), top_k=st.integers(0, 10**9),
+    temperature=st.floats(0, 5), top_k=st.integers(0, 10**6),
     top_p=st.floats(0, 1, exclude_min=True), min_p=st.floats(0, 1, exclude_max=True),
     typical_p=st.floats(0, 1, exclude_min=True), repetition_penalty=st.floats(0, 10, exclude_min=True),
     frequency_penalty=st.floats(-2, 2), presence_penalty=st.floats(-2, 2),

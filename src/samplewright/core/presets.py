@@ -22,6 +22,8 @@ DEFAULT_ORDER: tuple[str, ...] = ("penalties", "temperature", "top_k", "top_p", 
 
 MAX_TEXT = {"name": 120, "description": 2000, "notes": 10000, "tag": 60, "stop": 200}
 MAX_TAGS = 32
+#: Larger than any vocabulary; the bound keeps absurd values out of tensors.
+MAX_TOP_K = 1_000_000
 MAX_STOPS = 16
 
 
@@ -40,9 +42,16 @@ def _is_number(value: Any) -> bool:
     return isinstance(value, (int, float)) and not isinstance(value, bool)
 
 
+def _fits_float(value: Any) -> bool:
+    try:
+        return math.isfinite(float(value))
+    except OverflowError:  # an int too large for a float
+        return False
+
+
 def _number(field: str, value: Any, low: float, high: float, *, low_open=False,
             high_open=False, allowed: str) -> float:
-    if not _is_number(value) or not math.isfinite(value):
+    if not _is_number(value) or not _fits_float(value):
         raise PresetError(field, f"{value!r} is not a finite number; allowed: {allowed}")
     too_low = value <= low if low_open else value < low
     too_high = value >= high if high_open else value > high
@@ -52,7 +61,7 @@ def _number(field: str, value: Any, low: float, high: float, *, low_open=False,
 
 
 def _integer(field: str, value: Any, low: int, high: int | None, allowed: str) -> int:
-    if _is_number(value) and float(value).is_integer():
+    if isinstance(value, float) and math.isfinite(value) and value.is_integer():
         value = int(value)
     if not isinstance(value, int) or isinstance(value, bool):
         raise PresetError(field, f"{value!r} is not a whole number; allowed: {allowed}")
@@ -126,7 +135,8 @@ FIELDS: dict[str, tuple[Any, Any, str, str]] = {
         lambda v: _number("temperature", v, 0.0, 5.0, allowed="0 to 5"), 1.0, "0 to 5",
         "Divides the logits before the softmax: below 1 sharpens, above 1 flattens, 0 always takes the top token."),
     "top_k": (
-        lambda v: _integer("top_k", v, 0, None, "a whole number ≥ 0 (0 = off)"), 0, "whole number ≥ 0 (0 = off)",
+        lambda v: _integer("top_k", v, 0, MAX_TOP_K, "a whole number from 0 to 1000000 (0 = off)"), 0,
+        "whole number 0 to 1000000 (0 = off)",
         "Keeps only the k most probable tokens."),
     "top_p": (
         lambda v: _number("top_p", v, 0.0, 1.0, low_open=True, allowed="above 0 up to 1 (1 = off)"), 1.0,
