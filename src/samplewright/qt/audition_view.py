@@ -164,6 +164,7 @@ class ColumnHeader(QFrame):
         self.metrics.setAccessibleName(f"Metrics of preset {column + 1}")
         self.metrics.setToolTip("\n".join(METRIC_HELP.values()))
         self.metrics.setStyleSheet("color: #303030;")
+        self.metrics.setMinimumHeight(self.metrics.fontMetrics().lineSpacing() * 4 + 4)
         top = QHBoxLayout()
         top.addWidget(self.title, 1)
         top.addWidget(self.regenerate)
@@ -194,7 +195,8 @@ class QtAuditionGrid(QScrollArea):
         self.setWidgetResizable(True)
         self.setAccessibleName("Audition samples")
         self._host = QWidget()
-        self._grid = QGridLayout(self._host)
+        outer = QVBoxLayout(self._host)
+        self._grid = QGridLayout()
         self._grid.setAlignment(Qt.AlignTop | Qt.AlignLeft)
         self.setWidget(self._host)
         self._empty = QLabel("Tick presets in the list on the left, then press <b>Generate all</b> "
@@ -202,7 +204,9 @@ class QtAuditionGrid(QScrollArea):
                              "so differences across a row come from the presets alone.")
         self._empty.setWordWrap(True)
         self._empty.setMargin(12)
-        self._grid.addWidget(self._empty, 0, 0)
+        outer.addWidget(self._empty)
+        outer.addLayout(self._grid)
+        outer.addStretch(1)
         session.started.connect(self._on_started)
         session.token_added.connect(self._on_token_added)
         session.sample_finished.connect(self._on_sample_finished)
@@ -229,7 +233,7 @@ class QtAuditionGrid(QScrollArea):
     def _rebuild(self, rows: int) -> None:
         while self._grid.count():
             widget = self._grid.takeAt(0).widget()
-            if widget is not None and widget is not self._empty:
+            if widget is not None:
                 widget.deleteLater()
         self._empty.hide()
         self.headers, self.views, self.footers = [], [], []

@@ -116,7 +116,7 @@ class DistributionPlot(QWidget):
         self._bars, self._ghosts, self._cuts = [], [], []
         for series, colour in enumerate(colours):
             bar = pg.BarGraphItem(x0=0, y=rows, height=0.1, width=zeros, brush=pg.mkBrush(colour),
-                                  pen=pg.mkPen(colour))
+                                  pen=pg.mkPen(None))
             item.addItem(bar)
             self._bars.append(bar)
             if series == 0:
@@ -158,6 +158,7 @@ class DistributionPlot(QWidget):
         zeros = np.zeros(self.top_n)
         for bar in self._bars + self._ghosts:
             bar.setOpts(width=zeros)
+            bar.setVisible(False)
         for cut in self._cuts:
             cut.setData(x=[], y=[])
         self._arrow.setData(x=[], y=[])
@@ -179,6 +180,7 @@ class DistributionPlot(QWidget):
         raw = np.zeros(self.top_n)
         raw[:n] = view.raw_probs[view.top_ids[:n]]
         self._bars[0].setOpts(y=rows + offsets[0], height=bar_h * 0.9, width=raw)
+        self._bars[0].setVisible(True)
         peak = max([float(raw.max())] + [row.p for step in view.presets for row in step.top[:n]])
         for index in range(MAX_PRESETS):
             active = index < series - 1
@@ -209,6 +211,8 @@ class DistributionPlot(QWidget):
                     cut_symbols.append(self._symbols.get(row.cut_by, "x"))
         self._bars[index + 1].setOpts(y=ys, height=bar_h * 0.9, width=shaped)
         self._ghosts[index].setOpts(y=ys, height=bar_h * 0.9, width=ghost)
+        self._bars[index + 1].setVisible(step is not None)
+        self._ghosts[index].setVisible(step is not None and bool(ghost.any()))
         self._cuts[index].setData(x=cut_x, y=cut_y, symbol=cut_symbols or "o")
 
     def _draw_drawn_mark(self, view: StepView, n: int, peak: float) -> None:

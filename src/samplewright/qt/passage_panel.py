@@ -120,12 +120,12 @@ class QtPassagePanel(QWidget):
         Args:
             tokens: tokens the model reads.
             dropped: tokens cut from the start to fit the context.
-            context: the model's context length in tokens.
+            context: how many passage tokens the model reads at most.
             cut_at: character offset where the kept part starts, if known.
         """
         if dropped:
-            self.info.setText(f"{tokens + dropped:,} tokens — longer than the model's {context:,}-token "
-                              f"context: the first {dropped:,} tokens (shaded) are left out.")
+            self.info.setText(f"{tokens + dropped:,} tokens — longer than the {context:,} tokens the model "
+                              f"reads: the first {dropped:,} (shaded) are left out.")
         else:
             self.info.setText(f"{tokens:,} tokens (the model reads up to {context:,})")
         selections = []

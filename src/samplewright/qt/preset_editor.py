@@ -82,7 +82,7 @@ class QtPresetEditor(QWidget):
         self.title.setWordWrap(True)
         form_host = QWidget()
         self.form = QFormLayout(form_host)
-        self.form.setRowWrapPolicy(QFormLayout.WrapLongRows)
+        self.form.setRowWrapPolicy(QFormLayout.WrapAllRows)
         self.form.setFieldGrowthPolicy(QFormLayout.AllNonFixedFieldsGrow)
         self._add_line("name", "Name", "A short name the team will recognise.")
         self._add_line("description", "Description", "One line on when to use this preset.")

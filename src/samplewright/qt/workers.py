@@ -10,6 +10,7 @@ every token.
 from __future__ import annotations
 
 import dataclasses
+import os
 import sys
 import time
 import traceback
@@ -64,6 +65,18 @@ def user_message(error: BaseException) -> str:
         return str(error)
     return (f"Something unexpected went wrong ({type(error).__name__}: {error}). "
             "Try again; if it keeps happening, restart Samplewright and report the steps that led here.")
+
+
+def leave_a_core_for_the_window() -> None:
+    """Let torch use one core fewer than the machine has (at least one).
+
+    torch's worker threads busy-wait between operations; with every core
+    taken, the window's thread waited seconds for a turn on a loaded
+    two-core machine, while one core left free kept it answering.
+    """
+    import torch
+
+    torch.set_num_threads(max(1, (os.cpu_count() or 2) - 1))
 
 
 class EngineWorker(QObject):
@@ -126,9 +139,13 @@ class EngineWorker(QObject):
             self.load_progress.emit(serial, str(message), fraction)
 
         def job():
+            leave_a_core_for_the_window()
             loaded = self._load(source, progress)
             self._check(serial)
             self._engine = self._engine_factory(loaded)
+            # Warm up now: the first metrics call imports sacrebleu, whose native modules
+            # hold the interpreter lock while they load and would stall the window mid-audition.
+            self._metrics([])
             self.model_ready.emit(serial, ModelInfo(
                 str(loaded.name), str(loaded.source), int(loaded.n_parameters), int(loaded.context_length),
                 int(loaded.vocab_size), str(loaded.describe())))

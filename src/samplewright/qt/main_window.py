@@ -1,0 +1,463 @@
+"""The workbench window: presets on the left, passage and audition in the
+middle, the next-token view on the right, a review caution across the top.
+
+The window only arranges views and forwards requests: model loading,
+generation and step views run on the engine thread (``workers.py``); the
+audition's samples live in a core :class:`AuditionSession`.
+"""
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import Callable, Optional
+
+from PySide6.QtCore import QSettings, Qt
+from PySide6.QtGui import QAction, QKeySequence, QUndoStack
+from PySide6.QtWidgets import (QCheckBox, QFileDialog, QHBoxLayout, QInputDialog, QLabel, QMainWindow,
+                               QMessageBox, QProgressBar, QPushButton, QSpinBox, QSplitter, QVBoxLayout,
+                               QWidget)
+
+from ..core.library import PresetLibrary, default_library_dir
+from ..core.session import AuditionSession
+from ..core.user_state import UserState, default_config_dir
+from .audition_actions import AuditionActions
+from .audition_view import QtAuditionGrid
+from .library_panel import QtLibraryList
+from .passage_panel import QtPassagePanel
+from .preset_actions import PresetActions
+from .preset_editor import QtPresetEditor
+from .step_inspector import QtStepInspector
+from .workers import EngineThread, EngineWorker
+
+CAUTION = ("⚠ Generated text can be wrong, biased or offensive. A person must review it under your "
+           "team's own review policy before it is used anywhere.")
+SETTINGS_FILE = "window.ini"
+
+
+def _default_loader(source, progress):
+    from ..core.model import load_model
+    return load_model(source, progress)
+
+
+def _default_engine(loaded):
+    from ..core.engine import Engine
+    return Engine(loaded)
+
+
+def _default_metrics(samples):
+    from ..core.metrics import preset_metrics
+    return preset_metrics(samples)
+
+
+class MainWindow(AuditionActions, PresetActions, QMainWindow):
+    """The Samplewright workbench.
+
+    Args:
+        model_loader: ``model_loader(source, progress) -> LoadedModel``; default loads the real model.
+        library_dir: the preset library folder (default: the user's library).
+        config_dir: where window settings and favourites are kept (default: the user config folder).
+        engine_factory: ``engine_factory(loaded) -> Engine``.
+        model_source: the model to load first (None = the default model, or the one used last time).
+        load_on_start: start loading the model at once.
+    """
+
+    def __init__(self, model_loader: Optional[Callable] = None, library_dir=None, config_dir=None,
+                 engine_factory: Optional[Callable] = None, model_source: Optional[str] = None,
+                 load_on_start: bool = True, parent: Optional[QWidget] = None):
+        super().__init__(parent)
+        self.setWindowTitle("Samplewright — preset audition workbench")
+        self.config_dir = Path(config_dir) if config_dir else default_config_dir()
+        self.settings = QSettings(str(self.config_dir / SETTINGS_FILE), QSettings.IniFormat)
+        self.library = PresetLibrary(library_dir or default_library_dir(), create=True)
+        self.user_state = UserState(self.config_dir)
+        self.undo_stack = QUndoStack(self)
+        self.session = AuditionSession()
+        self.model_info = None
+        self.last_error: Optional[str] = None
+        self._closed = False
+        worker = EngineWorker(model_loader or _default_loader, engine_factory or _default_engine,
+                              _default_metrics)
+        self.engine = EngineThread(worker, self)
+        self._build_views()
+        self._build_actions()
+        self._build_menus()
+        self._connect()
+        self._init_audition_state()
+        self.restore_state()
+        if self.user_state.problem:
+            self.statusBar().showMessage(self.user_state.problem, 8000)
+        if load_on_start:
+            self.load_model(model_source if model_source is not None else self._saved_model_source())
+
+    # -- construction ----------------------------------------------------------------
+    def _build_views(self) -> None:
+        self.library_list = QtLibraryList(self.library, self, self.undo_stack, lambda text: self.show_error(text))
+        self.editor = QtPresetEditor()
+        self.passage = QtPassagePanel()
+        self.grid = QtAuditionGrid(self.session)
+        self.inspector = QtStepInspector()
+        left = QSplitter(Qt.Vertical)
+        left.addWidget(_titled("Presets", self.library_list))
+        left.addWidget(_titled("Edit preset", self.editor))
+        left.setStretchFactor(1, 2)
+        middle = QSplitter(Qt.Vertical)
+        middle.addWidget(self.passage)
+        middle.addWidget(self._audition_box())
+        middle.setStretchFactor(1, 3)
+        self.splitters = {"main": QSplitter(Qt.Horizontal), "left": left, "middle": middle}
+        main = self.splitters["main"]
+        for widget in (left, middle, self.inspector):
+            main.addWidget(widget)
+        main.setStretchFactor(1, 3)
+        main.setStretchFactor(2, 2)
+        main.setSizes([300, 660, 440])
+        left.setSizes([300, 500])
+        middle.setSizes([170, 600])
+        self.caution = QLabel(CAUTION)
+        self.caution.setObjectName("caution")
+        self.caution.setWordWrap(True)
+        self.caution.setAccessibleName("Review caution")
+        self.caution.setStyleSheet("#caution { background: #FFF4CC; border: 1px solid #E69F00; padding: 4px; }")
+        central = QWidget()
+        layout = QVBoxLayout(central)
+        layout.setContentsMargins(6, 6, 6, 2)
+        layout.addWidget(self.caution)
+        layout.addWidget(main, 1)
+        self.setCentralWidget(central)
+        self.model_label = QLabel("No model loaded")
+        self.model_label.setAccessibleName("Model status")
+        self.model_progress = QProgressBar()
+        self.model_progress.setMaximumWidth(220)
+        self.model_progress.hide()
+        self.statusBar().addPermanentWidget(self.model_progress)
+        self.statusBar().addPermanentWidget(self.model_label)
+
+    def _audition_box(self) -> QWidget:
+        self.samples_spin = _spin(1, 16, 4, "Samples per preset", "How many samples each preset writes (1–16)")
+        self.tokens_spin = _spin(1, 512, 48, "New tokens", "The longest continuation, in tokens; a preset's own "
+                                 "max_new_tokens can make it shorter")
+        self.seed_spin = _spin(0, 2**31 - 1, 1234, "Seed", "The random seed; the same seed gives the same samples")
+        self.new_seed_box = QCheckBox("new seed each run")
+        self.new_seed_box.setToolTip("Pick a fresh seed for every run instead of keeping this one")
+        self.generate_button = QPushButton("Generate all")
+        self.stop_button = QPushButton("Stop")
+        self.progress = QProgressBar()
+        self.progress.setAccessibleName("Generation progress")
+        self.progress.setTextVisible(True)
+        self.progress.setFormat("%v / %m tokens")
+        controls = QHBoxLayout()
+        for label, widget in (("Samples", self.samples_spin), ("New tokens", self.tokens_spin),
+                              ("Seed", self.seed_spin)):
+            caption = QLabel(label)
+            caption.setBuddy(widget)
+            controls.addWidget(caption)
+            controls.addWidget(widget)
+        controls.addWidget(self.new_seed_box)
+        controls.addStretch(1)
+        controls.addWidget(self.generate_button)
+        controls.addWidget(self.stop_button)
+        box = QWidget()
+        layout = QVBoxLayout(box)
+        layout.setContentsMargins(0, 0, 0, 0)
+        layout.addWidget(QLabel("<b>Audition</b> — presets side by side; sample rows share their random draws"))
+        layout.addLayout(controls)
+        layout.addWidget(self.progress)
+        layout.addWidget(self.grid, 1)
+        return box
+
+    def _action(self, text: str, slot: Callable, shortcut=None, tip: str = "") -> QAction:
+        action = QAction(text, self)
+        if shortcut is not None:
+            action.setShortcut(QKeySequence(shortcut))
+        action.setToolTip(f"{tip or text} ({action.shortcut().toString()})" if shortcut else (tip or text))
+        action.setStatusTip(tip or text)
+        action.triggered.connect(lambda _=False: slot())
+        self.addAction(action)
+        return action
+
+    def _build_actions(self) -> None:
+        a = self._action
+        self.actions = {
+            "open": a("Open passage…", self.open_passage_dialog, QKeySequence.Open, "Open a .txt or .md passage"),
+            "import": a("Import settings file…", self.import_settings, "Ctrl+I", "Bring presets from a settings file"),
+            "export": a("Export chosen presets…", self.export_chosen, "Ctrl+E",
+                        "Write the ticked presets to a settings file to share"),
+            "quit": a("Quit", self.close, QKeySequence.Quit),
+            "copy": a("Copy sample text", self.copy_current_sample, "Ctrl+Shift+C",
+                      "Copy the text of the sample being inspected"),
+            "new": a("New preset", self.new_preset, QKeySequence.New, "Add a preset with neutral settings"),
+            "duplicate": a("Duplicate preset", self.duplicate_preset, "Ctrl+D", "Copy the highlighted preset"),
+            "rename": a("Rename preset…", self.rename_preset, "F2", "Give the highlighted preset a new name"),
+            "delete": a("Delete preset", self.delete_preset, QKeySequence.Delete,
+                        "Move the highlighted preset to the library's trash (undo with Ctrl+Z)"),
+            "favourite": a("Favourite ★", self.library_list.toggle_favourite, "Ctrl+B",
+                           "Mark or unmark the highlighted preset as a favourite"),
+            "save": a("Save preset", self.editor.save, QKeySequence.Save, "Save the edited preset to the library"),
+            "rescan": a("Reload library", self.rescan_library, "F5", "Pick up presets others changed"),
+            "generate": a("Generate all", self.generate_all, "Ctrl+Return", "Write samples for every ticked preset"),
+            "regenerate": a("Regenerate this preset", self.regenerate_current, "Ctrl+R",
+                            "Write the inspected preset's samples again"),
+            "stop": a("Stop", self.stop_generation, "Esc", "Stop the run; samples so far are kept"),
+            "prev_step": a("Previous step", lambda: self.inspector.move(-1), "Alt+Left"),
+            "next_step": a("Next step", lambda: self.inspector.move(+1), "Alt+Right"),
+            "model_folder": a("Open model folder…", self.choose_model_folder, None,
+                              "Load a transformers model folder"),
+            "model_gguf": a("Open GGUF file…", self.choose_model_file, None, "Load a .gguf model file"),
+            "model_default": a("Use the default model", lambda: self.load_model(None), None),
+            "legend": a("What the letters mean", self.show_legend, "F1"),
+        }
+        self.actions["delete"].setShortcutContext(Qt.WidgetWithChildrenShortcut)
+        self.library_list.tree.addAction(self.actions["delete"])
+        self.undo_action = self.undo_stack.createUndoAction(self, "Undo")
+        self.undo_action.setShortcut(QKeySequence.Undo)
+        self.redo_action = self.undo_stack.createRedoAction(self, "Redo")
+        self.redo_action.setShortcut(QKeySequence.Redo)
+        self.passage.set_open_action(self.actions["open"])
+        self.generate_button.setToolTip(self.actions["generate"].toolTip())
+        self.stop_button.setToolTip(self.actions["stop"].toolTip())
+        for key in ("new", "duplicate", "rename", "delete"):
+            self.library_list.add_button(self.actions[key]).setText(self.actions[key].text().split()[0])
+
+    def _build_menus(self) -> None:
+        bar = self.menuBar()
+        menus = {
+            "&File": ["open", "import", "export", None, "quit"],
+            "&Edit": [self.undo_action, self.redo_action, None, "copy"],
+            "&Presets": ["new", "duplicate", "rename", "delete", "favourite", "save", None, "rescan"],
+            "&Audition": ["generate", "regenerate", "stop", None, "prev_step", "next_step"],
+            "&Model": ["model_folder", "model_gguf", "model_default"],
+            "&Help": ["legend"],
+        }
+        for title, entries in menus.items():
+            menu = bar.addMenu(title)
+            for entry in entries:
+                if entry is None:
+                    menu.addSeparator()
+                else:
+                    menu.addAction(self.actions[entry] if isinstance(entry, str) else entry)
+
+    def _connect(self) -> None:
+        self.generate_button.clicked.connect(self.generate_all)
+        self.stop_button.clicked.connect(self.stop_generation)
+        self.library_list.current_changed.connect(self._on_current_preset_changed)
+        self.editor.save_requested.connect(self.save_edited_preset)
+        self.passage.passage_settled.connect(self.count_passage)
+        self.passage.open_requested.connect(self.open_passage)
+        worker = self.engine.worker
+        worker.load_progress.connect(self._on_load_progress)
+        worker.model_ready.connect(self._on_model_ready)
+        worker.failed.connect(self._on_job_failed)
+        worker.passage_counted.connect(self._on_passage_counted)
+        self._connect_audition()
+
+    # -- favourites (the library list's view of UserState) -------------------------------
+    def is_favourite(self, record_id: str) -> bool:
+        """Whether ``record_id`` is one of this user's favourites."""
+        return self.user_state.is_favourite(record_id)
+
+    def set_favourite(self, record_id: str, on: bool) -> None:
+        """Mark or unmark a favourite and keep it in the user's state file."""
+        self.user_state.set_favourite(record_id, on)
+        try:
+            self.user_state.save()
+        except Exception as error:  # LibraryError: the config folder is not writable
+            self.show_error("Favourite not kept", str(error))
+
+    # -- messages and questions (tests replace these) -------------------------------------
+    def show_error(self, message: str, detail: Optional[str] = None) -> None:
+        """Show a problem in a message box (``detail``, when given, is the message and the first is the title)."""
+        title, text = ("Samplewright", message) if detail is None else (message, detail)
+        self.last_error = text
+        QMessageBox.warning(self, title, text)
+
+    def ask_open_path(self, title: str, file_filter: str) -> Optional[str]:
+        """Ask for a file to open; None when cancelled."""
+        path, _ = QFileDialog.getOpenFileName(self, title, "", file_filter)
+        return path or None
+
+    def ask_save_path(self, title: str, file_filter: str, suggested: str = "") -> Optional[str]:
+        """Ask for a file to write; None when cancelled."""
+        path, _ = QFileDialog.getSaveFileName(self, title, suggested, file_filter)
+        return path or None
+
+    def ask_folder(self, title: str) -> Optional[str]:
+        """Ask for a folder; None when cancelled."""
+        return QFileDialog.getExistingDirectory(self, title) or None
+
+    def ask_text(self, title: str, label: str, text: str) -> Optional[str]:
+        """Ask for one line of text; None when cancelled."""
+        value, ok = QInputDialog.getText(self, title, label, text=text)
+        return value if ok else None
+
+    def show_legend(self) -> None:
+        """Explain the plot's colours and letters."""
+        from .palette import stage_legend
+        QMessageBox.information(self, "Reading the next-token view", (
+            "Grey bars: the model's own distribution. Coloured bars: the distribution after each preset "
+            "(numbered as in the audition columns).\n\nA dashed outline with a letter marks a token a preset "
+            "removed; the letter names the stage that removed it:\n" + stage_legend() +
+            "\n\nThe shaded row with ▶ is the token the inspected sample drew."))
+
+    # -- model -----------------------------------------------------------------------------
+    def load_model(self, source: Optional[str]) -> None:
+        """Start loading a model on the engine thread (None = the default model)."""
+        self._model_serial = self.engine.load_model(source)
+        self._pending_source = source
+        self.model_progress.setRange(0, 0)
+        self.model_progress.show()
+        self.model_label.setText("Loading model…")
+
+    def choose_model_folder(self) -> None:
+        """Ask for a model folder and load it."""
+        folder = self.ask_folder("Choose a model folder (with config.json)")
+        if folder:
+            self.load_model(folder)
+
+    def choose_model_file(self) -> None:
+        """Ask for a GGUF file and load it."""
+        path = self.ask_open_path("Choose a GGUF model file", "GGUF models (*.gguf);;All files (*)")
+        if path:
+            self.load_model(path)
+
+    def _on_load_progress(self, serial: int, message: str, fraction) -> None:
+        if serial != getattr(self, "_model_serial", None):
+            return
+        if fraction is None:
+            self.model_progress.setRange(0, 0)
+        else:
+            self.model_progress.setRange(0, 100)
+            self.model_progress.setValue(int(100 * fraction))
+        self.model_label.setText(message)
+
+    def _on_model_ready(self, serial: int, info) -> None:
+        if serial != getattr(self, "_model_serial", None):
+            return
+        self.model_info = info
+        self.model_progress.hide()
+        self.model_label.setText(f"Model: {info.name} · {info.n_parameters / 1e6:.0f} M parameters · "
+                                 f"context {info.context_length:,} tokens")
+        self.model_label.setToolTip(f"{info.description}\n{info.source}")
+        self.settings.setValue("model/source", self._pending_source or "")
+        self._update_buttons()
+        self.count_passage(self.passage.text())
+
+    def _saved_model_source(self) -> Optional[str]:
+        return self.settings.value("model/source", "") or None
+
+    def _on_job_failed(self, serial: int, kind: str, message: str) -> None:
+        if kind == "load" and serial == getattr(self, "_model_serial", None):
+            self.model_progress.hide()
+            self.model_label.setText(f"Model: {self.model_info.name}" if self.model_info else "No model loaded")
+            if message:
+                self.show_error("The model could not be loaded", message)
+        elif kind in ("audition", "step"):
+            self._audition_failed(serial, kind, message)
+
+    # -- passage ---------------------------------------------------------------------------
+    def open_passage_dialog(self) -> None:
+        """Ask for a passage file and open it."""
+        path = self.ask_open_path("Open a passage", "Text (*.txt *.md);;All files (*)")
+        if path:
+            self.open_passage(path)
+
+    def open_passage(self, path: str) -> None:
+        """Read a passage file into the passage editor."""
+        from ..core.passages import read_passage
+        try:
+            self.passage.set_text(read_passage(path), str(path))
+        except Exception as error:  # PassageError and friends carry the reason
+            self.show_error("The passage could not be opened", str(error))
+
+    def count_passage(self, text: str) -> None:
+        """Ask the engine how many tokens the passage has."""
+        if self.model_info is not None and text.strip():
+            self._count_serial = self.engine.count_passage(text)
+
+    def _on_passage_counted(self, serial: int, counted) -> None:
+        if serial != getattr(self, "_count_serial", None) or self.model_info is None:
+            return
+        self.passage.show_length(len(counted.ids), counted.dropped, counted.limit, counted.cut_at)
+
+    # -- state -----------------------------------------------------------------------------
+    def restore_state(self) -> None:
+        """Bring back the window layout, passage, selection and audition settings of last time."""
+        s = self.settings
+        if s.value("window/geometry"):
+            self.restoreGeometry(s.value("window/geometry"))
+        else:
+            self.resize(1400, 900)
+        for name, splitter in self.splitters.items():
+            if s.value(f"splitters/{name}"):
+                splitter.restoreState(s.value(f"splitters/{name}"))
+        self.passage.set_recent(json.loads(s.value("passage/recent", "[]")))
+        text = s.value("passage/text", "")
+        if text:
+            self.passage.set_text(text)
+            self.passage.source = s.value("passage/source", "") or None
+        self.fill_example_passage()
+        self.samples_spin.setValue(int(s.value("audition/samples", 4)))
+        self.tokens_spin.setValue(int(s.value("audition/new_tokens", 48)))
+        self.seed_spin.setValue(int(s.value("audition/seed", 1234)))
+        self.new_seed_box.setChecked(s.value("audition/new_seed", "false") == "true")
+        chosen = json.loads(s.value("audition/chosen", "null") or "null")
+        if chosen is None:
+            chosen = [r.id for r in self.library.records()[:2]]
+        self.library_list.set_chosen(chosen)
+        if self.library_list.current_id() is None and self.library.records():
+            self.library_list.select(self.library.records()[0].id)
+
+    def save_state(self) -> None:
+        """Remember layout, passage, selection and audition settings for next time."""
+        s = self.settings
+        s.setValue("window/geometry", self.saveGeometry())
+        for name, splitter in self.splitters.items():
+            s.setValue(f"splitters/{name}", splitter.saveState())
+        s.setValue("passage/text", self.passage.text()[:500_000])
+        s.setValue("passage/source", self.passage.source or "")
+        s.setValue("passage/recent", json.dumps(self.passage.recent))
+        s.setValue("audition/samples", self.samples_spin.value())
+        s.setValue("audition/new_tokens", self.tokens_spin.value())
+        s.setValue("audition/seed", self.seed_spin.value())
+        s.setValue("audition/new_seed", "true" if self.new_seed_box.isChecked() else "false")
+        s.setValue("audition/chosen", json.dumps(self.library_list.chosen))
+        s.sync()
+
+    def fill_example_passage(self) -> None:
+        """Offer the example passages and put the first one in the editor."""
+        try:
+            from ..core.passages import demo_passages
+            examples = demo_passages()
+        except ImportError:
+            examples = {}
+        self.passage.set_examples(examples, lambda title, text: self.passage.set_text(text))
+        if examples and not self.passage.text().strip():
+            self.passage.set_text(next(iter(examples.values())))
+
+    def closeEvent(self, event) -> None:
+        """Cancel any run, stop the engine thread and keep the window's state."""
+        if not self._closed:
+            self._closed = True
+            self.save_state()
+            self.session.abandon()
+            self.engine.shutdown()
+            self.library_list.cleanup()
+            self.grid.cleanup()
+        super().closeEvent(event)
+
+
+def _titled(title: str, widget: QWidget) -> QWidget:
+    box = QWidget()
+    layout = QVBoxLayout(box)
+    layout.setContentsMargins(0, 0, 0, 0)
+    layout.addWidget(QLabel(f"<b>{title}</b>"))
+    layout.addWidget(widget, 1)
+    return box
+
+
+def _spin(low: int, high: int, value: int, name: str, tip: str) -> QSpinBox:
+    spin = QSpinBox()
+    spin.setRange(low, high)
+    spin.setValue(value)
+    spin.setAccessibleName(name)
+    spin.setToolTip(tip)
+    return spin
