@@ -187,8 +187,15 @@ class AuditionActions:
             return
         self._step_serial = None
         if self._step_waiting is None:
-            self.inspector.plot.show_step(view, [p.name for p in self.session.presets])
+            self.inspector.plot.show_step(view, [p.name for p in self.session.presets], self._drawn_text())
         self._send_waiting_step()
+
+    def _drawn_text(self) -> Optional[str]:
+        if not self._inspected:
+            return None
+        sample = self.session.sample(SampleRef(self._inspected[0], self._inspected[1]))
+        step = self._inspected[2]
+        return sample.tokens[step].text if sample and step < len(sample.tokens) else None
 
     def _clear_inspection(self) -> None:
         self._inspected = None

@@ -19,7 +19,7 @@ from PySide6.QtWidgets import (QFrame, QGridLayout, QHBoxLayout, QLabel, QPlainT
 from ..core.session import AuditionSession
 from . import palette
 
-COLUMN_WIDTH = 250
+COLUMN_WIDTH = 212
 SAMPLE_LINES = 6
 
 METRIC_HELP = {
@@ -156,6 +156,7 @@ class ColumnHeader(QFrame):
         self.setStyleSheet(f"#columnHeader {{ border-top: 5px solid {colour}; }}")
         self.title = QLabel(f"<span style='color:{colour}'>■</span> <b>{column + 1} · {name}</b>")
         self.title.setToolTip(name)
+        self.title.setWordWrap(True)
         self.regenerate = QToolButton()
         self.regenerate.setText("↻")
         self.regenerate.setToolTip(f"Write this preset's samples again ({name}); the other columns stay")
@@ -197,7 +198,7 @@ class QtAuditionGrid(QScrollArea):
         self._host = QWidget()
         outer = QVBoxLayout(self._host)
         self._grid = QGridLayout()
-        self._grid.setAlignment(Qt.AlignTop | Qt.AlignLeft)
+        self._grid.setAlignment(Qt.AlignTop)
         self.setWidget(self._host)
         self._empty = QLabel("Tick presets in the list on the left, then press <b>Generate all</b> "
                              "(Ctrl+Enter). Each sample row uses the same random draws for every preset, "
@@ -236,6 +237,8 @@ class QtAuditionGrid(QScrollArea):
             if widget is not None:
                 widget.deleteLater()
         self._empty.hide()
+        for column in range(1, self._grid.columnCount() + 1):
+            self._grid.setColumnStretch(column, 0)
         self.headers, self.views, self.footers = [], [], []
         for row in range(rows):
             label = QLabel(f"<b>{row + 1}</b>")
@@ -243,14 +246,15 @@ class QtAuditionGrid(QScrollArea):
             self._grid.addWidget(label, 1 + 2 * row, 0, Qt.AlignTop)
         for column, preset in enumerate(self.session.presets):
             header = ColumnHeader(column, preset.name)
-            header.setFixedWidth(COLUMN_WIDTH)
+            header.setMinimumWidth(COLUMN_WIDTH)
+            self._grid.setColumnStretch(1 + column, 1)
             header.regenerate.clicked.connect(lambda _=False, c=column: self.regenerate_requested.emit(c))
             self._grid.addWidget(header, 0, 1 + column)
             self.headers.append(header)
             views, footers = [], []
             for row in range(rows):
                 view = SampleView(column, row)
-                view.setFixedWidth(COLUMN_WIDTH)
+                view.setMinimumWidth(COLUMN_WIDTH)
                 view.token_clicked.connect(lambda step, c=column, r=row: self.token_clicked.emit(c, r, step))
                 footer = QLabel("")
                 footer.setStyleSheet("color: #505050;")

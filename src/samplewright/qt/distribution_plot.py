@@ -67,6 +67,7 @@ class DistributionPlot(QWidget):
         super().__init__(parent)
         self.top_n = top_n
         self._pending: Optional[tuple[StepView, list[str]]] = None
+        self._drawn_text: Optional[str] = None
         self.shown: Optional[StepView] = None
         self.drawn_row: Optional[int] = None
         self.redraws = 0
@@ -103,6 +104,11 @@ class DistributionPlot(QWidget):
         item.hideButtons()
         item.showGrid(x=True, y=False, alpha=0.25)
         item.setLabel("bottom", "probability")
+        for side in ("left", "bottom"):
+            axis = item.getAxis(side)
+            axis.setTextPen(pg.mkPen("#202020"))
+            axis.setPen(pg.mkPen("#606060"))
+        item.getAxis("bottom").enableAutoSIPrefix(False)
         item.getAxis("left").setStyle(tickTextOffset=4)
         item.getAxis("left").setWidth(110)
         rows = np.arange(self.top_n, dtype=float)
@@ -130,11 +136,22 @@ class DistributionPlot(QWidget):
             self._cuts.append(cut)
         self._arrow = pg.ScatterPlotItem(size=14, symbol="t2", brush=pg.mkBrush("#000000"), pxMode=True)
         item.addItem(self._arrow)
+        self._hint = pg.TextItem("No step chosen yet", color="#606060", anchor=(0.5, 0.5))
+        self._hint.setPos(0.5, (self.top_n - 1) / 2)
+        item.addItem(self._hint)
 
     # -- public -------------------------------------------------------------------
-    def show_step(self, view: Optional[StepView], preset_names: Sequence[str]) -> None:
-        """Ask for ``view`` to be drawn; only the newest request is drawn (~30 per second at most)."""
+    def show_step(self, view: Optional[StepView], preset_names: Sequence[str],
+                  drawn_text: Optional[str] = None) -> None:
+        """Ask for ``view`` to be drawn; only the newest request is drawn (~30 per second at most).
+
+        Args:
+            view: the step, or None to empty the plot.
+            preset_names: names of the auditioned presets, in column order.
+            drawn_text: the drawn token's text, shown when it is outside the plotted rows.
+        """
         self._pending = (view, list(preset_names))
+        self._drawn_text = drawn_text
         if not self._timer.isActive():
             self._timer.start()
 
@@ -163,6 +180,7 @@ class DistributionPlot(QWidget):
             cut.setData(x=[], y=[])
         self._arrow.setData(x=[], y=[])
         self._highlight.setVisible(False)
+        self._hint.setVisible(True)
         self.plot_widget.getPlotItem().getAxis("left").setTicks([[]])
         self.plot_widget.setXRange(0, 1, padding=0.02)
         self.plot_widget.setYRange(-0.5, self.top_n - 0.5, padding=0)
@@ -172,6 +190,7 @@ class DistributionPlot(QWidget):
     # -- drawing ------------------------------------------------------------------
     def _draw(self, view: StepView, names: list[str]) -> None:
         self.shown = view
+        self._hint.setVisible(False)
         n = min(self.top_n, len(view.top_ids))
         series = 1 + min(len(view.presets), MAX_PRESETS)
         bar_h = GROUP_HEIGHT / series
@@ -232,7 +251,7 @@ class DistributionPlot(QWidget):
         parts = [f"<b>Context:</b> {view.context_tokens} tokens · raw entropy "
                  f"{_bits(view.raw_entropy_bits)} bits"]
         if view.drawn_id is not None:
-            parts.append(self._drawn_text(view))
+            parts.append(self._drawn_html(view))
         rows = ["<tr><th></th><th align='left'>preset</th><th>kept</th><th>entropy before → after</th>"
                 "<th>raw mass kept</th></tr>"]
         for index, step in enumerate(view.presets[:MAX_PRESETS]):
@@ -246,11 +265,13 @@ class DistributionPlot(QWidget):
         parts.append("<small>Cut by: " + html.escape(palette.stage_legend()) + "</small>")
         return "<br>".join(parts[:-2]) + "".join(parts[-2:])
 
-    @staticmethod
-    def _drawn_text(view: StepView) -> str:
+    def _drawn_html(self, view: StepView) -> str:
         rank = int((view.raw_probs > view.raw_probs[view.drawn_id]).sum()) + 1
         index = view.top_ids.index(view.drawn_id) if view.drawn_id in view.top_ids else None
-        text = token_label(view.top_texts[index]) if index is not None else f"id {view.drawn_id}"
+        if index is not None:
+            text = token_label(view.top_texts[index])
+        else:
+            text = token_label(self._drawn_text) if self._drawn_text is not None else f"id {view.drawn_id}"
         where = "" if index is not None else " (outside the rows shown)"
         return (f"<b>Drawn here:</b> <span style='background:{palette.DRAWN_HIGHLIGHT}'>"
                 f"{html.escape(text)}</span> — raw rank {rank}, raw p "

@@ -1,0 +1,89 @@
+"""The distribution plot: built once, updated in place, newest step wins; and the demo script."""
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+
+from samplewright.core.presets import Preset
+from samplewright.qt.distribution_plot import DistributionPlot, token_label
+from samplewright.qt.palette import OKABE_ITO, PRESET_COLOURS, STAGE_LETTERS
+
+ROOT = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(ROOT / "examples"))
+import plot_demo  # noqa: E402
+
+PRESETS = [Preset("Steady", temperature=0.7, top_p=0.9), Preset("Short list", top_k=3)]
+
+
+def views(n, seed=0):
+    rng = np.random.default_rng(seed)
+    return [plot_demo.synthetic_view(rng, PRESETS) for _ in range(n)]
+
+
+def test_items_are_built_once_and_updated_in_place(qtbot):
+    plot = DistributionPlot(top_n=20)
+    qtbot.addWidget(plot)
+    items_before = list(plot.plot_widget.getPlotItem().items)
+    for view in views(5):
+        plot.show_step(view, [p.name for p in PRESETS])
+        plot.flush()
+    assert plot.plot_widget.getPlotItem().items == items_before
+    # The grey bars hold the raw probabilities of the top tokens, in rank order.
+    shown = plot.shown
+    widths = plot._bars[0].opts["width"][: len(shown.top_ids)]
+    np.testing.assert_allclose(widths, shown.raw_probs[shown.top_ids])
+    assert list(widths) == sorted(widths, reverse=True)
+
+
+def test_cut_tokens_carry_the_letter_of_the_stage_that_cut_them(qtbot):
+    plot = DistributionPlot(top_n=20)
+    qtbot.addWidget(plot)
+    view = views(1, seed=3)[0]
+    plot.show_step(view, [p.name for p in PRESETS])
+    plot.flush()
+    short_list = view.presets[1]
+    cut = [row for row in short_list.top if row.cut_by]
+    # top_k=3 keeps exactly three tokens of the synthetic vocabulary (Fan et al. 2018 definition).
+    assert short_list.kept == 3
+    assert len(cut) == len(short_list.top) - 3
+    assert all(row.cut_by == "top_k" for row in cut)
+    points = plot._cuts[1].points()
+    assert len(points) == len(cut)
+    assert all(point.symbol() is plot._symbols["top_k"] for point in points)
+
+
+def test_only_the_newest_requested_step_is_drawn(qtbot):
+    plot = DistributionPlot(top_n=20)
+    qtbot.addWidget(plot)
+    requested = views(10, seed=5)
+    for view in requested:
+        plot.show_step(view, [p.name for p in PRESETS])
+    qtbot.waitUntil(lambda: plot.redraws == 1, timeout=2000)
+    assert plot.shown is requested[-1]
+
+
+def test_palette_is_okabe_ito_and_stage_letters_are_distinct():
+    # Okabe & Ito (2008) published hex values (from memory of the CUD page): orange E69F00, sky blue 56B4E9,
+    # bluish green 009E73, yellow F0E442, blue 0072B2, vermillion D55E00, reddish purple CC79A7.
+    assert OKABE_ITO["vermillion"] == "#D55E00" and OKABE_ITO["bluish_green"] == "#009E73"
+    assert set(PRESET_COLOURS) <= set(OKABE_ITO.values())
+    assert len(set(PRESET_COLOURS)) == 6
+    assert len(set(STAGE_LETTERS.values())) == len(STAGE_LETTERS)
+
+
+def test_token_labels_show_invisible_characters():
+    assert token_label(" harbour") == "␣harbour"
+    assert token_label("\n") == "↵"
+    assert token_label("") == "∅"
+
+
+def test_plot_demo_runs():
+    env = dict(os.environ, QT_QPA_PLATFORM="offscreen")
+    done = subprocess.run([sys.executable, str(ROOT / "examples" / "plot_demo.py"), "--iterations", "5"],
+                          capture_output=True, text=True, env=env, timeout=300)
+    assert done.returncode == 0, done.stderr
+    assert "drew 5 steps" in done.stdout

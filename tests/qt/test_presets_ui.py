@@ -1,0 +1,172 @@
+"""Preset editing, undoable library changes, export and import from the window."""
+from __future__ import annotations
+
+import json
+
+import pytest
+from PySide6.QtCore import Qt
+
+from samplewright.core.errors import LibraryError
+from samplewright.core.presets import FIELDS, PresetError, validate_field
+from samplewright.core.settings_file import check_file, read_settings
+
+
+def highlight_first(window):
+    record = window.library.records()[0]
+    window.library_list.select(record.id)
+    assert window.editor.original == record.preset
+    return record
+
+
+def retype(qtbot, line_edit, text):
+    line_edit.selectAll()
+    qtbot.keyClick(line_edit, Qt.Key_Delete)
+    qtbot.keyClicks(line_edit, text)
+
+
+@pytest.mark.parametrize("field, typed, value", [("temperature", "7", 7.0), ("top_p", "0", 0.0),
+                                                  ("top_k", "2.5", 2.5), ("min_p", "abc", None)])
+def test_invalid_value_shows_reason_and_is_not_saved(window, qtbot, field, typed, value):
+    record = highlight_first(window)
+    editor = window.editor
+    retype(qtbot, editor.inputs[field], typed)
+    label = editor.error_labels[field]
+    assert not label.isHidden()
+    if value is not None:
+        # The reason shown is the core validator's own message (field, value and allowed range).
+        with pytest.raises(PresetError) as expected:
+            validate_field(field, value)
+        assert label.text() == str(expected.value)
+    else:
+        assert field in label.text() and FIELDS[field][2] in label.text()
+    assert not editor.save_button.isEnabled()
+    window.actions["save"].trigger()
+    assert window.library.get(record.id) == record
+
+
+def test_valid_edit_is_saved_to_the_library(window, qtbot):
+    record = highlight_first(window)
+    editor = window.editor
+    retype(qtbot, editor.inputs["temperature"], "0.35")
+    assert editor.error_labels["temperature"].isHidden()
+    assert editor.save_button.isEnabled()
+    qtbot.mouseClick(editor.save_button, Qt.LeftButton)
+    saved = window.library.get(record.id)
+    assert saved.preset.temperature == 0.35
+    assert saved.revision == record.revision + 1
+
+
+def test_stage_order_can_be_reordered_and_saved(window, qtbot):
+    record = highlight_first(window)
+    editor = window.editor
+    order = list(editor.stage_order())
+    assert tuple(order) == record.preset.order
+    editor.order_list.setCurrentRow(len(order) - 1)
+    editor.move_stage(-1)
+    expected = order[:-2] + [order[-1], order[-2]]
+    assert list(editor.stage_order()) == expected
+    editor.save()
+    assert list(window.library.get(record.id).preset.order) == expected
+
+
+def test_every_parameter_shows_its_explanation(window):
+    for field, widget in window.editor.inputs.items():
+        if field in FIELDS:
+            assert FIELDS[field][3] in widget.toolTip()
+
+
+def test_undo_restores_a_deleted_preset(window):
+    record = highlight_first(window)
+    window.actions["delete"].trigger()
+    assert record.name not in [r.name for r in window.library.records()]
+    assert record.name not in [window.library_list.tree.topLevelItem(i).text(0)
+                               for i in range(window.library_list.tree.topLevelItemCount())]
+    window.undo_action.trigger()
+    names = [r.name for r in window.library.records()]
+    assert record.name in names
+    restored = window.library.find(record.name)
+    assert restored.preset.parameters() == record.preset.parameters()
+    window.redo_action.trigger()
+    assert record.name not in [r.name for r in window.library.records()]
+
+
+def test_new_duplicate_rename_are_undoable(window):
+    before = sorted(r.name for r in window.library.records())
+    window.actions["new"].trigger()
+    assert "New preset" in [r.name for r in window.library.records()]
+    window.actions["duplicate"].trigger()
+    copy_id = window.library_list.current_id()
+    assert window.library.get(copy_id).name == "New preset (copy)"
+    window.ask_text = lambda *args: "Harbour test"
+    window.actions["rename"].trigger()
+    assert window.library.get(copy_id).name == "Harbour test"
+    for _ in range(3):
+        window.undo_action.trigger()
+    assert sorted(r.name for r in window.library.records()) == before
+
+
+def test_search_and_tag_filter_hide_other_presets(window):
+    tree = window.library_list.tree
+    records = window.library.records()
+    tagged = [r for r in records if r.preset.tags]
+    assert tagged, "the starter presets carry tags"
+    tag = tagged[0].preset.tags[0]
+    window.library_list.tag_filter.setCurrentText(tag)
+    visible = [tree.topLevelItem(i).text(0) for i in range(tree.topLevelItemCount())
+               if not tree.topLevelItem(i).isHidden()]
+    assert sorted(visible) == sorted(r.name for r in records if tag in r.preset.tags)
+    window.library_list.tag_filter.setCurrentIndex(0)
+    window.library_list.search.setText(records[0].name)
+    visible = [tree.topLevelItem(i).text(0) for i in range(tree.topLevelItemCount())
+               if not tree.topLevelItem(i).isHidden()]
+    assert records[0].name in visible and len(visible) < len(records)
+
+
+def test_favourite_is_kept_in_the_user_state(window, tmp_path):
+    record = highlight_first(window)
+    window.actions["favourite"].trigger()
+    state = json.loads((tmp_path / "config" / "state.json").read_text())
+    assert record.id in state["favourites"]
+    window.library_list.favourites_only.setChecked(True)
+    tree = window.library_list.tree
+    visible = [tree.topLevelItem(i).text(0) for i in range(tree.topLevelItemCount())
+               if not tree.topLevelItem(i).isHidden()]
+    assert visible == [record.name]
+
+
+def test_export_writes_a_file_the_core_check_accepts(window, tmp_path):
+    records = window.library.records()[:2]
+    window.library_list.set_chosen([r.id for r in records])
+    target = tmp_path / "shared" / "harbour-presets.json"
+    target.parent.mkdir()
+    window.ask_save_path = lambda *args: str(target)
+    window.actions["export"].trigger()
+    assert window.errors == []
+    verdict = check_file(target)
+    assert all(r.name in verdict for r in records)
+    assert [p for p in read_settings(target).presets] == [r.preset for r in records]
+
+
+def test_import_of_a_broken_file_shows_the_reason(window, tmp_path):
+    broken = tmp_path / "broken.json"
+    broken.write_text('{"format": "samplewright-settings", "format_version": 1, "presets": [', encoding="utf-8")
+    with pytest.raises(LibraryError) as expected:
+        read_settings(broken)
+    count = len(window.library.records())
+    window.ask_open_path = lambda *args: str(broken)
+    window.actions["import"].trigger()
+    assert window.errors == [str(expected.value)]
+    assert len(window.library.records()) == count
+
+
+def test_import_previews_then_adds_presets(window, tmp_path):
+    from samplewright.core.presets import Preset
+    from samplewright.core.settings_file import export_settings
+
+    source = tmp_path / "from-a-colleague.json"
+    export_settings([Preset("Quay notice", temperature=0.6, top_p=0.9)], source)
+    seen = []
+    window.confirm_import = lambda plan, name: seen.append([i.action for i in plan.items]) or {}
+    window.import_settings(str(source))
+    assert seen == [["add"]]
+    assert window.library.find("Quay notice").preset.top_p == 0.9
