@@ -195,6 +195,8 @@ class QtLibraryList(QWidget):
         self._apply_filter()
         if self.chosen != before:
             self.chosen_changed.emit(list(self.chosen))
+        # Re-announce the current preset: its content may have changed even when its id did not.
+        self.current_changed.emit(self.current_id())
 
     def _refresh_tags(self) -> None:
         tags = sorted({t for r in self.library.records() for t in r.preset.tags}, key=str.casefold)

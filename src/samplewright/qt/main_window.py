@@ -23,6 +23,7 @@ from ..core.user_state import UserState, default_config_dir
 from .audition_actions import AuditionActions
 from .audition_view import QtAuditionGrid
 from .library_panel import QtLibraryList
+from .model_actions import ModelActions
 from .passage_panel import QtPassagePanel
 from .preset_actions import PresetActions
 from .preset_editor import QtPresetEditor
@@ -49,7 +50,7 @@ def _default_metrics(samples):
     return preset_metrics(samples)
 
 
-class MainWindow(AuditionActions, PresetActions, QMainWindow):
+class MainWindow(AuditionActions, PresetActions, ModelActions, QMainWindow):
     """The Samplewright workbench.
 
     Args:
@@ -297,86 +298,6 @@ class MainWindow(AuditionActions, PresetActions, QMainWindow):
             "(numbered as in the audition columns).\n\nA dashed outline with a letter marks a token a preset "
             "removed; the letter names the stage that removed it:\n" + stage_legend() +
             "\n\nThe shaded row with ▶ is the token the inspected sample drew."))
-
-    # -- model -----------------------------------------------------------------------------
-    def load_model(self, source: Optional[str]) -> None:
-        """Start loading a model on the engine thread (None = the default model)."""
-        self._model_serial = self.engine.load_model(source)
-        self._pending_source = source
-        self.model_progress.setRange(0, 0)
-        self.model_progress.show()
-        self.model_label.setText("Loading model…")
-
-    def choose_model_folder(self) -> None:
-        """Ask for a model folder and load it."""
-        folder = self.ask_folder("Choose a model folder (with config.json)")
-        if folder:
-            self.load_model(folder)
-
-    def choose_model_file(self) -> None:
-        """Ask for a GGUF file and load it."""
-        path = self.ask_open_path("Choose a GGUF model file", "GGUF models (*.gguf);;All files (*)")
-        if path:
-            self.load_model(path)
-
-    def _on_load_progress(self, serial: int, message: str, fraction) -> None:
-        if serial != getattr(self, "_model_serial", None):
-            return
-        if fraction is None:
-            self.model_progress.setRange(0, 0)
-        else:
-            self.model_progress.setRange(0, 100)
-            self.model_progress.setValue(int(100 * fraction))
-        self.model_label.setText(message)
-
-    def _on_model_ready(self, serial: int, info) -> None:
-        if serial != getattr(self, "_model_serial", None):
-            return
-        self.model_info = info
-        self.model_progress.hide()
-        self.model_label.setText(f"Model: {info.name} · {info.n_parameters / 1e6:.0f} M parameters · "
-                                 f"context {info.context_length:,} tokens")
-        self.model_label.setToolTip(f"{info.description}\n{info.source}")
-        self.settings.setValue("model/source", self._pending_source or "")
-        self._update_buttons()
-        self.count_passage(self.passage.text())
-
-    def _saved_model_source(self) -> Optional[str]:
-        return self.settings.value("model/source", "") or None
-
-    def _on_job_failed(self, serial: int, kind: str, message: str) -> None:
-        if kind == "load" and serial == getattr(self, "_model_serial", None):
-            self.model_progress.hide()
-            self.model_label.setText(f"Model: {self.model_info.name}" if self.model_info else "No model loaded")
-            if message:
-                self.show_error("The model could not be loaded", message)
-        elif kind in ("audition", "step"):
-            self._audition_failed(serial, kind, message)
-
-    # -- passage ---------------------------------------------------------------------------
-    def open_passage_dialog(self) -> None:
-        """Ask for a passage file and open it."""
-        path = self.ask_open_path("Open a passage", "Text (*.txt *.md);;All files (*)")
-        if path:
-            self.open_passage(path)
-
-    def open_passage(self, path: str) -> None:
-        """Read a passage file into the passage editor."""
-        from ..core.passages import read_passage
-        try:
-            self.passage.set_text(read_passage(path), str(path))
-        except Exception as error:  # PassageError and friends carry the reason
-            self.show_error("The passage could not be opened", str(error))
-
-    def count_passage(self, text: str) -> None:
-        """Ask the engine how many tokens the passage has."""
-        if self.model_info is not None and text.strip():
-            self._count_serial = self.engine.count_passage(text)
-
-    def _on_passage_counted(self, serial: int, counted) -> None:
-        if serial != getattr(self, "_count_serial", None) or self.model_info is None:
-            return
-        self.passage.show_length(len(counted.ids), counted.dropped, counted.limit, counted.cut_at)
 
     # -- state -----------------------------------------------------------------------------
     def restore_state(self) -> None:

@@ -18,6 +18,9 @@ SETTINGS_FILTER = "Samplewright settings (*.json);;All files (*)"
 class PresetActions:
     """Mixed into :class:`~samplewright.qt.main_window.MainWindow`."""
 
+    _edited_id: Optional[str] = None
+    _saving = False       # our own save is under way: its change events are expected
+
     def _current_record(self):
         record_id = self.library_list.current_id()
         if record_id is None:
@@ -34,7 +37,15 @@ class PresetActions:
             record = self.library.get(record_id) if record_id else None
         except SamplewrightError:
             record = None
-        self.editor.set_preset(record.preset if record else None)
+        preset = record.preset if record else None
+        if preset == self.editor.original or self._saving:
+            return
+        if self.editor.is_dirty() and record is not None and self._edited_id == record_id:
+            self.statusBar().showMessage(f"'{record.name}' changed in the library while you were editing it; "
+                                         "saving will ask what to keep.", 8000)
+            return
+        self._edited_id = record_id
+        self.editor.set_preset(preset)
 
     def new_preset(self) -> None:
         """Add a preset with neutral settings, named so it is unique."""
@@ -87,6 +98,7 @@ class PresetActions:
         record = self._current_record()
         if record is None:
             return
+        self._saving = True
         try:
             saved = self.library.save(record.edited(preset))
         except SaveConflict as conflict:
@@ -94,6 +106,8 @@ class PresetActions:
         except SamplewrightError as error:
             self.show_error("The preset was not saved", str(error))
             return
+        finally:
+            self._saving = False
         if saved is not None:
             self.library_list.select(saved.id)
             self.editor.set_preset(saved.preset)

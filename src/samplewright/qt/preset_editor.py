@@ -180,7 +180,11 @@ class QtPresetEditor(QWidget):
                 continue
             text = field_text(field, getattr(shown, field))
             editor.blockSignals(True)
-            editor.setPlainText(text) if isinstance(editor, QPlainTextEdit) else editor.setText(text)
+            if isinstance(editor, QPlainTextEdit):
+                editor.setPlainText(text)
+            else:
+                editor.setText(text)
+                editor.setCursorPosition(0)   # show a long description from its start
             editor.blockSignals(False)
             self.error_labels[field].hide()
         self.order_list.blockSignals(True)

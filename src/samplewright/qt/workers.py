@@ -260,9 +260,12 @@ class EngineThread(QObject):
         """Cancel the request ``serial``."""
         self.worker.cancel(serial)
 
-    def shutdown(self, wait_ms: int = 30000) -> bool:
-        """Cancel everything, stop the thread and wait for it; True when it stopped."""
+    def shutdown(self) -> None:
+        """Cancel everything, stop the thread and wait for it.
+
+        A generation stops within one token; a model load stops at its next
+        progress report, so closing during a first-run conversion can take a moment.
+        """
         self.worker.cancel_through(self.serial)
         self.thread.quit()
-        stopped = self.thread.wait(wait_ms)
-        return bool(stopped)
+        self.thread.wait()

@@ -1,0 +1,98 @@
+"""Passage length and cut, model switching, copying, the entry point and the caution."""
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+
+from PySide6.QtGui import QGuiApplication
+
+from samplewright.core.errors import ModelError
+from samplewright.core.presets import Preset
+from samplewright.core.settings_file import check_file, export_settings
+
+from test_workflow import generate, tick, untick_all
+
+
+def test_long_passage_shows_where_it_is_cut(window, qtbot, tiny_loaded):
+    text = " ".join(["The morning ferry to the island leaves the harbour at seven."] * 80)
+    window.passage.set_text(text)
+    limit = window.engine.worker._engine.passage_limit
+    # Count with the tokenizer itself (the tiny tokenizer adds no special tokens).
+    total = len(tiny_loaded.tokenizer(text, add_special_tokens=False)["input_ids"])
+    assert total > limit
+    qtbot.waitUntil(lambda: "left out" in window.passage.info.text(), timeout=10000)
+    info = window.passage.info.text()
+    assert f"{total:,} tokens" in info
+    assert f"first {total - limit:,}" in info
+    shaded = window.passage.editor.extraSelections()
+    assert len(shaded) == 1 and shaded[0].cursor.selectionStart() == 0
+    assert shaded[0].cursor.selectionEnd() > 0
+
+
+def test_short_passage_shows_its_token_count(window, qtbot, tiny_loaded):
+    text = "Tickets are sold at the pier office"
+    window.passage.set_text(text)
+    total = len(tiny_loaded.tokenizer(text, add_special_tokens=False)["input_ids"])
+    qtbot.waitUntil(lambda: window.passage.info.text().startswith(f"{total} tokens"), timeout=10000)
+    assert window.passage.editor.extraSelections() == []
+
+
+def test_a_failed_model_switch_keeps_the_loaded_model(qtbot, tiny_loaded, tmp_path):
+    from samplewright.qt.main_window import MainWindow
+
+    def loader(source, progress):
+        progress("Looking for the model", 0.0)
+        if source is not None:
+            raise ModelError(f"There is no model at {source}: choose a folder with config.json or a .gguf file.")
+        return tiny_loaded
+
+    win = MainWindow(model_loader=loader, library_dir=tmp_path / "lib", config_dir=tmp_path / "cfg")
+    qtbot.addWidget(win)
+    qtbot.waitUntil(lambda: win.model_info is not None, timeout=20000)
+    assert "tiny test model" in win.model_label.text()
+    assert f"{tiny_loaded.n_parameters:,} parameters" in win.model_label.text()   # under a million: in full
+    errors = []
+    win.show_error = lambda title, detail=None: errors.append(detail)
+    win.ask_folder = lambda title: str(tmp_path / "missing-model")
+    win.actions["model_folder"].trigger()
+    qtbot.waitUntil(lambda: bool(errors), timeout=10000)
+    assert "missing-model" in errors[0]
+    assert "tiny test model" in win.model_label.text()
+    assert win.generate_button.isEnabled()
+    win.close()
+
+
+def test_copy_puts_the_inspected_sample_on_the_clipboard(window, qtbot):
+    untick_all(window)
+    tick(window, 1)
+    generate(window, qtbot, samples=1, tokens=5)
+    window.inspect(0, 0, 0)
+    window.actions["copy"].trigger()
+    sample = window.session.samples[0][0]
+    assert QGuiApplication.clipboard().text() == sample.text
+
+
+def test_rename_shows_in_the_editor(window):
+    record = window.library.records()[0]
+    window.library_list.select(record.id)
+    window.ask_text = lambda *args: "Pier notice"
+    window.actions["rename"].trigger()
+    assert window.editor.inputs["name"].text() == "Pier notice"
+    window.undo_action.trigger()
+    assert window.editor.inputs["name"].text() == record.name
+
+
+def test_caution_is_visible(window):
+    assert window.caution.isVisible()
+    assert "reviewed" in window.caution.text() or "review" in window.caution.text()
+
+
+def test_main_module_hands_arguments_to_the_command_line(tmp_path):
+    path = tmp_path / "shared.json"
+    export_settings([Preset("Quay notice", top_p=0.9)], path)
+    env = dict(os.environ, QT_QPA_PLATFORM="offscreen")
+    done = subprocess.run([sys.executable, "-m", "samplewright", "check", str(path)], capture_output=True,
+                          text=True, env=env, timeout=120)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.strip() == check_file(path)
