@@ -1,5 +1,5 @@
-"""Qt test fixtures: offscreen platform, private folders, a tiny model, and a
-guard that fails any test leaving an engine thread running."""
+"""Qt test fixtures: offscreen platform, private folders, a window on the shared tiny
+model, and a guard that fails any test leaving an engine thread running."""
 from __future__ import annotations
 
 import os
@@ -10,50 +10,19 @@ os.environ.setdefault("HF_HUB_OFFLINE", "1")
 
 import pytest
 
-CORPUS = [
-    "The morning ferry to the island leaves the harbour at seven.",
-    "Passengers should arrive at the quay ten minutes before sailing.",
-    "The evening crossing is cancelled when the wind is too strong.",
-    "Tickets are sold at the pier office and on board the boat.",
-    "We are sorry for the delay and thank you for your patience.",
-]
 
-
-def build_tiny_model():
-    """A two-layer random-weight Llama model with a byte-level BPE tokenizer trained on a few lines."""
-    import torch
-    from tokenizers import Tokenizer, decoders, models, pre_tokenizers, trainers
-    from transformers import LlamaConfig, LlamaForCausalLM, PreTrainedTokenizerFast
-
-    from samplewright.core.model import model_from_parts
-
-    bpe = Tokenizer(models.BPE())
-    bpe.pre_tokenizer = pre_tokenizers.ByteLevel(add_prefix_space=False)
-    bpe.decoder = decoders.ByteLevel()
-    trainer = trainers.BpeTrainer(vocab_size=400, special_tokens=["<eos>"],
-                                  initial_alphabet=pre_tokenizers.ByteLevel.alphabet())
-    bpe.train_from_iterator(CORPUS * 4, trainer)
-    tokenizer = PreTrainedTokenizerFast(tokenizer_object=bpe, eos_token="<eos>")
-    torch.manual_seed(0)
-    config = LlamaConfig(vocab_size=bpe.get_vocab_size(), hidden_size=32, intermediate_size=64,
-                         num_hidden_layers=2, num_attention_heads=4, num_key_value_heads=4,
-                         max_position_embeddings=1024, eos_token_id=tokenizer.eos_token_id,
-                         bos_token_id=None, pad_token_id=None)
-    return model_from_parts(LlamaForCausalLM(config), tokenizer, "tiny test model")
-
-
-@pytest.fixture(scope="session")
-def tiny_loaded():
-    """The tiny model, built once per test session."""
-    return build_tiny_model()
+@pytest.fixture
+def tiny_loaded(tiny_model):
+    """The shared tiny model (tests/conftest.py)."""
+    return tiny_model
 
 
 @pytest.fixture
-def tiny_loader(tiny_loaded):
+def tiny_loader(tiny_model):
     """A model loader for the window that hands out the tiny model and reports progress like the real one."""
     def load(source, progress):
         progress("Building the tiny model", 0.5)
-        return tiny_loaded
+        return tiny_model
     return load
 
 
@@ -87,6 +56,7 @@ def window(qtbot, tiny_loader, tmp_path):
     win.resize(1400, 900)
     win.show()
     qtbot.waitUntil(lambda: win.model_info is not None, timeout=20000)
+    win.passage.set_text("The morning ferry to the island leaves the harbour")
     errors: list[str] = []
 
     def capture(message, detail=None):
