@@ -1,0 +1,224 @@
+"""The engine: auditions and the step view on a loaded model.
+
+The passage is encoded once and run through the model once; its key/value
+cache (and the next-token logits after it) are kept for the next call with
+the same passage, and copied for every row of an audition. The batched
+generation itself lives in :mod:`samplewright.core.batch`; every preset's
+meaning comes from :func:`samplewright.core.chain.run_chain`.
+
+Passage window: the engine keeps the last ``passage_limit`` tokens of a
+passage, ``min(max_passage_tokens, context_length - room)`` where ``room`` is
+512 tokens (the longest sample a preset may ask for), or half the context for
+models with a short one. ``max_passage_tokens`` (default 1024, about 750
+words) bounds memory: every row of an audition holds its own copy of the
+passage's key/value cache.
+"""
+from __future__ import annotations
+
+import copy
+import dataclasses
+from typing import Any, Callable, Optional, Sequence
+
+import torch
+
+from . import batch, inspection
+from .chain import RowHistory, RowParams, run_chain
+from .errors import PassageError
+from .model import LoadedModel
+from .presets import Preset
+from .results import AuditionRequest, AuditionResult, StepView, TokenEvent
+
+#: Tokens of context kept free for the sample (the largest max_new_tokens).
+GENERATION_ROOM = 512
+#: Default upper bound of the passage window (memory: one cache copy per row).
+MAX_PASSAGE_TOKENS = 1024
+
+
+@dataclasses.dataclass(frozen=True)
+class PassageTokens:
+    """A passage as the model sees it."""
+
+    ids: list[int]            # the kept token ids (special prefix tokens included)
+    dropped: int              # tokens cut from the start to fit the passage window
+    limit: int                # the passage window in tokens
+    cut_at: Optional[int]     # character offset where the kept part starts, when tokens were dropped
+
+
+@dataclasses.dataclass(frozen=True)
+class PassageState:
+    """The passage's forward pass: kept for reuse, never modified."""
+
+    ids: tuple[int, ...]
+    cache: Any                # the model's key/value cache for one row
+    logits: torch.Tensor      # (vocab,) float32 next-token logits after the passage
+
+
+def passage_limit(context_length: int, max_passage_tokens: int = MAX_PASSAGE_TOKENS) -> int:
+    """The passage window for a model with ``context_length`` positions."""
+    room = min(GENERATION_ROOM, context_length // 2)
+    return max(1, min(max_passage_tokens, context_length - room))
+
+
+class Engine:
+    """Generates auditions and step views with one loaded model.
+
+    Not thread-safe: use one engine from one thread at a time.
+    """
+
+    def __init__(self, loaded: LoadedModel, max_passage_tokens: int = MAX_PASSAGE_TOKENS):
+        self.loaded = loaded
+        self.passage_limit = passage_limit(loaded.context_length, max_passage_tokens)
+        self._state: Optional[PassageState] = None
+
+    # -- passages -----------------------------------------------------------
+
+    def encode_passage(self, text: str) -> PassageTokens:
+        """Tokenise a passage, keeping its last part when it is too long.
+
+        Args:
+            text: the draft passage.
+
+        Returns:
+            The kept token ids and how many were dropped from the start.
+
+        Raises:
+            PassageError: the passage is empty or only white space.
+        """
+        if not isinstance(text, str) or not text.strip():
+            raise PassageError("The passage is empty: write or paste a draft for the model to continue.")
+        tokenizer = self.loaded.tokenizer
+        try:
+            encoded = tokenizer(text, add_special_tokens=False, return_offsets_mapping=True)
+            offsets = encoded["offset_mapping"]
+        except (NotImplementedError, KeyError, ValueError):
+            encoded, offsets = tokenizer(text, add_special_tokens=False), None
+        plain = list(encoded["input_ids"])
+        if not plain:
+            raise PassageError("The passage has no tokens the model can read: write some ordinary text.")
+        prefix = _special_prefix(list(tokenizer(text)["input_ids"]), plain)
+        dropped = max(0, len(plain) - (self.passage_limit - len(prefix)))
+        cut_at = int(offsets[dropped][0]) if dropped and offsets else None
+        return PassageTokens(prefix + plain[dropped:], dropped, self.passage_limit, cut_at)
+
+    def passage_state(self, ids: Sequence[int]) -> PassageState:
+        """The forward pass of ``ids``, computed once and reused while the passage stays the same."""
+        key = tuple(int(i) for i in ids)
+        if self._state is None or self._state.ids != key:
+            self._state = None   # free the old cache before building the new one
+            with torch.inference_mode():
+                logits, cache = self.forward(torch.tensor([key], dtype=torch.long), None)
+            self._state = PassageState(key, cache, logits[0])
+        return self._state
+
+    # -- model calls used by the batch --------------------------------------
+
+    def forward(self, input_ids: torch.Tensor, cache) -> tuple[torch.Tensor, Any]:
+        """Run the model on ``input_ids`` (rows × new tokens) after ``cache``.
+
+        Returns:
+            The next-token logits of each row (rows × vocab, float32) and the
+            grown cache.
+        """
+        out = self.loaded.model(input_ids=input_ids, cache=cache, use_cache=True, logits_to_keep=1)
+        return out.logits[:, -1, :], out.cache
+
+    @staticmethod
+    def copy_cache(state: PassageState, rows: int):
+        """A fresh cache holding the passage once per row (the state's stays untouched)."""
+        cache = copy.deepcopy(state.cache)
+        if rows != 1:
+            cache.batch_repeat_interleave(rows)
+        return cache
+
+    def token_text(self, token_id: int) -> str:
+        """The text piece of one token."""
+        return self.loaded.tokenizer.decode([int(token_id)])
+
+    def decode(self, ids: Sequence[int]) -> str:
+        """The text of a token sequence, decoded as a whole."""
+        return self.loaded.tokenizer.decode([int(i) for i in ids])
+
+    # -- the two jobs ---------------------------------------------------------
+
+    def audition(self, request: AuditionRequest, on_token: Optional[Callable[[TokenEvent], None]] = None,
+                 should_stop: Optional[Callable[[], bool]] = None) -> AuditionResult:
+        """Generate ``request.samples`` samples of every preset, all in one batch.
+
+        Args:
+            request: passage, presets, samples per preset, token budget and seed.
+            on_token: called for every generated token and every ending.
+            should_stop: checked before every step; True cancels the run.
+
+        Returns:
+            The samples, with ``cancelled`` set when ``should_stop`` ended the run.
+
+        Raises:
+            PassageError: the passage is empty.
+            ValueError: no presets, fewer than one sample or token, or a negative seed.
+        """
+        with torch.inference_mode():
+            return batch.run_audition(self, request, on_token, should_stop)
+
+    def step(self, passage: str, presets: list[Preset], sample_ids: Sequence[int] = (), top: int = 20,
+             drawn_id: Optional[int] = None) -> StepView:
+        """The next-token distribution after the passage (and ``sample_ids``), raw and per preset.
+
+        Args:
+            passage: the draft passage.
+            presets: the presets to compare.
+            sample_ids: the first tokens of a sample, continuing the passage.
+            top: how many tokens (by raw probability) to list.
+            drawn_id: the token the inspected sample drew here, passed through.
+
+        Returns:
+            The step view.
+
+        Raises:
+            PassageError: the passage is empty.
+            ValueError: a sample id is outside the vocabulary or the text exceeds the context.
+        """
+        tokens = self.encode_passage(passage)
+        sample_ids = [int(i) for i in sample_ids]
+        if any(not 0 <= i < self.loaded.vocab_size for i in sample_ids):
+            raise ValueError(f"sample ids must lie in 0..{self.loaded.vocab_size - 1}")
+        history = tokens.ids + sample_ids
+        if len(history) > self.loaded.context_length:
+            raise ValueError(f"{len(history)} tokens exceed the model's context of {self.loaded.context_length}")
+        with torch.inference_mode():
+            logits = self._next_logits(tokens.ids, sample_ids).to(torch.float64)
+            raw = torch.softmax(logits, dim=-1).numpy()
+            ids = inspection.top_ids(raw, top)
+            texts = [self.token_text(i) for i in ids]
+            views = self._preset_steps(logits, presets, history, sample_ids, raw, ids, texts)
+        return StepView(raw_probs=raw, raw_entropy_bits=inspection.entropy_bits(raw), top_ids=ids,
+                        top_texts=texts, presets=views, context_tokens=len(history), drawn_id=drawn_id)
+
+    def _next_logits(self, passage_ids: list[int], sample_ids: list[int]) -> torch.Tensor:
+        state = self.passage_state(passage_ids)
+        if not sample_ids:
+            return state.logits
+        logits, _ = self.forward(torch.tensor([sample_ids], dtype=torch.long), self.copy_cache(state, 1))
+        return logits[0]
+
+    def _preset_steps(self, logits, presets, history, sample_ids, raw, ids, texts):
+        if not presets:
+            return []
+        rows = len(presets)
+        params = RowParams.from_presets(presets)
+        hist = RowHistory.build([history] * rows, [sample_ids] * rows,
+                                [p.no_repeat_ngram_size for p in presets], logits.shape[-1])
+        out = run_chain(logits.expand(rows, -1), params, hist, keep_stages=True)
+        probs = torch.softmax(out.logits, dim=-1).numpy()
+        return [inspection.preset_step(
+                    preset.name, preset.order, raw, probs[r],
+                    {name: stage[r].numpy() for name, stage in out.after_stage.items()}, ids, texts)
+                for r, preset in enumerate(presets)]
+
+
+def _special_prefix(full: list[int], plain: list[int]) -> list[int]:
+    """Special tokens the tokenizer puts before the text (e.g. BOS); trailing
+    ones (an EOS) are left out, since the model continues the passage."""
+    for head in range(min(4, len(full) - len(plain)) + 1):
+        if full[head:head + len(plain)] == plain:
+            return full[:head]
+    return []

@@ -1,0 +1,88 @@
+"""Summaries of next-token distributions for the step view (numpy only).
+
+Entropy is Shannon's, in bits (log base 2), over the tokens with nonzero
+probability. A cut token is attributed to the first stage, in the preset's
+order, after which its probability is zero; stages only ever remove tokens
+(``-inf`` stays ``-inf``, and the top token is never removed, so a tiny
+probability cannot come back), so that stage is the one that cut it.
+"""
+from __future__ import annotations
+
+from typing import Mapping, Optional, Sequence
+
+import numpy as np
+
+from .results import PresetStep, TokenRow
+
+
+def entropy_bits(probs) -> np.ndarray | float:
+    """Shannon entropy in bits of each distribution along the last axis.
+
+    Args:
+        probs: probabilities (any shape; the last axis is the vocabulary).
+
+    Returns:
+        A float for 1-D input, else an array of the leading shape.
+    """
+    probs = np.asarray(probs, dtype=np.float64)
+    logs = np.log2(probs, out=np.zeros_like(probs), where=probs > 0)
+    out = 0.0 - (probs * logs).sum(axis=-1)   # 0.0 - x, unlike -x, never gives -0.0
+    return float(out) if out.ndim == 0 else out
+
+
+def softmax(logits) -> np.ndarray:
+    """Probabilities from logits along the last axis (float64; ``-inf`` gives 0)."""
+    logits = np.asarray(logits, dtype=np.float64)
+    shifted = np.exp(logits - logits.max(axis=-1, keepdims=True))
+    return shifted / shifted.sum(axis=-1, keepdims=True)
+
+
+def top_ids(probs, n: int) -> list[int]:
+    """The ``n`` most probable token ids, most probable first (ties: lower id first)."""
+    probs = np.asarray(probs, dtype=np.float64)
+    return [int(i) for i in np.argsort(-probs, kind="stable")[:max(0, n)]]
+
+
+def cut_by(after_stage: Mapping[str, np.ndarray], order: Sequence[str], ids: Sequence[int]) -> list[Optional[str]]:
+    """For each id, the first stage in ``order`` after which it is removed.
+
+    Args:
+        after_stage: logits after each stage, by stage name (1-D).
+        order: the preset's stage order.
+        ids: token ids to attribute.
+
+    Returns:
+        One stage name per id, or None for an id that survives every stage.
+    """
+    ids = np.asarray(ids, dtype=np.int64)
+    found: list[Optional[str]] = [None] * len(ids)
+    for name in order:
+        removed = softmax(after_stage[name])[ids] == 0
+        for i in np.flatnonzero(removed):
+            if found[i] is None:
+                found[i] = name
+    return found
+
+
+def preset_step(name: str, order: Sequence[str], raw_probs: np.ndarray, probs: np.ndarray,
+                after_stage: Mapping[str, np.ndarray], ids: Sequence[int], texts: Sequence[str]) -> PresetStep:
+    """Summarise how one preset reshaped the raw distribution at one step.
+
+    Args:
+        name: the preset's name.
+        order: the preset's stage order.
+        raw_probs: the unshaped distribution (temperature 1).
+        probs: the preset's shaped distribution.
+        after_stage: the preset's logits after each stage.
+        ids: the step's top token ids (by raw probability).
+        texts: their text pieces.
+
+    Returns:
+        The preset's part of the step view.
+    """
+    kept = probs > 0
+    cuts = cut_by(after_stage, order, ids)
+    rows = [TokenRow(id=int(i), text=t, raw_p=float(raw_probs[i]), p=float(probs[i]), cut_by=c)
+            for i, t, c in zip(ids, texts, cuts)]
+    return PresetStep(name=name, probs=probs, kept=int(kept.sum()), kept_raw_mass=float(raw_probs[kept].sum()),
+                      entropy_bits=entropy_bits(probs), raw_entropy_bits=entropy_bits(raw_probs), top=rows)
