@@ -170,3 +170,36 @@ def test_import_previews_then_adds_presets(window, tmp_path):
     window.import_settings(str(source))
     assert seen == [["add"]]
     assert window.library.find("Quay notice").preset.top_p == 0.9
+
+
+def test_import_conflict_choice_from_the_preview(window, qtbot, tmp_path):
+    from samplewright.core.importing import preview_import
+    from samplewright.core.settings_file import export_settings
+    from samplewright.qt.dialogs import ImportPreviewDialog
+
+    record = window.library.records()[0]
+    changed = record.preset.replace(temperature=0.05 if record.preset.temperature != 0.05 else 0.06)
+    source = tmp_path / "changed.json"
+    export_settings([changed], source)
+    plan = preview_import(read_settings(source), window.library)
+    dialog = ImportPreviewDialog(plan, source.name, window)
+    qtbot.addWidget(dialog)
+    assert [i.action for i in plan.items] == ["conflict"]
+    combo = dialog.combos[record.name]
+    combo.setCurrentIndex(combo.findData("overwrite"))
+    window.confirm_import = lambda plan, name: dialog.choices()
+    window.import_settings(str(source))
+    assert window.library.get(record.id).preset.temperature == changed.temperature
+
+
+def test_delete_key_acts_only_in_the_preset_list(window, qtbot):
+    count = len(window.library.records())
+    window.activateWindow()
+    slider = window.inspector.slider
+    slider.setEnabled(True)
+    slider.setFocus()
+    qtbot.keyClick(slider, Qt.Key_Delete)
+    assert len(window.library.records()) == count
+    window.library_list.tree.setFocus()
+    qtbot.keyClick(window.library_list.tree, Qt.Key_Delete)
+    assert len(window.library.records()) == count - 1

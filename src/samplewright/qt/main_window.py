@@ -207,7 +207,9 @@ class MainWindow(AuditionActions, PresetActions, ModelActions, QMainWindow):
             "model_default": a("Use the default model", lambda: self.load_model(None), None),
             "legend": a("What the letters mean", self.show_legend, "F1"),
         }
+        # Delete only acts in the preset list, never on text being edited elsewhere in the window.
         self.actions["delete"].setShortcutContext(Qt.WidgetWithChildrenShortcut)
+        self.removeAction(self.actions["delete"])
         self.library_list.tree.addAction(self.actions["delete"])
         self.undo_action = self.undo_stack.createUndoAction(self, "Undo")
         self.undo_action.setShortcut(QKeySequence.Undo)
