@@ -9,7 +9,8 @@ export TRANSFORMERS_OFFLINE := 1
 
 .PHONY: run test test-core benchmark screenshots clean
 
-$(STAMP): pyproject.toml Makefile
+$(STAMP): pyproject.toml Makefile tools/ensure-qt-libs.sh
+	bash tools/ensure-qt-libs.sh
 	test -x $(PY) || $(PYTHON) -m venv $(VENV)
 	$(PY) -m pip install --quiet --upgrade pip
 	# The CPU build of torch must come first: a looser request pulls a multi-GB GPU build.
