@@ -63,6 +63,15 @@ def tiny_model():
 
 
 @pytest.fixture(scope="session")
+def tiny_model_folder(tiny_model, tmp_path_factory):
+    """The tiny model saved as a transformers model folder (config, safetensors, tokenizer)."""
+    folder = tmp_path_factory.mktemp("tiny-model")
+    tiny_model.model.save_pretrained(folder)
+    tiny_model.tokenizer.save_pretrained(folder)
+    return folder
+
+
+@pytest.fixture(scope="session")
 def default_model():
     """The real default model (from the converted cache), loaded once per session."""
     from samplewright.core.model import load_model

@@ -21,20 +21,12 @@ def logits_of(model, ids=IDS):
         return model(torch.tensor([ids])).logits[0, -1]
 
 
-@pytest.fixture(scope="module")
-def tiny_folder(tiny_model, tmp_path_factory):
-    folder = tmp_path_factory.mktemp("tiny-model")
-    tiny_model.model.save_pretrained(folder)
-    tiny_model.tokenizer.save_pretrained(folder)
-    return folder
-
-
-def test_loads_a_model_folder(tiny_folder, tiny_model):
+def test_loads_a_model_folder(tiny_model_folder, tiny_model):
     messages = []
-    loaded = load_model(tiny_folder, progress=lambda message, fraction: messages.append((message, fraction)))
+    loaded = load_model(tiny_model_folder, progress=lambda message, fraction: messages.append((message, fraction)))
     assert torch.equal(logits_of(loaded.model), logits_of(tiny_model.model))
     assert not loaded.model.training
-    assert loaded.name == tiny_folder.name and loaded.source == tiny_folder
+    assert loaded.name == tiny_model_folder.name and loaded.source == tiny_model_folder
     assert loaded.context_length == 256 and loaded.vocab_size == tiny_model.vocab_size
     assert loaded.n_parameters == tiny_model.model.num_parameters()
     assert loaded.eos_ids == {tiny_model.tokenizer.eos_token_id}
@@ -42,9 +34,9 @@ def test_loads_a_model_folder(tiny_folder, tiny_model):
     assert loaded.name in loaded.describe() and "M parameters" in loaded.describe()
 
 
-def test_offline_mode_is_set_by_the_loader(tiny_folder, monkeypatch):
+def test_offline_mode_is_set_by_the_loader(tiny_model_folder, monkeypatch):
     monkeypatch.delenv("HF_HUB_OFFLINE", raising=False)
-    load_model(tiny_folder)
+    load_model(tiny_model_folder)
     assert os.environ["HF_HUB_OFFLINE"] == "1"
 
 
@@ -117,22 +109,22 @@ def test_broken_gguf_file(tmp_path, monkeypatch):
     assert not any((tmp_path / "cache" / "models").glob("broken-*/config.json"))
 
 
-def test_broken_weights(tiny_folder, tmp_path):
+def test_broken_weights(tiny_model_folder, tmp_path):
     broken = tmp_path / "broken"
     broken.mkdir()
-    for item in tiny_folder.iterdir():
+    for item in tiny_model_folder.iterdir():
         (broken / item.name).write_bytes(item.read_bytes())
     (broken / "model.safetensors").write_bytes(b"not safetensors at all")
     with pytest.raises(ModelError, match="Could not load"):
         load_model(broken)
 
 
-def test_incomplete_weights(tiny_folder, tiny_model, tmp_path):
+def test_incomplete_weights(tiny_model_folder, tiny_model, tmp_path):
     from safetensors.torch import save_file
 
     partial = tmp_path / "partial"
     partial.mkdir()
-    for item in tiny_folder.iterdir():
+    for item in tiny_model_folder.iterdir():
         (partial / item.name).write_bytes(item.read_bytes())
     state = {k: v.contiguous() for k, v in tiny_model.model.state_dict().items() if "layers.1." not in k}
     save_file(state, str(partial / "model.safetensors"), metadata={"format": "pt"})
