@@ -199,9 +199,9 @@ def _load_folder(folder: Path):
 
     transformers = _quiet_transformers()
     try:
-        tokenizer = transformers.AutoTokenizer.from_pretrained(folder)
+        tokenizer = transformers.AutoTokenizer.from_pretrained(folder, local_files_only=True)
         model, info = transformers.AutoModelForCausalLM.from_pretrained(
-            folder, dtype=torch.float32, output_loading_info=True)
+            folder, dtype=torch.float32, output_loading_info=True, local_files_only=True)
     except Exception as error:  # loaders raise many kinds; the user needs one message
         raise _failure(folder, error) from error
     missing = info.get("missing_keys") or []
@@ -217,9 +217,10 @@ def _load_gguf(path: Path):
 
     transformers = _quiet_transformers()
     try:
-        tokenizer = transformers.AutoTokenizer.from_pretrained(path.parent, gguf_file=path.name)
+        tokenizer = transformers.AutoTokenizer.from_pretrained(path.parent, gguf_file=path.name,
+                                                               local_files_only=True)
         model = transformers.AutoModelForCausalLM.from_pretrained(
-            path.parent, gguf_file=path.name, dtype=torch.float32)
+            path.parent, gguf_file=path.name, dtype=torch.float32, local_files_only=True)
     except Exception as error:  # loaders raise many kinds; the user needs one message
         raise _failure(path, error) from error
     return model, tokenizer
