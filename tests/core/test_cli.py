@@ -16,11 +16,8 @@ from samplewright.core.metrics import METRIC_KEYS
 
 
 @pytest.fixture(scope="module")
-def tiny_folder(tmp_path_factory, tiny_model):
-    folder = tmp_path_factory.mktemp("tiny-model")
-    tiny_model.model.save_pretrained(folder)
-    tiny_model.tokenizer.save_pretrained(folder)
-    return folder
+def tiny_folder(tiny_model_folder):
+    return tiny_model_folder
 
 
 @pytest.fixture
