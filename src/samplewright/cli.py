@@ -212,7 +212,8 @@ def run_step(args) -> int:
         return 0
     print(f"Next token after {view.context_tokens} tokens; raw entropy {view.raw_entropy_bits:.2f} bits")
     for entry in entries:
-        print(f"\n== {entry['name']}: kept {entry['kept']} tokens holding {entry['kept_raw_mass']:.1%} "
+        noun = "token" if entry["kept"] == 1 else "tokens"
+        print(f"\n== {entry['name']}: kept {entry['kept']} {noun} holding {entry['kept_raw_mass']:.1%} "
               f"of the raw mass; entropy {entry['raw_entropy_bits']:.2f} -> {entry['entropy_bits']:.2f} bits")
         for row in entry["top"]:
             cut = f"cut by {row['cut_by']}" if row["cut_by"] else ""
