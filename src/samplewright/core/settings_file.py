@@ -197,6 +197,28 @@ def read_settings(path: str | Path) -> SettingsDocument:
     return parse_settings(_read_bytes(path), path.name)
 
 
+def read_importable(path: str | Path) -> SettingsDocument:
+    """Read a settings file, or a single preset file (as :func:`export_preset_file` writes it)
+    as a one-preset document, so either can be previewed and imported.
+
+    Raises:
+        LibraryError: as for :func:`read_settings`; for a single preset file, naming
+            the field that breaks the preset's rules.
+    """
+    path = Path(path)
+    data = _read_bytes(path)
+    try:
+        obj = parse_json(data)
+    except BadContent:
+        return parse_settings(data, path.name)      # refused with the settings file's own message
+    if isinstance(obj, dict) and "format" not in obj and "name" in obj:
+        try:
+            return SettingsDocument((Preset.from_dict(obj),))
+        except PresetError as exc:
+            raise LibraryError(f"{path.name} is refused: it is a preset file, but {exc}.") from None
+    return _parse_object(obj, path.name)
+
+
 def parse_settings(data: bytes, source: str = "the settings file") -> SettingsDocument:
     """Check the bytes of a settings file; ``source`` names it in messages.
 
