@@ -52,7 +52,8 @@ def window(qtbot, tiny_loader, tmp_path):
     from samplewright.qt.main_window import MainWindow
 
     win = MainWindow(model_loader=tiny_loader, library_dir=tmp_path / "library", config_dir=tmp_path / "config")
-    qtbot.addWidget(win)
+    # pytest-qt closes the window before this fixture's teardown: edits left open are then discarded.
+    qtbot.addWidget(win, before_close_func=discard_edits)
     win.resize(1400, 900)
     win.show()
     qtbot.waitUntil(lambda: win.model_info is not None, timeout=20000)
@@ -64,5 +65,22 @@ def window(qtbot, tiny_loader, tmp_path):
         win.last_error = errors[-1]
     win.show_error = capture
     win.errors = errors
+    # Questions about unsaved edits are answered from ``win.answers``; an unexpected one fails the test.
+    win.questions, win.answers = [], []
+
+    def answer(name, problem):
+        win.questions.append((name, problem))
+        assert win.answers, f"unexpected question about unsaved edits to '{name}'"
+        return win.answers.pop(0)
+    win.ask_unsaved = answer
+    # A failed save's offer to write a copy is recorded; ``win.copy_wanted`` is the answer.
+    win.offered, win.copy_wanted = [], False
+    win.offer_copy = lambda title, text: win.offered.append(text) or win.copy_wanted
     yield win
+    discard_edits(win)
     win.close()
+
+
+def discard_edits(win):
+    """Answer "discard" to the closing window's question about unsaved edits."""
+    win.ask_unsaved = lambda name, problem: "discard"

@@ -2,97 +2,25 @@
 
 ``QtLibraryList`` shows a :class:`~samplewright.core.library.PresetLibrary` and
 follows its ``added``/``changed``/``removed`` events. New, duplicate, rename
-and delete go through a ``QUndoStack`` so Ctrl+Z takes them back (a delete
-is undone by restoring the preset from the library's trash).
+and delete go through a ``QUndoStack`` (the commands are in
+``library_commands.py``) so Ctrl+Z takes them back (a delete is undone by
+restoring the preset from the library's trash).
 """
 from __future__ import annotations
 
 from typing import Callable, Optional
 
 from PySide6.QtCore import Qt, Signal
-from PySide6.QtGui import QUndoCommand, QUndoStack
-from PySide6.QtWidgets import (QCheckBox, QComboBox, QHBoxLayout, QHeaderView, QLineEdit, QToolButton,
+from PySide6.QtGui import QUndoStack
+from PySide6.QtWidgets import (QCheckBox, QComboBox, QHBoxLayout, QHeaderView, QLineEdit, QMenu, QToolButton,
                                QTreeWidget, QTreeWidgetItem, QVBoxLayout, QWidget)
 
-from ..core.errors import SamplewrightError
 from ..core.presets import Preset
+from .library_commands import AddPresetCommand, DeletePresetCommand, RenamePresetCommand
 
 MAX_CHOSEN = 6
 ALL_TAGS = "All tags"
 STAR, NO_STAR = "★", "☆"
-
-
-class _LibraryCommand(QUndoCommand):
-    """An undoable library change; failures go to ``report`` instead of raising inside Qt."""
-
-    def __init__(self, library, text: str, report: Callable[[str], None]):
-        super().__init__(text)
-        self.library = library
-        self.report = report
-
-    def _safely(self, action: Callable[[], None]) -> None:
-        try:
-            action()
-        except SamplewrightError as error:
-            self.setObsolete(True)
-            self.report(str(error))
-
-
-class AddPresetCommand(_LibraryCommand):
-    """Add a preset; undo moves it to the trash, redo brings it back."""
-
-    def __init__(self, library, preset: Preset, report):
-        super().__init__(library, f"add '{preset.name}'", report)
-        self.preset = preset
-        self.record_id: Optional[str] = None
-
-    def redo(self):
-        def act():
-            record = (self.library.add(self.preset) if self.record_id is None
-                      else self.library.restore(self.record_id))
-            self.record_id = record.id
-        self._safely(act)
-
-    def undo(self):
-        self._safely(lambda: self.library.delete(self.record_id))
-
-
-class DeletePresetCommand(_LibraryCommand):
-    """Move a preset to the library's trash; undo restores it."""
-
-    def __init__(self, library, record_id: str, report):
-        super().__init__(library, f"delete '{library.get(record_id).name}'", report)
-        self.record_id = record_id
-
-    def redo(self):
-        self._safely(lambda: self.library.delete(self.record_id))
-
-    def undo(self):
-        def act():
-            self.record_id = self.library.restore(self.record_id).id
-        self._safely(act)
-
-
-class RenamePresetCommand(_LibraryCommand):
-    """Give a preset a new name."""
-
-    def __init__(self, library, record_id: str, new_name: str, report):
-        self.old_name = library.get(record_id).name
-        super().__init__(library, f"rename '{self.old_name}' to '{new_name}'", report)
-        self.record_id = record_id
-        self.new_name = new_name
-
-    def _rename(self, name: str) -> None:
-        def act():
-            record = self.library.get(self.record_id)
-            self.library.save(record.edited(record.preset.replace(name=name)))
-        self._safely(act)
-
-    def redo(self):
-        self._rename(self.new_name)
-
-    def undo(self):
-        self._rename(self.old_name)
 
 
 class QtLibraryList(QWidget):
@@ -111,6 +39,8 @@ class QtLibraryList(QWidget):
 
     current_changed = Signal(object)
     chosen_changed = Signal(list)
+    #: True while :meth:`refresh` announces the current preset (not a choice by the user).
+    refreshing = False
 
     def __init__(self, library, favourites, undo_stack: QUndoStack, report: Callable[[str], None],
                  parent: Optional[QWidget] = None):
@@ -170,8 +100,14 @@ class QtLibraryList(QWidget):
 
     # -- showing ------------------------------------------------------------------
     def refresh(self) -> None:
-        """Rebuild the rows from the library, keeping the current preset and the ticks."""
+        """Rebuild the rows from the library, keeping the current preset and the ticks.
+
+        When the current preset is gone, its neighbour becomes current; the
+        ``current_changed`` this emits comes with :attr:`refreshing` set, so a
+        listener can tell it from the user's own choice.
+        """
         current = self.current_id()
+        current_row = self.tree.indexOfTopLevelItem(self.tree.currentItem()) if current else -1
         ids = {r.id for r in self.library.records()}
         before = list(self.chosen)
         self.chosen = [i for i in self.chosen if i in ids]
@@ -190,13 +126,20 @@ class QtLibraryList(QWidget):
             self.tree.addTopLevelItem(item)
             if record.id == current:
                 self.tree.setCurrentItem(item)
+        if self.tree.currentItem() is None and current_row >= 0 and self.tree.topLevelItemCount():
+            # Choose the neighbour now: Qt would otherwise pick the first row later, unannounced.
+            self.tree.setCurrentItem(self.tree.topLevelItem(min(current_row, self.tree.topLevelItemCount() - 1)))
         self.tree.blockSignals(False)
         self._refresh_tags()
         self._apply_filter()
         if self.chosen != before:
             self.chosen_changed.emit(list(self.chosen))
         # Re-announce the current preset: its content may have changed even when its id did not.
-        self.current_changed.emit(self.current_id())
+        self.refreshing = True
+        try:
+            self.current_changed.emit(self.current_id())
+        finally:
+            self.refreshing = False
 
     def _refresh_tags(self) -> None:
         tags = sorted({t for r in self.library.records() for t in r.preset.tags}, key=str.casefold)
@@ -274,11 +217,28 @@ class QtLibraryList(QWidget):
         item = self.tree.currentItem()
         return preset_id(item) if item is not None else None
 
-    def select(self, record_id: str) -> None:
-        """Highlight the preset with this id."""
-        for item in self._items():
-            if preset_id(item) == record_id:
-                self.tree.setCurrentItem(item)
+    def select(self, record_id: str, quiet: bool = False) -> None:
+        """Highlight the preset with this id (``quiet``: without emitting ``current_changed``)."""
+        item = next((i for i in self._items() if preset_id(i) == record_id), None)
+        if item is not None:     # (a listener may rebuild the rows: touch no other item after this)
+            self.tree.blockSignals(quiet)
+            self.tree.setCurrentItem(item)
+            self.tree.blockSignals(False)
+
+    def set_context_actions(self, actions: list) -> None:
+        """Offer ``actions`` (None for a separator) in the list's right-click menu."""
+        self._context_actions = list(actions)
+        self.tree.setContextMenuPolicy(Qt.CustomContextMenu)
+        self.tree.customContextMenuRequested.connect(self._show_context_menu)
+
+    def _show_context_menu(self, pos) -> None:
+        item = self.tree.itemAt(pos)
+        if item is not None and item is not self.tree.currentItem():
+            return      # the right-click did not move the highlight here (the user kept editing)
+        menu = QMenu(self)
+        for action in self._context_actions:
+            menu.addSeparator() if action is None else menu.addAction(action)
+        menu.exec(self.tree.viewport().mapToGlobal(pos))
 
     def push_add(self, preset: Preset) -> Optional[str]:
         """Add ``preset`` undoably and highlight it; returns its id (None on failure)."""

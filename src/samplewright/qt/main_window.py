@@ -22,6 +22,7 @@ from ..core.session import AuditionSession
 from ..core.user_state import UserState, default_config_dir
 from .audition_actions import AuditionActions
 from .audition_view import QtAuditionGrid
+from .library_actions import LibraryActions
 from .library_panel import QtLibraryList
 from .model_actions import ModelActions
 from .passage_panel import QtPassagePanel
@@ -50,7 +51,7 @@ def _default_metrics(samples):
     return preset_metrics(samples)
 
 
-class MainWindow(AuditionActions, PresetActions, ModelActions, QMainWindow):
+class MainWindow(AuditionActions, PresetActions, LibraryActions, ModelActions, QMainWindow):
     """The Samplewright workbench.
 
     Args:
@@ -80,6 +81,7 @@ class MainWindow(AuditionActions, PresetActions, ModelActions, QMainWindow):
                               _default_metrics)
         self.engine = EngineThread(worker, self)
         self._build_views()
+        self._init_library_watch()
         self._build_actions()
         self._build_menus()
         self._connect()
@@ -180,7 +182,8 @@ class MainWindow(AuditionActions, PresetActions, ModelActions, QMainWindow):
         a = self._action
         self.actions = {
             "open": a("Open passage…", self.open_passage_dialog, QKeySequence.Open, "Open a .txt or .md passage"),
-            "import": a("Import settings file…", self.import_settings, "Ctrl+I", "Bring presets from a settings file"),
+            "import": a("Import settings file…", self.import_settings, "Ctrl+I",
+                        "Bring presets from a settings file, or a preset saved as a copy"),
             "export": a("Export chosen presets…", self.export_chosen, "Ctrl+E",
                         "Write the ticked presets to a settings file to share"),
             "quit": a("Quit", self.close, QKeySequence.Quit),
@@ -194,6 +197,14 @@ class MainWindow(AuditionActions, PresetActions, ModelActions, QMainWindow):
             "favourite": a("Favourite ★", self.library_list.toggle_favourite, "Ctrl+B",
                            "Mark or unmark the highlighted preset as a favourite"),
             "save": a("Save preset", self.editor.save, QKeySequence.Save, "Save the edited preset to the library"),
+            "save_copy": a("Save a copy as file…", self.save_copy_as_file, QKeySequence.SaveAs,
+                           "Write the edited preset, unsaved edits included, to a file of your choice"),
+            "history": a("History…", self.show_history, "Ctrl+H",
+                         "Earlier revisions of the highlighted preset, what changed, and a way back"),
+            "compare": a("Compare with…", self.compare_presets, "Ctrl+Shift+D",
+                         "Show the highlighted preset and another one side by side, field by field"),
+            "trash": a("Deleted presets…", self.show_trash, "Ctrl+Shift+T",
+                       "List the presets deleted from this library and restore one"),
             "rescan": a("Reload library", self.rescan_library, "F5", "Pick up presets others changed"),
             "generate": a("Generate all", self.generate_all, "Ctrl+Return", "Write samples for every ticked preset"),
             "regenerate": a("Regenerate this preset", self.regenerate_current, "Ctrl+R",
@@ -220,13 +231,16 @@ class MainWindow(AuditionActions, PresetActions, ModelActions, QMainWindow):
         self.stop_button.setToolTip(self.actions["stop"].toolTip())
         for key in ("new", "duplicate", "rename", "delete"):
             self.library_list.add_button(self.actions[key]).setText(self.actions[key].text().split()[0])
+        self.library_list.set_context_actions([self.actions[k] if k else None for k in (
+            "history", "compare", None, "duplicate", "rename", "delete", "favourite")])
 
     def _build_menus(self) -> None:
         bar = self.menuBar()
         menus = {
             "&File": ["open", "import", "export", None, "quit"],
             "&Edit": [self.undo_action, self.redo_action, None, "copy"],
-            "&Presets": ["new", "duplicate", "rename", "delete", "favourite", "save", None, "rescan"],
+            "&Presets": ["new", "duplicate", "rename", "delete", "favourite", None, "save", "save_copy", None,
+                         "history", "compare", "trash", None, "rescan"],
             "&Audition": ["generate", "regenerate", "stop", None, "prev_step", "next_step"],
             "&Model": ["model_folder", "model_gguf", "model_default"],
             "&Help": ["legend"],
@@ -244,6 +258,7 @@ class MainWindow(AuditionActions, PresetActions, ModelActions, QMainWindow):
         self.stop_button.clicked.connect(self.stop_generation)
         self.library_list.current_changed.connect(self._on_current_preset_changed)
         self.editor.save_requested.connect(self.save_edited_preset)
+        self.editor.revert_button.clicked.connect(self._on_reverted)    # runs after the editor's own revert
         self.passage.passage_settled.connect(self.count_passage)
         self.passage.open_requested.connect(self.open_passage)
         worker = self.engine.worker
@@ -252,19 +267,6 @@ class MainWindow(AuditionActions, PresetActions, ModelActions, QMainWindow):
         worker.failed.connect(self._on_job_failed)
         worker.passage_counted.connect(self._on_passage_counted)
         self._connect_audition()
-
-    # -- favourites (the library list's view of UserState) -------------------------------
-    def is_favourite(self, record_id: str) -> bool:
-        """Whether ``record_id`` is one of this user's favourites."""
-        return self.user_state.is_favourite(record_id)
-
-    def set_favourite(self, record_id: str, on: bool) -> None:
-        """Mark or unmark a favourite and keep it in the user's state file."""
-        self.user_state.set_favourite(record_id, on)
-        try:
-            self.user_state.save()
-        except Exception as error:  # LibraryError: the config folder is not writable
-            self.show_error("Favourite not kept", str(error))
 
     # -- messages and questions (tests replace these) -------------------------------------
     def show_error(self, message: str, detail: Optional[str] = None) -> None:
@@ -357,12 +359,16 @@ class MainWindow(AuditionActions, PresetActions, ModelActions, QMainWindow):
             self.passage.set_text(next(iter(examples.values())))
 
     def closeEvent(self, event) -> None:
-        """Cancel any run, stop the engine thread and keep the window's state."""
+        """Ask about unsaved edits, then cancel any run, stop the engine thread and keep the window's state."""
         if not self._closed:
+            if not self.settle_draft():
+                event.ignore()
+                return
             self._closed = True
             self.save_state()
             self.session.abandon()
             self.engine.shutdown()
+            self.library_watch.stop()
             self.library_list.cleanup()
             self.grid.cleanup()
         super().closeEvent(event)

@@ -1,25 +1,37 @@
 """The window's preset behaviour: add, duplicate, rename, delete (undoable),
-save edits (with the library's conflict check), export and import."""
+save edits (with the library's conflict check, and a copy as a file when the
+library cannot be written), never drop unsaved edits unasked, export and import."""
 from __future__ import annotations
 
 from pathlib import Path
 from typing import Optional
 
+from PySide6.QtWidgets import QMessageBox
+
 from ..core.errors import SamplewrightError
 from ..core.importing import apply_import, preview_import
 from ..core.library import SaveConflict
 from ..core.presets import Preset
-from ..core.settings_file import export_settings, read_settings
+from ..core.records import PresetRecord
+from ..core.settings_file import export_preset_file, export_settings, read_importable
 from .dialogs import ImportPreviewDialog, ask_conflict_choice
 
 SETTINGS_FILTER = "Samplewright settings (*.json);;All files (*)"
+PRESET_FILTER = "Preset file (*.json);;All files (*)"
 
 
 class PresetActions:
-    """Mixed into :class:`~samplewright.qt.main_window.MainWindow`."""
+    """Mixed into :class:`~samplewright.qt.main_window.MainWindow`.
 
-    _edited_id: Optional[str] = None
+    The editor keeps the library record it was loaded from (``_edited_record``),
+    so a save always states the revision the edits started from: a colleague's
+    save in between is then a conflict to settle, never silently overwritten.
+    Unsaved edits are never dropped without asking (:meth:`settle_draft`).
+    """
+
+    _edited_record: Optional[PresetRecord] = None
     _saving = False       # our own save is under way: its change events are expected
+    _asking = False       # a question about unsaved edits is open
 
     def _current_record(self):
         record_id = self.library_list.current_id()
@@ -32,23 +44,103 @@ class PresetActions:
             self.show_error(str(error))
             return None
 
+    def _record_or_none(self, record_id: Optional[str]) -> Optional[PresetRecord]:
+        return next((r for r in self.library.records() if r.id == record_id), None) if record_id else None
+
+    def _load_into_editor(self, record: Optional[PresetRecord]) -> None:
+        self._edited_record = record
+        self.editor.set_preset(record.preset if record else None)
+
     def _on_current_preset_changed(self, record_id: Optional[str]) -> None:
+        if self._saving or self._asking:
+            return
+        loaded = self._edited_record
+        record = self._record_or_none(record_id)
+        if loaded is not None and record_id == loaded.id:
+            self._follow_library(loaded, record)
+            return
+        if loaded is not None and self.editor.is_dirty():
+            if self.library_list.refreshing:
+                # The list moved by itself: the edited preset left the library. Keep the edits.
+                self.editor.set_notice(f"'{loaded.name}' is no longer in the library (deleted by someone "
+                                       "else?). Your edits are kept here: save them to put it back, or "
+                                       "save a copy as a file (Ctrl+Shift+S).")
+                return
+            if not self.settle_draft():
+                self.library_list.select(loaded.id, quiet=True)
+                return
+            record = self._record_or_none(record_id)
+        self._load_into_editor(record)
+
+    def _follow_library(self, loaded: PresetRecord, record: Optional[PresetRecord]) -> None:
+        """The edited preset's record may have changed in the library (a rename, a colleague's save)."""
+        if record is None or record == loaded:
+            return
+        if not self.editor.is_dirty():
+            self._load_into_editor(record)
+            return
+        who = record.modified_by or "someone"
+        self.editor.set_notice(f"'{record.name}' was saved by {who} (revision {record.revision}) while you were "
+                               "editing it. Saving your edits will ask which version to keep.")
+
+    def _on_reverted(self) -> None:
+        """After Revert, show the library's newest revision (a colleague may have saved meanwhile)."""
+        loaded = self._edited_record
+        latest = self._record_or_none(loaded.id) if loaded else None
+        if latest is not None and latest != loaded:
+            self._load_into_editor(latest)
+
+    def settle_draft(self) -> bool:
+        """Ask what to do with unsaved edits before they would be lost.
+
+        Returns:
+            True when it is fine to go on (nothing unsaved, saved, or discarded),
+            False when the user cancelled or the save did not happen.
+        """
+        loaded = self._edited_record
+        if loaded is None or not self.editor.is_dirty():
+            return True
+        problem = self.editor.draft_problem()
+        self._asking = True
         try:
-            record = self.library.get(record_id) if record_id else None
-        except SamplewrightError:
-            record = None
-        preset = record.preset if record else None
-        if preset == self.editor.original or self._saving:
-            return
-        if self.editor.is_dirty() and record is not None and self._edited_id == record_id:
-            self.statusBar().showMessage(f"'{record.name}' changed in the library while you were editing it; "
-                                         "saving will ask what to keep.", 8000)
-            return
-        self._edited_id = record_id
-        self.editor.set_preset(preset)
+            answer = self.ask_unsaved(loaded.name, problem)
+        finally:
+            self._asking = False
+        if answer == "discard":
+            self._load_into_editor(self._record_or_none(loaded.id) or loaded)
+            return True
+        if answer != "save" or problem is not None:
+            return False
+        done, saved = self._store_draft(self.editor.edited())
+        if done:
+            same = saved if saved is not None and saved.id == loaded.id else self._record_or_none(loaded.id)
+            self._load_into_editor(same)
+        return done
+
+    def ask_unsaved(self, name: str, problem: Optional[str]) -> str:
+        """Ask about unsaved edits: "save", "discard" or "cancel" (tests replace this).
+
+        Args:
+            name: the edited preset's name.
+            problem: why the edits cannot be saved as they are, or None.
+        """
+        box = QMessageBox(QMessageBox.Question, "Unsaved changes", f"'{name}' has changes that are not saved.",
+                          parent=self)
+        if problem is None:
+            box.setInformativeText("Save them to the library, discard them, or cancel and keep editing.")
+            box.setStandardButtons(QMessageBox.Save | QMessageBox.Discard | QMessageBox.Cancel)
+            box.setDefaultButton(QMessageBox.Save)
+        else:
+            box.setInformativeText(f"They cannot be saved as they are: {problem}\n\nDiscard them, or cancel "
+                                   "and correct the field.")
+            box.setStandardButtons(QMessageBox.Discard | QMessageBox.Cancel)
+            box.setDefaultButton(QMessageBox.Cancel)
+        return {QMessageBox.Save: "save", QMessageBox.Discard: "discard"}.get(box.exec(), "cancel")
 
     def new_preset(self) -> None:
         """Add a preset with neutral settings, named so it is unique."""
+        if not self.settle_draft():
+            return
         taken = {r.name for r in self.library.records()}
         name = next(n for n in (f"New preset {i}" if i > 1 else "New preset" for i in range(1, 10_000))
                     if n not in taken)
@@ -56,14 +148,14 @@ class PresetActions:
 
     def duplicate_preset(self) -> None:
         """Add a copy of the highlighted preset."""
-        record = self._current_record()
+        record = self.settle_draft() and self._current_record()
         if record:
             name = self.library.unused_name(record.name, "copy")
             self.library_list.push_add(record.preset.replace(name=name))
 
     def rename_preset(self) -> None:
         """Ask for a new name for the highlighted preset."""
-        record = self._current_record()
+        record = self.settle_draft() and self._current_record()
         if not record:
             return
         name = self.ask_text("Rename preset", "New name:", record.name)
@@ -78,50 +170,92 @@ class PresetActions:
 
     def delete_preset(self) -> None:
         """Move the highlighted preset to the trash (Ctrl+Z brings it back)."""
-        record = self._current_record()
+        record = self.settle_draft() and self._current_record()
         if record:
             self.library_list.push_delete(record.id)
             self.statusBar().showMessage(f"Deleted '{record.name}'. Undo with Ctrl+Z.", 6000)
 
-    def rescan_library(self) -> None:
-        """Re-read the library folder to pick up colleagues' changes."""
-        try:
-            report = self.library.rescan()
-        except SamplewrightError as error:
-            self.show_error("The library could not be read", str(error))
-            return
-        self.statusBar().showMessage(f"Library reloaded: {len(report.added)} new, {len(report.changed)} changed, "
-                                     f"{len(report.removed)} removed.", 6000)
-
     def save_edited_preset(self, preset: Preset) -> None:
-        """Save the editor's preset as the next revision of its library record."""
-        record = self._current_record()
-        if record is None:
+        """Save the editor's preset as the next revision of the record it was loaded from."""
+        if self._edited_record is None:
             return
+        done, saved = self._store_draft(preset)
+        if not done:
+            return
+        self._load_into_editor(saved)
+        if saved is None:
+            self.statusBar().showMessage("Kept the library's version: the preset stays deleted.", 8000)
+            return
+        self.library_list.select(saved.id)
+        self.statusBar().showMessage(f"Saved '{saved.name}' (revision {saved.revision}).", 5000)
+
+    def _store_draft(self, preset: Preset) -> tuple[bool, Optional[PresetRecord]]:
+        """Write the edited ``preset`` over the loaded record.
+
+        Returns:
+            (done, record): done is False when nothing was written and the edits
+            must stay in the editor; record is what the library now holds for
+            them (None when the user took a colleague's deletion).
+        """
+        loaded = self._edited_record
         self._saving = True
         try:
-            saved = self.library.save(record.edited(preset))
+            return True, self.library.save(loaded.edited(preset))
         except SaveConflict as conflict:
-            saved = self._settle_conflict(conflict)
+            return self._settle_conflict(conflict)
         except SamplewrightError as error:
-            self.show_error("The preset was not saved", str(error))
-            return
+            self._save_failed(loaded.name, str(error))
+            return False, None
         finally:
             self._saving = False
-        if saved is not None:
-            self.library_list.select(saved.id)
-            self.editor.set_preset(saved.preset)
-            self.statusBar().showMessage(f"Saved '{saved.name}' (revision {saved.revision}).", 5000)
 
-    def _settle_conflict(self, conflict: SaveConflict):
+    def _settle_conflict(self, conflict: SaveConflict) -> tuple[bool, Optional[PresetRecord]]:
         choice = ask_conflict_choice(self, str(conflict))
         if choice is None:
-            return None
+            return False, None
         try:
-            return self.library.resolve_conflict(conflict, choice)
+            return True, self.library.resolve_conflict(conflict, choice)
         except SamplewrightError as error:
-            self.show_error("The preset was not saved", str(error))
-            return None
+            self._save_failed(conflict.mine.name, str(error))
+            return False, None
+
+    def _save_failed(self, name: str, message: str) -> None:
+        self.last_error = message
+        text = (f"{message}\n\nYour edits to '{name}' are still in the editor. You can save a copy as a "
+                "file now and bring it into the library later with File ▸ Import.")
+        if self.offer_copy("The preset was not saved", text):
+            self.save_copy_as_file()
+
+    def offer_copy(self, title: str, text: str) -> bool:
+        """Show why a save failed; True when the user wants to save a copy as a file (tests replace this)."""
+        box = QMessageBox(QMessageBox.Warning, title, text, parent=self)
+        copy = box.addButton("Save a copy as file…", QMessageBox.AcceptRole)
+        box.addButton("Not now", QMessageBox.RejectRole)
+        box.setDefaultButton(copy)
+        box.exec()
+        return box.clickedButton() is copy
+
+    def save_copy_as_file(self) -> None:
+        """Write the preset being edited, edits included, to a preset file of the user's choosing."""
+        if self._edited_record is None:
+            self.statusBar().showMessage("Choose a preset to edit first.", 5000)
+            return
+        problem = self.editor.draft_problem()
+        if problem is not None:
+            self.show_error("The copy was not written", f"{problem}. Correct the field first; a copy must be "
+                            "a valid preset.")
+            return
+        preset = self.editor.edited()
+        path = self.ask_save_path("Save a copy of the preset as a file", PRESET_FILTER, f"{preset.name}.json")
+        if not path:
+            return
+        try:
+            export_preset_file(preset, path)
+        except SamplewrightError as error:
+            self.show_error("The copy was not written", str(error))
+            return
+        self.statusBar().showMessage(f"Saved a copy of '{preset.name}' to {path}. Your edits are still open.",
+                                     10000)
 
     def export_chosen(self) -> None:
         """Write the ticked presets (or the highlighted one) to a settings file."""
@@ -141,12 +275,13 @@ class PresetActions:
         self.statusBar().showMessage(f"Exported {len(presets)} preset(s) to {path}.", 8000)
 
     def import_settings(self, path: Optional[str] = None) -> None:
-        """Read a settings file, show what importing would do, and import on confirmation."""
+        """Read a settings file (or a preset file saved as a copy), show what importing would do,
+        and import on confirmation."""
         path = path or self.ask_open_path("Import a settings file", SETTINGS_FILTER)
         if not path:
             return
         try:
-            plan = preview_import(read_settings(path), self.library)
+            plan = preview_import(read_importable(path), self.library)
         except SamplewrightError as error:
             self.show_error("The settings file cannot be imported", str(error))
             return

@@ -21,6 +21,7 @@ NUMBER_FIELDS = ("temperature", "top_k", "top_p", "min_p", "typical_p", "repetit
 WHOLE_NUMBERS = ("top_k", "no_repeat_ngram_size", "max_new_tokens")
 ERROR_STYLE = "color: #B00020;"
 HELP_STYLE = "color: #505050;"
+NOTICE_STYLE = "#editorNotice { background: #FFF4CC; border: 1px solid #E69F00; padding: 3px; }"
 
 
 def parse_field(field: str, text: str) -> Any:
@@ -80,6 +81,12 @@ class QtPresetEditor(QWidget):
     def _build(self) -> None:
         self.title = QLabel()
         self.title.setWordWrap(True)
+        self.notice = QLabel()
+        self.notice.setWordWrap(True)
+        self.notice.setObjectName("editorNotice")
+        self.notice.setAccessibleName("Editor notice")
+        self.notice.setStyleSheet(NOTICE_STYLE)
+        self.notice.hide()
         form_host = QWidget()
         self.form = QFormLayout(form_host)
         self.form.setRowWrapPolicy(QFormLayout.WrapAllRows)
@@ -111,6 +118,7 @@ class QtPresetEditor(QWidget):
         layout = QVBoxLayout(self)
         layout.setContentsMargins(0, 0, 0, 0)
         layout.addWidget(self.title)
+        layout.addWidget(self.notice)
         layout.addWidget(scroll, 1)
         layout.addLayout(buttons)
 
@@ -195,6 +203,7 @@ class QtPresetEditor(QWidget):
         self.order_list.blockSignals(False)
         self.title.setText(f"<b>Editing:</b> {preset.name}" if preset else
                            "<i>Choose a preset in the list to edit it.</i>")
+        self.set_notice("")
         self.setEnabled(preset is not None)
         self._update_state()
 
@@ -250,6 +259,21 @@ class QtPresetEditor(QWidget):
             return self.original is not None and self.edited() != self.original
         except PresetError:
             return True
+
+    def draft_problem(self) -> Optional[str]:
+        """Why the typed values cannot be saved, or None when they can."""
+        if self.errors:
+            return next(iter(self.errors.values()))
+        try:
+            self.edited()
+        except PresetError as error:
+            return str(error)
+        return None
+
+    def set_notice(self, text: str) -> None:
+        """Show a note above the fields (e.g. that the library changed meanwhile); "" hides it."""
+        self.notice.setText(text)
+        self.notice.setVisible(bool(text))
 
     def _update_state(self) -> None:
         valid = not self.errors
