@@ -28,6 +28,7 @@ from typing import Iterable, Optional, Sequence
 
 import numpy as np
 
+from . import inspection
 from .results import STOP_REASONS, Sample
 
 METRIC_KEYS = ("distinct_1", "distinct_2", "distinct_3", "self_bleu", "seq_rep_4",
@@ -35,14 +36,13 @@ METRIC_KEYS = ("distinct_1", "distinct_2", "distinct_3", "self_bleu", "seq_rep_4
 
 
 def entropy_bits(probs) -> float:
-    """Shannon entropy in bits of a probability vector (normalised first; 0·log 0 = 0)."""
+    """Shannon entropy in bits of one probability vector, normalised first
+    (as ``scipy.stats.entropy`` does); 0·log 0 = 0."""
     p = np.asarray(probs, dtype=np.float64)
     total = p.sum()
     if total <= 0:
         raise ValueError("entropy needs a vector with positive mass")
-    p = p / total
-    p = p[p > 0]  # after normalising: a subnormal input can underflow to 0
-    return float(-(p * np.log2(p)).sum())
+    return float(inspection.entropy_bits(p / total))
 
 
 def _ngrams(items: Sequence, n: int) -> list[tuple]:
