@@ -256,6 +256,14 @@ class QtLibraryList(QWidget):
         """Rename a preset undoably."""
         self.undo_stack.push(RenamePresetCommand(self.library, record_id, name, self.report))
 
+    def set_library(self, library) -> None:
+        """Show another library (ticks of presets not in it are dropped)."""
+        self.cleanup()
+        self.library = library
+        for emitter in (library.added, library.changed, library.removed):
+            emitter.connect(self._on_library_changed)
+        self.refresh()
+
     def cleanup(self) -> None:
         """Stop following the library."""
         for emitter in (self.library.added, self.library.changed, self.library.removed):

@@ -112,6 +112,15 @@ class LibraryWatch(QObject):
         """The folder and files being watched (for tests and diagnostics)."""
         return sorted(self._watcher.files() + self._watcher.directories())
 
+    def set_library(self, library) -> None:
+        """Follow another library from now on (the previous folder is no longer watched)."""
+        self._settle.stop()
+        self.library = library
+        self.problem = None
+        self._periodic.setInterval(self._check_ms)
+        self._rewatch()
+        self._periodic.start()
+
     def stop(self) -> None:
         """Stop watching (the window is closing)."""
         self._settle.stop()

@@ -13,16 +13,16 @@ from typing import Callable, Optional
 
 from PySide6.QtCore import QSettings, Qt
 from PySide6.QtGui import QAction, QKeySequence, QUndoStack
-from PySide6.QtWidgets import (QCheckBox, QFileDialog, QHBoxLayout, QInputDialog, QLabel, QMainWindow,
+from PySide6.QtWidgets import (QCheckBox, QFileDialog, QHBoxLayout, QInputDialog, QLabel, QMainWindow, QMenu,
                                QMessageBox, QProgressBar, QPushButton, QSpinBox, QSplitter, QVBoxLayout,
                                QWidget)
 
-from ..core.library import PresetLibrary, default_library_dir
 from ..core.session import AuditionSession
 from ..core.user_state import UserState, default_config_dir
 from .audition_actions import AuditionActions
 from .audition_view import QtAuditionGrid
 from .library_actions import LibraryActions
+from .library_folder import LibraryFolderActions
 from .library_panel import QtLibraryList
 from .model_actions import ModelActions
 from .passage_panel import QtPassagePanel
@@ -51,12 +51,13 @@ def _default_metrics(samples):
     return preset_metrics(samples)
 
 
-class MainWindow(AuditionActions, PresetActions, LibraryActions, ModelActions, QMainWindow):
+class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderActions, ModelActions, QMainWindow):
     """The Samplewright workbench.
 
     Args:
         model_loader: ``model_loader(source, progress) -> LoadedModel``; default loads the real model.
-        library_dir: the preset library folder (default: the user's library).
+        library_dir: the preset library folder for this session (default: the one chosen last time,
+            else the user's own library).
         config_dir: where window settings and favourites are kept (default: the user config folder).
         engine_factory: ``engine_factory(loaded) -> Engine``.
         model_source: the model to load first (None = the default model, or the one used last time).
@@ -70,8 +71,8 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, ModelActions, Q
         self.setWindowTitle("Samplewright — preset audition workbench")
         self.config_dir = Path(config_dir) if config_dir else default_config_dir()
         self.settings = QSettings(str(self.config_dir / SETTINGS_FILE), QSettings.IniFormat)
-        self.library = PresetLibrary(library_dir or default_library_dir(), create=True)
         self.user_state = UserState(self.config_dir)
+        self.library = self._open_first_library(library_dir)
         self.undo_stack = QUndoStack(self)
         self.session = AuditionSession()
         self.model_info = None
@@ -87,6 +88,9 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, ModelActions, Q
         self._connect()
         self._init_audition_state()
         self.restore_state()
+        self._show_library_folder()
+        if self.library_problem:
+            self._show_library_notice(self.library_problem)
         if self.user_state.problem:
             self.statusBar().showMessage(self.user_state.problem, 8000)
         if load_on_start:
@@ -100,7 +104,7 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, ModelActions, Q
         self.grid = QtAuditionGrid(self.session)
         self.inspector = QtStepInspector()
         left = QSplitter(Qt.Vertical)
-        left.addWidget(_titled("Presets", self.library_list))
+        left.addWidget(self._library_box())
         left.addWidget(_titled("Edit preset", self.editor))
         left.setStretchFactor(1, 2)
         middle = QSplitter(Qt.Vertical)
@@ -186,6 +190,10 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, ModelActions, Q
                         "Bring presets from a settings file, or a preset saved as a copy"),
             "export": a("Export chosen presets…", self.export_chosen, "Ctrl+E",
                         "Write the ticked presets to a settings file to share"),
+            "library_folder": a("Use library folder…", self.choose_library_folder, "Ctrl+Shift+O",
+                                "Show the presets in another folder, for example your team's shared folder"),
+            "own_library": a("Back to my own library", self.use_own_library, None,
+                             "Show the presets in your own library folder again"),
             "quit": a("Quit", self.close, QKeySequence.Quit),
             "copy": a("Copy sample text", self.copy_current_sample, "Ctrl+Shift+C",
                       "Copy the text of the sample being inspected"),
@@ -237,7 +245,8 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, ModelActions, Q
     def _build_menus(self) -> None:
         bar = self.menuBar()
         menus = {
-            "&File": ["open", "import", "export", None, "quit"],
+            "&File": ["open", "import", "export", None, "library_folder", self._build_recent_menu(), "own_library",
+                      None, "quit"],
             "&Edit": [self.undo_action, self.redo_action, None, "copy"],
             "&Presets": ["new", "duplicate", "rename", "delete", "favourite", None, "save", "save_copy", None,
                          "history", "compare", "trash", None, "rescan"],
@@ -250,6 +259,8 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, ModelActions, Q
             for entry in entries:
                 if entry is None:
                     menu.addSeparator()
+                elif isinstance(entry, QMenu):
+                    menu.addMenu(entry)
                 else:
                     menu.addAction(self.actions[entry] if isinstance(entry, str) else entry)
 
