@@ -14,6 +14,7 @@ from PySide6.QtGui import QGuiApplication
 
 from ..core.results import AuditionRequest
 from ..core.session import SampleRef
+from .audition_view import DRAFT_MARK
 from .workers import StepQuery
 
 
@@ -25,6 +26,7 @@ class AuditionActions:
         self._run_session: Optional[int] = None       # the session's serial for it
         self._last_request: Optional[AuditionRequest] = None
         self._column_ids: list[str] = []
+        self._column_drafts: list[bool] = []          # written with the editor's unsaved draft
         self._inspected: Optional[tuple[int, int, int]] = None   # column, row, step
         self._step_serial: Optional[int] = None
         self._step_waiting: Optional[StepQuery] = None
@@ -55,41 +57,65 @@ class AuditionActions:
         if self.new_seed_box.isChecked():
             self.seed_spin.setValue(random.randrange(2**31))
         records = [self.library.get(i) for i in self.library_list.chosen]
-        request = AuditionRequest(self.passage.text(), [r.preset for r in records],
+        presets, self._column_drafts, notes = self._audition_presets(records)
+        request = AuditionRequest(self.passage.text(), presets,
                                   samples=self.samples_spin.value(), max_new_tokens=self.tokens_spin.value(),
                                   seed=self.seed_spin.value())
         self._column_ids = [r.id for r in records]
         self._last_request = request
         self._clear_inspection()
-        self._start(request, None)
+        self._start(request, None, notes)
 
     def regenerate_column(self, column: int) -> None:
         """Write one preset's samples again with the last run's passage, seed and sizes."""
         if self._last_request is None or self.running() or column >= len(self._column_ids):
             return
-        try:
-            preset = self.library.get(self._column_ids[column]).preset   # picks up a saved edit
-        except Exception:
-            preset = self.session.presets[column]
+        record = self._record_or_none(self._column_ids[column])   # picks up a saved edit, or the draft
+        if record is not None:
+            (preset,), (self._column_drafts[column],), notes = self._audition_presets([record])
+        else:
+            preset, notes = self.session.presets[column], []
         last = self._last_request
         request = AuditionRequest(last.passage, [preset], samples=last.samples,
                                   max_new_tokens=last.max_new_tokens, seed=last.seed)
         if self._inspected and self._inspected[0] == column:
             self._clear_inspection()
-        self._start(request, [column])
+        self._start(request, [column], notes)
+
+    def _audition_presets(self, records) -> tuple[list, list[bool], list[str]]:
+        """Each record's preset, or the editor's valid unsaved draft of it, so a value can be tried
+        before it is saved; returns the presets, which are drafts, and notes for the status bar."""
+        presets, drafts, notes = [], [], []
+        for record in records:
+            draft, problem = self.draft_of(record.id)
+            presets.append(draft or record.preset)
+            drafts.append(draft is not None)
+            if draft is not None:
+                notes.append(f"'{draft.name}' uses your unsaved edits.")
+            elif problem is not None:
+                notes.append(f"'{record.name}' uses its saved version: an edit is not valid ({problem}).")
+        return presets, drafts, notes
+
+    def _column_name(self, column: int) -> str:
+        """A column's preset name as the step view shows it, marked when it was an unsaved draft."""
+        name = self.session.presets[column].name
+        drafted = column < len(self._column_drafts) and self._column_drafts[column]
+        return f"{name} {DRAFT_MARK}" if drafted else name
 
     def regenerate_current(self) -> None:
         """Regenerate the preset whose sample is being inspected (else the first column)."""
         self.regenerate_column(self._inspected[0] if self._inspected else 0)
 
-    def _start(self, request: AuditionRequest, columns) -> None:
+    def _start(self, request: AuditionRequest, columns, notes: list[str]) -> None:
         if self.running():
             self.engine.cancel(self._run_serial)
         self._run_session = self.session.begin(request, columns)
+        for column in columns or range(len(request.presets)):
+            self.grid.mark_draft(column, self._column_drafts[column])
         self._run_serial = self.engine.run_audition(request)
         self.progress.setRange(0, 1)
         self.progress.setValue(0)
-        self.statusBar().showMessage("Generating…")
+        self.statusBar().showMessage(" ".join(["Generating…"] + notes))
         self._update_buttons()
 
     def stop_generation(self) -> None:
@@ -165,7 +191,7 @@ class AuditionActions:
         step = max(0, min(step, len(sample.tokens) - 1))
         self._inspected = (column, row, step)
         self.grid.mark(column, row, step)
-        self.inspector.set_sample(column, self.session.presets[column].name, row, len(sample.tokens), step)
+        self.inspector.set_sample(column, self._column_name(column), row, len(sample.tokens), step)
         query = StepQuery(self.session.passage, list(self.session.presets),
                           tuple(sample.token_ids[:step]), sample.tokens[step].token_id,
                           top=self.inspector.plot.top_n)
@@ -187,7 +213,8 @@ class AuditionActions:
             return
         self._step_serial = None
         if self._step_waiting is None:
-            self.inspector.plot.show_step(view, [p.name for p in self.session.presets], self._drawn_text())
+            names = [self._column_name(c) for c in range(len(self.session.presets))]
+            self.inspector.plot.show_step(view, names, self._drawn_text())
         self._send_waiting_step()
 
     def _drawn_text(self) -> Optional[str]:

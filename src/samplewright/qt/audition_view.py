@@ -9,6 +9,7 @@ step.
 from __future__ import annotations
 
 import bisect
+import html
 from typing import Optional
 
 from PySide6.QtCore import QPoint, Qt, Signal
@@ -20,6 +21,8 @@ from ..core.session import AuditionSession
 from . import palette
 
 COLUMN_WIDTH = 212
+#: Beside a preset's name when its samples were written with the editor's unsaved edits.
+DRAFT_MARK = "(unsaved draft)"
 SAMPLE_LINES = 6
 
 METRIC_HELP = {
@@ -152,11 +155,12 @@ class ColumnHeader(QFrame):
     def __init__(self, column: int, name: str, parent: Optional[QWidget] = None):
         super().__init__(parent)
         colour = palette.preset_colour(column)
+        self.column, self.name, self.colour = column, name, colour
         self.setObjectName("columnHeader")
         self.setStyleSheet(f"#columnHeader {{ border-top: 5px solid {colour}; }}")
-        self.title = QLabel(f"<span style='color:{colour}'>■</span> <b>{column + 1} · {name}</b>")
-        self.title.setToolTip(name)
+        self.title = QLabel()
         self.title.setWordWrap(True)
+        self.set_draft(False)
         self.regenerate = QToolButton()
         self.regenerate.setText("↻")
         self.regenerate.setToolTip(f"Write this preset's samples again ({name}); the other columns stay")
@@ -173,6 +177,15 @@ class ColumnHeader(QFrame):
         layout.setContentsMargins(2, 4, 2, 2)
         layout.addLayout(top)
         layout.addWidget(self.metrics)
+
+    def set_draft(self, on: bool) -> None:
+        """Mark the column as written with the editor's unsaved edits of the preset, or not."""
+        self.draft = on
+        mark = f" <i>{DRAFT_MARK}</i>" if on else ""
+        self.title.setText(f"<span style='color:{self.colour}'>■</span> "
+                           f"<b>{self.column + 1} · {html.escape(self.name)}</b>{mark}")
+        self.title.setToolTip(f"{self.name}: written with your unsaved edits of this preset; save them in the "
+                              "editor to keep these values" if on else self.name)
 
 
 class QtAuditionGrid(QScrollArea):
@@ -223,7 +236,7 @@ class QtAuditionGrid(QScrollArea):
     def _on_started(self, serial: int) -> None:
         rows = self.session.sample_count()
         if len(self.headers) != len(self.session.presets) or (self.views and len(self.views[0]) != rows) \
-                or any(h.title.toolTip() != p.name for h, p in zip(self.headers, self.session.presets)):
+                or any(h.name != p.name for h, p in zip(self.headers, self.session.presets)):
             self._rebuild(rows)
         for column in self.session.columns:
             self.headers[column].metrics.setText(metrics_text(None))
@@ -283,6 +296,11 @@ class QtAuditionGrid(QScrollArea):
                     view.set_tokens(texts)
                 reason = sample.stop_reason or ("cancelled" if cancelled else "–")
                 self.footers[column][row].setText(f"{len(texts)} tokens · ended: {reason}")
+
+    def mark_draft(self, column: int, on: bool) -> None:
+        """Mark (or unmark) a column as written with an unsaved draft of its preset."""
+        if 0 <= column < len(self.headers):
+            self.headers[column].set_draft(on)
 
     def mark(self, column: int, row: int, step: Optional[int]) -> None:
         """Highlight one token; clears the highlight elsewhere."""

@@ -117,6 +117,20 @@ class PresetActions:
             self._load_into_editor(same)
         return done
 
+    def draft_of(self, record_id: str) -> tuple[Optional[Preset], Optional[str]]:
+        """The editor's unsaved edits of a preset, for trying them before saving.
+
+        Returns:
+            (draft, problem): the edited preset when the editor holds valid unsaved
+            edits of ``record_id`` (else None), and why edits of it cannot be used
+            (an invalid field), else None.
+        """
+        loaded = self._edited_record
+        if loaded is None or loaded.id != record_id or not self.editor.is_dirty():
+            return None, None
+        problem = self.editor.draft_problem()
+        return (None, problem) if problem is not None else (self.editor.edited(), None)
+
     def ask_unsaved(self, name: str, problem: Optional[str]) -> str:
         """Ask about unsaved edits: "save", "discard" or "cancel" (tests replace this).
 
