@@ -9,6 +9,7 @@ run) and ``3-step.png`` (inspecting one step).
 """
 from __future__ import annotations
 
+import os
 import sys
 import tempfile
 import time
@@ -59,6 +60,8 @@ def render(outdir: Path, model_seconds: float = 600) -> list[Path]:
     outdir.mkdir(parents=True, exist_ok=True)
     app = make_app()
     with tempfile.TemporaryDirectory() as scratch:
+        # The scratch library stands in for the user's own, so the header reads as it would for them.
+        os.environ["SAMPLEWRIGHT_LIBRARY_DIR"] = str(Path(scratch) / "library")
         window = MainWindow(library_dir=Path(scratch) / "library", config_dir=Path(scratch) / "config")
         window.show_error = lambda message, detail=None: print(f"error: {detail or message}", file=sys.stderr)
         window.resize(*SIZE)
