@@ -29,7 +29,8 @@ def _add_common(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--preset", metavar="X", action="append", default=[],
                         help="preset JSON file, or the name of a starter or library preset (repeatable)")
     parser.add_argument("--model", metavar="PATH", help="model folder or .gguf file (default: the built-in model)")
-    parser.add_argument("--library", metavar="DIR", help="preset library folder (default: your library)")
+    parser.add_argument("--library", metavar="DIR",
+                        help="preset library folder (default: the one last chosen in the window, else your own)")
     parser.add_argument("--top", type=int, default=10, metavar="N", help="top tokens to show (default 10)")
     parser.add_argument("--json", action="store_true", help="print one JSON object instead of text")
 
@@ -97,11 +98,12 @@ def resolve_preset(spec: str, library_dir: str | None = None) -> Preset:
             raise SamplewrightError(f"{spec} is not a JSON preset file: {exc}") from None
         return Preset.from_dict(data)
     from .core import library
+    from .core.user_state import library_in_use
 
     for preset in library.starter_presets():
         if preset.name.casefold() == spec.casefold():
             return preset
-    lib = library.PresetLibrary(library_dir or library.default_library_dir())
+    lib = library.PresetLibrary(library_dir or library_in_use())
     return lib.find(spec).preset  # raises LibraryError naming what exists
 
 

@@ -13,7 +13,8 @@ import json
 
 from .core.errors import SamplewrightError
 from .core.importing import IMPORT_CHOICES, apply_import, preview_import
-from .core.library import PresetLibrary, default_library_dir
+from .core.library import PresetLibrary
+from .core.user_state import library_in_use
 from .core.settings_file import export_settings, read_settings
 
 
@@ -41,12 +42,12 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
 
 def _add_library_options(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--library", metavar="DIR", help="the library folder (default: your own library)")
+    parser.add_argument("--library", metavar="DIR", help="the library folder (default: the one last chosen in the window, else your own)")
     parser.add_argument("--json", action="store_true", help="print one JSON object instead of text")
 
 
 def _open(args: argparse.Namespace) -> PresetLibrary:
-    return PresetLibrary(args.library or default_library_dir())
+    return PresetLibrary(args.library or library_in_use())
 
 
 def _print_json(obj) -> None:

@@ -135,3 +135,21 @@ def test_entry_point_runs_the_default_model():
     assert proc.returncode == 0, proc.stderr
     data = json.loads(proc.stdout)
     assert data["presets"] and all(len(p["samples"]) == 1 for p in data["presets"])
+
+
+def test_cli_uses_the_library_folder_chosen_in_the_window(capsys, tmp_path, monkeypatch):
+    # The window remembers the chosen folder in the user's state; the CLI follows it.
+    from samplewright.core.library import PresetLibrary
+    from samplewright.core.user_state import UserState
+
+    monkeypatch.setenv("SAMPLEWRIGHT_CONFIG_DIR", str(tmp_path / "config"))
+    monkeypatch.delenv("SAMPLEWRIGHT_LIBRARY_DIR", raising=False)
+    team = tmp_path / "team"
+    team.mkdir()
+    PresetLibrary(team, seed=False).add(Preset("Pier closure", temperature=0.4))
+    state = UserState()
+    state.last_library = team
+    state.save()
+    code, out, err = run(capsys, "library", "--json")
+    assert code == 0, err
+    assert "Pier closure" in out

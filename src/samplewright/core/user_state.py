@@ -85,3 +85,17 @@ class UserState:
                                    "Your favourites were not saved") from exc
         except (TypeError, ValueError) as exc:  # a view value that is not plain JSON
             raise LibraryError(f"Could not save your settings: a view setting is not plain data ({exc}).") from exc
+
+
+def library_in_use() -> Path:
+    """The library folder the user last chose in the window, else their own.
+
+    ``$SAMPLEWRIGHT_LIBRARY_DIR`` wins over the remembered choice, so tests
+    and scripts can pin the folder.
+    """
+    from .library import default_library_dir
+
+    if os.environ.get("SAMPLEWRIGHT_LIBRARY_DIR"):
+        return default_library_dir()
+    chosen = UserState().last_library
+    return chosen if chosen is not None else default_library_dir()
