@@ -70,8 +70,19 @@ def test_cache_location_and_key(tmp_path, monkeypatch):
     gguf.write_bytes(b"x" * 10)
     key = cache_key(gguf)
     assert key.startswith("m-") and key == cache_key(gguf)
+    # A reinstall (same bytes, new time, other folder) reuses the converted copy.
     os.utime(gguf, ns=(1_000_000_000, 1_000_000_000))
-    assert cache_key(gguf) != key
+    other = tmp_path / "elsewhere" / "m.gguf"
+    other.parent.mkdir()
+    other.write_bytes(b"x" * 10)
+    assert cache_key(gguf) == key == cache_key(other)
+    # Different content at either end gives another copy.
+    big = bytearray(b"y" * (3 << 20))
+    gguf.write_bytes(bytes(big))
+    first = cache_key(gguf)
+    big[-1:] = b"z"
+    gguf.write_bytes(bytes(big))
+    assert first != key and cache_key(gguf) != first
 
 
 # -- errors ---------------------------------------------------------------------

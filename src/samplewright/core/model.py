@@ -118,11 +118,25 @@ def cache_root() -> Path:
     return Path(platformdirs.user_cache_dir("samplewright")) / "models"
 
 
+#: Bytes read from each end of a GGUF file to key its converted copy.
+KEY_SAMPLE = 1 << 20
+
+
 def cache_key(gguf: Path) -> str:
-    """Name of a GGUF file's converted copy, from the file's name, size and modification time."""
-    stat = gguf.stat()
-    identity = f"{gguf.name}|{stat.st_size}|{stat.st_mtime_ns}"
-    return f"{gguf.stem}-{hashlib.sha256(identity.encode()).hexdigest()[:16]}"
+    """Name of a GGUF file's converted copy, from its name, size and content.
+
+    The content is sampled (the first and last MiB) rather than hashed whole,
+    which keeps start-up fast; a reinstall of the same file (new modification
+    time, new folder) reuses the copy instead of converting again.
+    """
+    size = gguf.stat().st_size
+    digest = hashlib.sha256(f"{gguf.name}|{size}|".encode())
+    with open(gguf, "rb") as handle:
+        digest.update(handle.read(KEY_SAMPLE))
+        if size > KEY_SAMPLE:
+            handle.seek(max(KEY_SAMPLE, size - KEY_SAMPLE))
+            digest.update(handle.read(KEY_SAMPLE))
+    return f"{gguf.stem}-{digest.hexdigest()[:16]}"
 
 
 def load_model(source=None, progress: Optional[Progress] = None) -> LoadedModel:
