@@ -42,7 +42,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
 
 def _add_library_options(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--library", metavar="DIR", help="the library folder (default: the one last chosen in the window, else your own)")
+    parser.add_argument("--library", metavar="DIR",
+                        help="the library folder (default: the one last chosen in the window, else your own)")
     parser.add_argument("--json", action="store_true", help="print one JSON object instead of text")
 
 
