@@ -124,10 +124,10 @@ class QtPassagePanel(QWidget):
             cut_at: character offset where the kept part starts, if known.
         """
         if dropped:
-            self.info.setText(f"{tokens + dropped:,} tokens — longer than the {context:,} tokens the model "
-                              f"reads: the first {dropped:,} (shaded) are left out.")
+            self.info.setText(f"{tokens + dropped:,} tokens — longer than the {context:,} a passage may use: "
+                              f"the first {dropped:,} (shaded) are left out.")
         else:
-            self.info.setText(f"{tokens:,} tokens (the model reads up to {context:,})")
+            self.info.setText(f"{tokens:,} tokens (a passage may use up to {context:,})")
         selections = []
         if dropped and cut_at:
             shade = QTextEdit.ExtraSelection()
