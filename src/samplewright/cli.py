@@ -81,35 +81,38 @@ def _passage(args) -> str:
     return next(iter(demo_passages().values()))
 
 
-def resolve_preset(spec: str, library_dir: str | None = None) -> Preset:
-    """A preset from a JSON file path, or by name from the starter set or the library.
+def resolve_presets(spec: str, library_dir: str | None = None) -> list[Preset]:
+    """The presets ``--preset spec`` names: a file's presets, or one preset by name.
+
+    A path to a file (or any spec ending in ``.json``) is read with
+    :func:`settings_file.read_importable`: a single preset file gives one
+    preset, a settings file all of its presets. A name is looked up in the
+    library first, so a team's edited copy of a starter preset wins; the
+    built-in starter presets answer only names the library does not hold.
 
     Raises:
-        SamplewrightError: when nothing of that name or path exists.
-        PresetError: when the file holds an invalid preset.
+        LibraryError: when the file is missing or refused, or when neither the
+            library nor the starter set holds the name (the message lists what does).
     """
-    path = Path(spec)
-    if spec.endswith(".json") or path.is_file():
-        if not path.is_file():
-            raise SamplewrightError(f"preset file not found: {spec}")
-        try:
-            data = json.loads(path.read_text(encoding="utf-8"))
-        except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-            raise SamplewrightError(f"{spec} is not a JSON preset file: {exc}") from None
-        return Preset.from_dict(data)
     from .core import library
+    from .core.settings_file import read_importable
     from .core.user_state import library_in_use
 
-    for preset in library.starter_presets():
-        if preset.name.casefold() == spec.casefold():
-            return preset
+    if spec.endswith(".json") or Path(spec).is_file():
+        return list(read_importable(spec).presets)
     lib = library.PresetLibrary(library_dir or library_in_use())
-    return lib.find(spec).preset  # raises LibraryError naming what exists
+    wanted = spec.strip().casefold()
+    if spec in {r.id for r in lib.records()} or any(r.name.casefold() == wanted for r in lib.records()):
+        return [lib.find(spec).preset]  # raises LibraryError when several share the name
+    for preset in library.starter_presets():
+        if preset.name.casefold() == wanted:
+            return [preset]
+    return [lib.find(spec).preset]  # raises LibraryError naming what exists
 
 
 def _presets(args) -> list[Preset]:
     if args.preset:
-        return [resolve_preset(spec, args.library) for spec in args.preset]
+        return [preset for spec in args.preset for preset in resolve_presets(spec, args.library)]
     from .core.library import starter_presets
 
     return list(starter_presets())[:3]

@@ -153,3 +153,37 @@ def test_cli_uses_the_library_folder_chosen_in_the_window(capsys, tmp_path, monk
     code, out, err = run(capsys, "library", "--json")
     assert code == 0, err
     assert "Pier closure" in out
+
+
+def test_a_library_preset_wins_over_the_starter_of_the_same_name(tmp_path):
+    # Every new library is seeded with starter copies; a team's edit of one must be the one the CLI uses.
+    from samplewright.cli import resolve_presets
+    from samplewright.core.library import PresetLibrary, starter_presets
+
+    folder = tmp_path / "team"
+    lib = PresetLibrary(folder, create=True)
+    record = lib.find("Greedy baseline")
+    lib.save(record.edited(record.preset.replace(temperature=0.3, description="Edited by the team")))
+    lib.delete(lib.find("Newsletter — lively").id)
+    [chosen] = resolve_presets("greedy baseline", str(folder))
+    assert chosen.temperature == 0.3 and chosen.description == "Edited by the team"
+    # A name the library no longer holds falls back to the starter set.
+    [starter] = resolve_presets("Newsletter — lively", str(folder))
+    assert starter == next(p for p in starter_presets() if p.name == "Newsletter — lively")
+
+
+def test_preset_files_are_read_strictly_and_settings_files_give_all_their_presets(capsys, tmp_path):
+    from samplewright.cli import resolve_presets
+    from samplewright.core.errors import LibraryError
+    from samplewright.core.settings_file import export_settings
+
+    bundle = tmp_path / "bundle.json"
+    export_settings([Preset("Pier notice", temperature=0.4), Preset("Letter", top_p=0.8)], bundle)
+    assert [p.name for p in resolve_presets(str(bundle))] == ["Pier notice", "Letter"]
+    # Strict JSON: Python's json.loads takes NaN, a settings/preset file must not.
+    odd = tmp_path / "odd.json"
+    odd.write_text('{"name": "Odd", "temperature": NaN}', encoding="utf-8")
+    with pytest.raises(LibraryError):
+        resolve_presets(str(odd))
+    code, _, err = run(capsys, "step", "--text", PASSAGE, "--preset", odd)
+    assert code == 2 and "odd.json" in err and "Traceback" not in err
