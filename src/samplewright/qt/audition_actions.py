@@ -231,6 +231,23 @@ class AuditionActions:
         self.inspector.set_sample(None, None, None)
         self.inspector.plot.show_step(None, [])
 
+    def clear_audition(self) -> None:
+        """Forget every sample, the last request and the inspected step (e.g. after a model switch)."""
+        if self.running():
+            self.engine.cancel(self._run_serial)
+            self._run_serial = None
+        self.session.abandon()
+        # The core session has no reset of its own: empty its columns so nothing old can be inspected.
+        self.session.presets, self.session.samples, self.session.metrics = [], [], []
+        self.session.columns, self.session.passage_ids = [], []
+        self._last_request = None
+        self._column_ids, self._column_drafts = [], []
+        self._clear_inspection()
+        self.grid.clear()
+        self.progress.setRange(0, 1)
+        self.progress.setValue(0)
+        self._update_buttons()
+
     def copy_current_sample(self) -> None:
         """Copy the inspected sample's text to the clipboard."""
         if not self._inspected:

@@ -297,6 +297,12 @@ class QtAuditionGrid(QScrollArea):
                 reason = sample.stop_reason or ("cancelled" if cancelled else "–")
                 self.footers[column][row].setText(f"{len(texts)} tokens · ended: {reason}")
 
+    def clear(self) -> None:
+        """Remove every column and show the empty-grid hint again (the session was emptied)."""
+        self._rebuild(0)
+        self.current = None
+        self._empty.show()
+
     def mark_draft(self, column: int, on: bool) -> None:
         """Mark (or unmark) a column as written with an unsaved draft of its preset."""
         if 0 <= column < len(self.headers):

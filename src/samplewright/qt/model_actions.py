@@ -11,6 +11,7 @@ class ModelActions:
     _model_serial: Optional[int] = None
     _count_serial: Optional[int] = None
     _pending_source: Optional[str] = None
+    _loaded_source: Optional[str] = None
 
     # -- model -----------------------------------------------------------------------------
     def load_model(self, source: Optional[str]) -> None:
@@ -46,7 +47,17 @@ class ModelActions:
     def _on_model_ready(self, serial: int, info) -> None:
         if serial != self._model_serial:
             return
+        changed = self.model_info is not None and (self.model_info != info
+                                                    or self._loaded_source != self._pending_source)
         self.model_info = info
+        self._loaded_source = self._pending_source
+        if changed:
+            had_samples = self._last_request is not None
+            self.clear_audition()
+            if had_samples:
+                self.statusBar().showMessage(
+                    "The model changed, so the earlier samples were cleared: they were written by the old "
+                    "model. Press Generate all to write new ones.", 10000)
         self.model_progress.hide()
         self.model_label.setText(f"Model: {info.name} · {_count(info.n_parameters)} parameters · "
                                  f"context {info.context_length:,} tokens")
