@@ -17,7 +17,7 @@ from pathlib import Path
 from typing import Sequence
 
 from .core.errors import SamplewrightError
-from .core.presets import Preset, PresetError
+from .core.presets import Preset
 
 EXIT_ERROR = 2
 
@@ -141,6 +141,8 @@ def run_audition(args) -> int:
 
     _check_range("samples", args.samples, 1, 16)
     _check_range("tokens", args.tokens, 1, 512)
+    if args.seed < 0:
+        raise SamplewrightError(f"--seed must be a whole number 0 or more, got {args.seed}")
     passage, presets = _passage(args), _presets(args)
     engine = _engine(args)
     request = AuditionRequest(passage, presets, samples=args.samples, max_new_tokens=args.tokens, seed=args.seed)
@@ -252,7 +254,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 0
     try:
         return args.handler(args)
-    except (SamplewrightError, PresetError) as exc:
+    except SamplewrightError as exc:  # PresetError, RequestError, LibraryError, ...
         print(f"samplewright: {exc}", file=sys.stderr)
         return EXIT_ERROR
     except KeyboardInterrupt:

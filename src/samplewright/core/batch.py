@@ -18,6 +18,7 @@ import torch
 
 from . import sampler, stages
 from .chain import RowHistory, RowParams, run_chain
+from .errors import RequestError
 from .inspection import entropy_bits
 from .presets import Preset
 from .results import AuditionRequest, AuditionResult, Sample, TokenEvent, TokenStep
@@ -60,15 +61,15 @@ class _Tally:
 
 
 def check_request(request: AuditionRequest) -> None:
-    """Raise ValueError for a request that cannot run."""
+    """Raise RequestError (a ValueError) for a request that cannot run."""
     if not request.presets:
-        raise ValueError("an audition needs at least one preset")
+        raise RequestError("an audition needs at least one preset")
     if int(request.samples) < 1:
-        raise ValueError(f"samples must be at least 1, got {request.samples}")
+        raise RequestError(f"samples must be at least 1, got {request.samples}")
     if int(request.max_new_tokens) < 1:
-        raise ValueError(f"the token budget must be at least 1, got {request.max_new_tokens}")
+        raise RequestError(f"the token budget must be at least 1, got {request.max_new_tokens}")
     if int(request.seed) < 0:
-        raise ValueError(f"the seed must be a whole number >= 0, got {request.seed}")
+        raise RequestError(f"the seed must be a whole number >= 0, got {request.seed}")
 
 
 def run_audition(engine, request: AuditionRequest, on_token=None, should_stop=None) -> AuditionResult:

@@ -23,7 +23,7 @@ import torch
 
 from . import batch, inspection
 from .chain import RowHistory, RowParams, run_chain
-from .errors import PassageError
+from .errors import PassageError, RequestError
 from .model import LoadedModel
 from .presets import Preset
 from .results import AuditionRequest, AuditionResult, StepView, TokenEvent
@@ -154,7 +154,7 @@ class Engine:
 
         Raises:
             PassageError: the passage is empty.
-            ValueError: no presets, fewer than one sample or token, or a negative seed.
+            RequestError: no presets, fewer than one sample or token, or a negative seed.
         """
         with torch.inference_mode():
             return batch.run_audition(self, request, on_token, should_stop)
@@ -175,15 +175,16 @@ class Engine:
 
         Raises:
             PassageError: the passage is empty.
-            ValueError: a sample id is outside the vocabulary or the text exceeds the context.
+            RequestError: a sample id is outside the vocabulary or the text exceeds the context.
         """
         tokens = self.encode_passage(passage)
         sample_ids = [int(i) for i in sample_ids]
         if any(not 0 <= i < self.loaded.vocab_size for i in sample_ids):
-            raise ValueError(f"sample ids must lie in 0..{self.loaded.vocab_size - 1}")
+            raise RequestError(f"Sample token ids must lie in 0..{self.loaded.vocab_size - 1}.")
         history = tokens.ids + sample_ids
         if len(history) > self.loaded.context_length:
-            raise ValueError(f"{len(history)} tokens exceed the model's context of {self.loaded.context_length}")
+            raise RequestError(f"The passage and the text after it come to {len(history)} tokens, more than the model's "
+                               f"context of {self.loaded.context_length}: shorten the passage or the text after it.")
         with torch.inference_mode():
             logits = self._next_logits(tokens.ids, sample_ids).to(torch.float64)
             raw = torch.softmax(logits, dim=-1).numpy()

@@ -1,7 +1,7 @@
 """Errors meant for the user: each message says what went wrong and what to do.
 
 The CLI prints them as one line; the window shows them in a message box.
-``PresetError`` (a ``ValueError``) lives in ``presets.py``.
+``PresetError`` (also a ``ValueError``) lives in ``presets.py``.
 """
 
 
@@ -19,3 +19,10 @@ class PassageError(SamplewrightError):
 
 class LibraryError(SamplewrightError):
     """The preset library or a settings file cannot be read or written."""
+
+
+class RequestError(SamplewrightError, ValueError):
+    """A request the engine cannot run: no presets, a negative seed, text longer than the context.
+
+    Also a ``ValueError``, so callers that caught that before keep working.
+    """

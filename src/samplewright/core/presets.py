@@ -16,6 +16,8 @@ import math
 from datetime import datetime, timezone
 from typing import Any, Mapping
 
+from .errors import SamplewrightError
+
 #: Stage names of the chain, in the order transformers' ``generate()`` applies
 #: them (penalties first, then temperature, top-k, top-p, min-p, typical).
 DEFAULT_ORDER: tuple[str, ...] = ("penalties", "temperature", "top_k", "top_p", "min_p", "typical_p")
@@ -27,10 +29,11 @@ MAX_TOP_K = 1_000_000
 MAX_STOPS = 16
 
 
-class PresetError(ValueError):
+class PresetError(SamplewrightError, ValueError):
     """A preset field holds a value outside its allowed range, or an unknown key.
 
-    ``field`` names the offending field (the user-facing name).
+    ``field`` names the offending field (the user-facing name). Also a
+    ``ValueError``, as it was before it joined the user-facing errors.
     """
 
     def __init__(self, field: str, message: str):
