@@ -61,3 +61,52 @@ def test_switching_model_clears_old_samples_and_steps_use_new_model(two_model_wi
     with torch.no_grad():
         logits = other_tiny.model(torch.tensor([win.session.passage_ids])).logits[0, -1].double()
     np.testing.assert_allclose(win.inspector.plot.shown.raw_probs, torch.softmax(logits, -1).numpy(), atol=1e-5)
+
+
+def test_a_new_load_cancels_the_one_in_progress(qtbot, tiny_model, other_tiny, tmp_path):
+    import threading
+
+    from samplewright.qt.main_window import MainWindow
+
+    started, release, built = threading.Event(), threading.Event(), []
+
+    def load(source, progress):
+        if source == "slow":
+            started.set()
+            release.wait(20)
+            progress("Still converting", 0.5)    # the cancelled load stops here
+        return other_tiny if source == "other" else tiny_model
+
+    def engine(loaded):
+        from samplewright.core.engine import Engine
+        built.append(loaded)
+        return Engine(loaded)
+    win = MainWindow(model_loader=load, engine_factory=engine, library_dir=tmp_path / "lib",
+                     config_dir=tmp_path / "cfg", model_source="slow")
+    qtbot.addWidget(win)
+    failed = []
+    win.engine.worker.failed.connect(lambda serial, kind, message: failed.append((serial, kind, message)))
+    assert started.wait(20)
+    slow_serial = win._model_serial
+    win.load_model("other")
+    release.set()
+    qtbot.waitUntil(lambda: win.model_info is not None, timeout=20000)
+    assert built == [other_tiny]
+    assert (slow_serial, "load", "") in failed
+    win.close()
+
+
+def test_jobs_cancelled_while_queued_never_start(qtbot):
+    from samplewright.core.results import AuditionRequest
+    from samplewright.qt.workers import EngineWorker, StepQuery
+
+    worker = EngineWorker(lambda *a: None, lambda loaded: None, lambda samples: {})
+    failed = []
+    worker.failed.connect(lambda serial, kind, message: failed.append((serial, kind, message)))
+    worker.cancel_through(4)
+    # With no model loaded a job that started would fail with "No model is loaded yet…".
+    worker.run_audition(1, AuditionRequest("x", [], samples=1, max_new_tokens=1, seed=1))
+    worker.compute_step(2, StepQuery("x", [], (), None))
+    worker.count_passage(3, "x")
+    worker.load_model(4, None)
+    assert failed == [(1, "audition", ""), (2, "step", ""), (3, "count", ""), (4, "load", "")]

@@ -227,7 +227,9 @@ class AuditionActions:
     def _clear_inspection(self) -> None:
         self._inspected = None
         self._step_waiting = None
-        self._step_serial = None      # an answer still on its way is now stale
+        if self._step_serial is not None:
+            self.engine.cancel(self._step_serial)   # skipped if still queued; a late answer is dropped
+        self._step_serial = None
         self.inspector.set_sample(None, None, None)
         self.inspector.plot.show_step(None, [])
 

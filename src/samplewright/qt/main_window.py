@@ -378,6 +378,9 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
             self._closed = True
             self.save_state()
             self.session.abandon()
+            # Waiting on the engine can take a moment (a model load stops at its next progress report).
+            self.statusBar().showMessage("Closing…")
+            self.hide()
             self.engine.shutdown()
             self.library_watch.stop()
             self.library_list.cleanup()

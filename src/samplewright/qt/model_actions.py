@@ -15,7 +15,10 @@ class ModelActions:
 
     # -- model -----------------------------------------------------------------------------
     def load_model(self, source: Optional[str]) -> None:
-        """Start loading a model on the engine thread (None = the default model)."""
+        """Start loading a model on the engine thread (None = the default model); a load still
+        running is cancelled first."""
+        if self._model_serial is not None:
+            self.engine.cancel(self._model_serial)
         self._model_serial = self.engine.load_model(source)
         self._pending_source = source
         self.model_progress.setRange(0, 0)
@@ -96,6 +99,8 @@ class ModelActions:
     def count_passage(self, text: str) -> None:
         """Ask the engine how many tokens the passage has."""
         if self.model_info is not None and text.strip():
+            if self._count_serial is not None:
+                self.engine.cancel(self._count_serial)
             self._count_serial = self.engine.count_passage(text)
 
     def _on_passage_counted(self, serial: int, counted) -> None:

@@ -123,6 +123,7 @@ class EngineWorker(QObject):
 
     def _guard(self, serial: int, kind: str, job: Callable[[], Any]) -> None:
         try:
+            self._check(serial)     # a job cancelled while queued (e.g. on close) never starts
             job()
         except Cancelled:
             self.failed.emit(serial, kind, "")
@@ -179,7 +180,6 @@ class EngineWorker(QObject):
     def compute_step(self, serial: int, query: StepQuery) -> None:
         """The distribution at one step of one sample, for every auditioned preset."""
         def job():
-            self._check(serial)
             view = self._need_engine().step(query.passage, query.presets, sample_ids=query.sample_ids,
                                             top=query.top, drawn_id=query.drawn_id)
             self.step_ready.emit(serial, view)
@@ -189,7 +189,6 @@ class EngineWorker(QObject):
     def count_passage(self, serial: int, text: str) -> None:
         """Tokenise the passage to report its length and where it is cut."""
         def job():
-            self._check(serial)
             self.passage_counted.emit(serial, self._need_engine().encode_passage(text))
         self._guard(serial, "count", job)
 
