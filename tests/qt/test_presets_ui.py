@@ -203,3 +203,24 @@ def test_delete_key_acts_only_in_the_preset_list(window, qtbot):
     window.library_list.tree.setFocus()
     qtbot.keyClick(window.library_list.tree, Qt.Key_Delete)
     assert len(window.library.records()) == count - 1
+
+
+@pytest.mark.parametrize("field, text", [("top_k", "1,000"), ("max_new_tokens", "1_000"),
+                                         ("temperature", "1,000.5"), ("temperature", "1.000,5"),
+                                         ("top_p", "0,5,1")])
+def test_editor_rejects_numbers_with_separators(field, text):
+    from samplewright.qt.preset_editor import parse_field
+
+    # Python's float() reads "1_000" as 1000 and a naive comma swap reads "1,000" as 1: both must be refused.
+    with pytest.raises(PresetError, match="separators"):
+        parse_field(field, text)
+
+
+def test_editor_reads_a_decimal_comma_in_fractional_fields_only():
+    from samplewright.qt.preset_editor import parse_field
+
+    assert parse_field("temperature", "0,7") == pytest.approx(0.7)
+    assert parse_field("top_p", " 0,95 ") == pytest.approx(0.95)
+    assert parse_field("top_k", "40") == 40 and isinstance(parse_field("top_k", "40"), int)
+    with pytest.raises(PresetError, match="whole numbers"):
+        parse_field("no_repeat_ngram_size", "3,0")

@@ -31,19 +31,32 @@ def parse_field(field: str, text: str) -> Any:
         PresetError: naming the field, with the reason and allowed range.
     """
     if field in NUMBER_FIELDS:
-        try:
-            value: Any = float(text.strip().replace(",", "."))
-        except ValueError:
-            raise PresetError(field, f"'{text}' is not a number; allowed: {FIELDS[field][2]}") from None
-        if field in WHOLE_NUMBERS and value.is_integer():
-            value = int(value)
-        return validate_field(field, value)
+        return validate_field(field, _number(field, text.strip()))
     if field == "tags":
         return validate_field(field, [t.strip() for t in text.split(",") if t.strip()])
     if field == "stop":
         lines = [line.replace("\\n", "\n") for line in text.splitlines() if line != ""]
         return validate_field(field, lines)
     return validate_field(field, text)
+
+
+def _number(field: str, text: str) -> Any:
+    """The number typed for ``field``: a decimal comma is read as a point in fractional fields only,
+    and only without a point, so a thousands separator is never misread."""
+    allowed = FIELDS[field][2]
+    if "," in text or "_" in text:
+        if field in WHOLE_NUMBERS:
+            raise PresetError(field, f"'{text}': write whole numbers without separators; allowed: {allowed}")
+        if "_" in text or "." in text or text.count(",") > 1:
+            raise PresetError(field, f"'{text}': use one decimal point or comma and no separators; "
+                                     f"allowed: {allowed}")
+    try:
+        value: Any = float(text.replace(",", "."))
+    except ValueError:
+        raise PresetError(field, f"'{text}' is not a number; allowed: {allowed}") from None
+    if field in WHOLE_NUMBERS and value.is_integer():
+        value = int(value)
+    return value
 
 
 def field_text(field: str, value: Any) -> str:
