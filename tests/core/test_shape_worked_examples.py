@@ -127,6 +127,34 @@ def test_extreme_and_minus_inf_logits():
     assert np.isfinite(p).all() and p[1] == 0 and p.sum() == pytest.approx(1.0)
 
 
+# A division overflowing float64 (max about 1.8e308, IEEE 754) gives +inf, and a softmax over +inf
+# gives NaN; the chain makes such a row greedy over its +inf ids instead (docs/sampling-chain.md).
+@pytest.mark.parametrize("logits, preset, history, expected", [
+    ([30.0, 0.0], Preset("x", temperature=1e-307), (), [1.0, 0.0]),           # 30 / 1e-307 = 3e308 > max
+    ([30.0, 0.0], Preset("x", repetition_penalty=1e-308), (0,), [1.0, 0.0]),  # 30 / 1e-308 = 3e309 > max
+    ([1e308, 1e308, 0.0], Preset("x", temperature=0.5), (), [1.0, 0.0, 0.0]),  # tie: the lower id, as T = 0
+])
+def test_overflow_to_infinity_becomes_greedy_not_nan(logits, preset, history, expected):
+    p = shape(np.array(logits), preset, history=history)
+    assert not np.isnan(p).any() and p.sum() == 1.0
+    np.testing.assert_array_equal(p, expected)
+
+
+@settings(max_examples=150, deadline=None)
+@given(st.lists(st.floats(-1e308, 1e308, allow_nan=False, allow_infinity=False), min_size=2, max_size=12),
+       st.sampled_from([0.0, 5e-324, 1e-308, 1e-300, 1e-10, 0.5, 5.0]),
+       st.sampled_from([5e-324, 1e-308, 1e-200, 1e-5, 1.0, 10.0]),
+       st.sampled_from([-2.0, 0.0, 2.0]), st.integers(0, 3))
+def test_extreme_temperatures_and_penalties_never_give_nan(z, t, rep, freq, order_shift):
+    from samplewright.core.presets import DEFAULT_ORDER
+
+    order = DEFAULT_ORDER[order_shift:] + DEFAULT_ORDER[:order_shift]
+    preset = Preset("x", temperature=t, repetition_penalty=rep, frequency_penalty=freq, presence_penalty=freq,
+                    top_p=0.9, min_p=0.05, typical_p=0.95, order=order)
+    p = shape(np.array(z), preset, history=[0, 1, 1], generated=[1, 1])
+    assert np.isfinite(p).all() and p.sum() == pytest.approx(1.0)
+
+
 @pytest.mark.parametrize("bad", [[], [[1.0, 2.0]], [np.nan, 1.0], [np.inf, 0.0], [-np.inf, -np.inf]])
 def test_shape_rejects_bad_logits(bad):
     with pytest.raises(ValueError):

@@ -145,6 +145,20 @@ def _keep_one_if_empty(before: torch.Tensor, after: torch.Tensor) -> torch.Tenso
     return torch.where(empty.unsqueeze(-1), rescue, after)
 
 
+def _greedy_if_infinite(after: torch.Tensor) -> torch.Tensor:
+    """Where a stage's division overflowed to +inf (a temperature or repetition
+    penalty near 0, or logits near the float64 limit), make that row greedy over
+    its +inf entries: the first such id keeps logit 0, every other id -inf (ties
+    to the lower id, as temperature 0). A softmax over +inf would give NaN."""
+    infinite = torch.isposinf(after)
+    rows = infinite.any(dim=-1)
+    if not bool(rows.any()):
+        return after
+    first = infinite.to(torch.uint8).argmax(dim=-1, keepdim=True)  # argmax gives the first maximum
+    one_hot = torch.full_like(after, stages.NEG_INF).scatter(-1, first, 0.0)
+    return torch.where(rows.unsqueeze(-1), one_hot, after)
+
+
 @dataclasses.dataclass
 class ChainOutput:
     """Final logits, and optionally the logits after each stage (by name)."""
@@ -183,7 +197,7 @@ def _run_group(logits, params, history, order, keep_stages) -> ChainOutput:
     current = logits
     for name in order:
         if not _is_neutral(name, params, history):
-            current = _keep_one_if_empty(current, STAGES[name](current, params, history))
+            current = _keep_one_if_empty(current, _greedy_if_infinite(STAGES[name](current, params, history)))
         if after is not None:
             after[name] = current
     return ChainOutput(current, after)
