@@ -129,7 +129,7 @@ def test_a_colleagues_save_in_between_goes_through_the_conflict_dialog(window, q
     assert "colleague" in window.editor.notice.text() and window.editor.notice.isVisible()
 
     seen = []
-    answer_next_message_box("Keep both", seen)
+    answer_next_message_box("Keep mine as a copy", seen)
     window.actions["save"].trigger()
     assert seen and "colleague" in seen[0]["text"]
     library = PresetLibrary(window.library.folder)
@@ -161,7 +161,7 @@ def test_edits_to_a_preset_a_colleague_deleted_are_kept(window, qtbot):
     assert "no longer in the library" in window.editor.notice.text()
 
     seen = []
-    answer_next_message_box("Overwrite with mine", seen)
+    answer_next_message_box("Replace it with my edits", seen)
     window.actions["save"].trigger()
     assert "deleted" in seen[0]["text"]
     back = stored(window, record.id)

@@ -8,10 +8,16 @@ from PySide6.QtWidgets import (QComboBox, QDialog, QDialogButtonBox, QLabel, QMe
 
 #: What each import choice means, in the words the dialog shows.
 IMPORT_CHOICE_LABELS = {
-    "keep_both": "keep both (add the incoming one as a copy)",
-    "take_theirs": "keep the library's version",
-    "overwrite": "replace with the incoming version",
-    "skip": "skip this preset",
+    "keep_both": "Keep the incoming one as a copy",
+    "take_theirs": "Use the library's version",
+    "overwrite": "Replace it with the incoming one",
+    "skip": "Skip this preset",
+}
+#: The buttons of the save-conflict question, by core choice name (same pattern as the import choices).
+CONFLICT_CHOICE_LABELS = {
+    "keep_both": "Keep mine as a copy",
+    "take_theirs": "Use the library's version",
+    "overwrite": "Replace it with my edits",
 }
 ACTION_LABELS = {"add": "new — will be added", "update": "same parameters, new notes — will be updated",
                  "conflict": "same name, other parameters — choose", "unchanged": "already in the library"}
@@ -65,9 +71,9 @@ class ImportPreviewDialog(QDialog):
 def ask_conflict_choice(parent: QWidget, message: str) -> Optional[str]:
     """Ask how to settle a save conflict; returns a core choice name or None for "not now"."""
     box = QMessageBox(QMessageBox.Warning, "Someone else changed this preset", message, parent=parent)
-    keep = box.addButton("Keep both", QMessageBox.AcceptRole)
-    theirs = box.addButton("Take theirs", QMessageBox.DestructiveRole)
-    mine = box.addButton("Overwrite with mine", QMessageBox.DestructiveRole)
+    roles = {"keep_both": QMessageBox.AcceptRole, "take_theirs": QMessageBox.DestructiveRole,
+             "overwrite": QMessageBox.DestructiveRole}
+    buttons = {box.addButton(CONFLICT_CHOICE_LABELS[key], role): key for key, role in roles.items()}
     box.addButton("Not now", QMessageBox.RejectRole)
     box.exec()
-    return {keep: "keep_both", theirs: "take_theirs", mine: "overwrite"}.get(box.clickedButton())
+    return buttons.get(box.clickedButton())
