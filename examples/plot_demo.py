@@ -1,7 +1,7 @@
 """Feed synthetic next-token distributions to the distribution plot.
 
-Each iteration makes random logits over a small invented vocabulary, shapes
-them with three presets through the real sampling chain, and hands the
+Each iteration makes random logits over a small invented vocabulary, has the
+core's ``inspection.step_view`` shape them with three presets, and hands the
 result to the plot, as the window does for a real step.
 
 Run:  python examples/plot_demo.py --iterations 50
@@ -20,43 +20,14 @@ WORDS = ("ferry", "harbour", "timetable", "sailing", "delayed", "tide", "pier", 
 
 
 def synthetic_view(rng: np.random.Generator, presets, top: int = 20):
-    """A StepView built from random logits, shaped by the real chain."""
-    from samplewright.core.chain import shape
-    from samplewright.core.metrics import entropy_bits
-    from samplewright.core.results import PresetStep, StepView, TokenRow
+    """A StepView of random logits, built by the core exactly as the window's steps are."""
+    from samplewright.core.inspection import step_view
 
     logits = rng.normal(0.0, 2.0, len(WORDS))
     raw = np.exp(logits - logits.max())
-    raw /= raw.sum()
-    order = [int(i) for i in np.argsort(-raw, kind="stable")[:top]]
-    steps = []
-    for preset in presets:
-        probs = shape(logits, preset)
-        rows = [TokenRow(i, WORDS[i], float(raw[i]), float(probs[i]),
-                         None if probs[i] > 0 else _first_cut(logits, preset, i)) for i in order]
-        steps.append(PresetStep(preset.name, probs, int((probs > 0).sum()), float(raw[probs > 0].sum()),
-                                entropy_bits(probs), entropy_bits(raw), rows))
-    drawn = int(rng.choice(len(WORDS), p=raw))
-    return StepView(raw, entropy_bits(raw), order, [" " + WORDS[i] for i in order], steps,
-                    context_tokens=int(rng.integers(10, 200)), drawn_id=drawn)
-
-
-def _first_cut(logits, preset, token: int) -> str:
-    """The first stage in the preset's order after which ``token`` has no probability left."""
-    from samplewright.core.chain import shape
-
-    for end in range(1, len(preset.order) + 1):
-        neutral = {name: _neutral(name) for name in preset.order[end:]}
-        partial = preset.replace(**{k: v for d in neutral.values() for k, v in d.items()})
-        if shape(logits, partial)[token] == 0:
-            return preset.order[end - 1]
-    return preset.order[-1]
-
-
-def _neutral(stage: str) -> dict:
-    return {"penalties": {"repetition_penalty": 1.0}, "temperature": {"temperature": 1.0},
-            "top_k": {"top_k": 0}, "top_p": {"top_p": 1.0}, "min_p": {"min_p": 0.0},
-            "typical_p": {"typical_p": 1.0}}[stage]
+    drawn = int(rng.choice(len(WORDS), p=raw / raw.sum()))
+    return step_view(logits, presets, [" " + word for word in WORDS], top=top, drawn_id=drawn,
+                     context_tokens=int(rng.integers(10, 200)))
 
 
 def main(argv=None) -> int:

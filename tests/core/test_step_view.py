@@ -123,3 +123,26 @@ def test_step_along_a_sample_reproduces_its_records(engine):
 def test_step_refuses_ids_outside_the_vocabulary(engine, tiny_model):
     with pytest.raises(ValueError):
         engine.step(PASSAGE, [Preset("plain")], sample_ids=[tiny_model.vocab_size])
+
+
+def test_step_view_of_plain_logits_shapes_like_shape_and_names_the_cutting_stage():
+    # No model: the core function the engine, the CLI and the plot demo all use.
+    logits = np.log([0.4, 0.3, 0.2, 0.1])
+    presets = [Preset("one", top_k=1), Preset("greedy", temperature=0), Preset("rep", repetition_penalty=2.0)]
+    view = inspection.step_view(logits, presets, ["a", "b", "c", "d"], history=[0], generated=[0], top=3,
+                                drawn_id=2, context_tokens=7)
+    assert view.top_ids == [0, 1, 2] and view.top_texts == ["a", "b", "c"]
+    assert view.drawn_id == 2 and view.context_tokens == 7
+    np.testing.assert_allclose(view.raw_probs, [0.4, 0.3, 0.2, 0.1])
+    # top_k=1 keeps the single most probable token (Fan et al. 2018), so top_k cuts the rest;
+    # temperature 0 is greedy (common practice), so temperature cuts them.
+    assert [row.cut_by for row in view.presets[0].top] == [None, "top_k", "top_k"]
+    assert [row.cut_by for row in view.presets[1].top] == [None, "temperature", "temperature"]
+    for step, preset in zip(view.presets, presets):
+        np.testing.assert_array_equal(step.probs, shape(logits, preset, history=[0], generated=[0]))
+    # CTRL's penalty (Keskar et al. 2019) multiplies a seen token's negative logit by the penalty:
+    # log(0.4) * 2 = log(0.16), below id 1's log(0.3), so id 0 falls behind id 1.
+    rep = view.presets[2]
+    assert rep.probs[0] < rep.probs[1] and rep.kept == 4
+    texts_by_call = inspection.step_view(logits, presets[:1], lambda i: f"<{i}>", top=2)
+    assert texts_by_call.top_texts == ["<0>", "<1>"]

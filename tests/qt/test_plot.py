@@ -45,14 +45,17 @@ def test_cut_tokens_carry_the_letter_of_the_stage_that_cut_them(qtbot):
     view = views(1, seed=3)[0]
     plot.show_step(view, [p.name for p in PRESETS])
     plot.flush()
-    short_list = view.presets[1]
-    cut = [row for row in short_list.top if row.cut_by]
-    # top_k=3 keeps exactly three tokens of the synthetic vocabulary (Fan et al. 2018 definition).
+    steady, short_list = view.presets
+    # top_k=3 keeps exactly three tokens (Fan et al. 2018 definition), the three of highest raw
+    # probability (temperature 1 keeps the ranking), so every other listed token is cut by top_k.
     assert short_list.kept == 3
-    assert len(cut) == len(short_list.top) - 3
-    assert all(row.cut_by == "top_k" for row in cut)
+    assert [row.cut_by for row in short_list.top] == [None] * 3 + ["top_k"] * (len(short_list.top) - 3)
+    # Temperature 0.7 only rescales the logits and never removes a token, so every token Steady
+    # drops is cut by its top_p=0.9 (Holtzman et al. 2020), and the most probable one survives.
+    steady_cut = [row.cut_by for row in steady.top if row.cut_by]
+    assert steady.top[0].cut_by is None and steady_cut and set(steady_cut) == {"top_p"}
     points = plot._cuts[1].points()
-    assert len(points) == len(cut)
+    assert len(points) == len(short_list.top) - 3
     assert all(point.symbol() is plot._symbols["top_k"] for point in points)
 
 

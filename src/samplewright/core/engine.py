@@ -22,7 +22,6 @@ from typing import Any, Callable, Optional, Sequence
 import torch
 
 from . import batch, inspection
-from .chain import RowHistory, RowParams, run_chain
 from .errors import PassageError, RequestError
 from .model import LoadedModel
 from .presets import Preset
@@ -183,16 +182,12 @@ class Engine:
             raise RequestError(f"Sample token ids must lie in 0..{self.loaded.vocab_size - 1}.")
         history = tokens.ids + sample_ids
         if len(history) > self.loaded.context_length:
-            raise RequestError(f"The passage and the text after it come to {len(history)} tokens, more than the model's "
-                               f"context of {self.loaded.context_length}: shorten the passage or the text after it.")
+            raise RequestError(f"The passage and the text after it come to {len(history)} tokens, more than "
+                               f"the model's context of {self.loaded.context_length}: shorten one of them.")
         with torch.inference_mode():
-            logits = self._next_logits(tokens.ids, sample_ids).to(torch.float64)
-            raw = torch.softmax(logits, dim=-1).numpy()
-            ids = inspection.top_ids(raw, top)
-            texts = [self.token_text(i) for i in ids]
-            views = self._preset_steps(logits, presets, history, sample_ids, raw, ids, texts)
-        return StepView(raw_probs=raw, raw_entropy_bits=inspection.entropy_bits(raw), top_ids=ids,
-                        top_texts=texts, presets=views, context_tokens=len(history), drawn_id=drawn_id)
+            logits = self._next_logits(tokens.ids, sample_ids)
+            return inspection.step_view(logits, presets, self.token_text, history=history, generated=sample_ids,
+                                        top=top, drawn_id=drawn_id, context_tokens=len(history))
 
     def _next_logits(self, passage_ids: list[int], sample_ids: list[int]) -> torch.Tensor:
         state = self.passage_state(passage_ids)
@@ -200,20 +195,6 @@ class Engine:
             return state.logits
         logits, _ = self.forward(torch.tensor([sample_ids], dtype=torch.long), self.copy_cache(state, 1))
         return logits[0]
-
-    def _preset_steps(self, logits, presets, history, sample_ids, raw, ids, texts):
-        if not presets:
-            return []
-        rows = len(presets)
-        params = RowParams.from_presets(presets)
-        hist = RowHistory.build([history] * rows, [sample_ids] * rows,
-                                [p.no_repeat_ngram_size for p in presets], logits.shape[-1])
-        out = run_chain(logits.expand(rows, -1), params, hist, keep_stages=True)
-        probs = torch.softmax(out.logits, dim=-1).numpy()
-        return [inspection.preset_step(
-                    preset.name, preset.order, raw, probs[r],
-                    {name: stage[r].numpy() for name, stage in out.after_stage.items()}, ids, texts)
-                for r, preset in enumerate(presets)]
 
 
 def _special_prefix(full: list[int], plain: list[int]) -> list[int]:

@@ -1,4 +1,7 @@
-"""Summaries of next-token distributions for the step view (numpy only).
+"""Summaries of next-token distributions for the step view.
+
+The helpers use numpy only; :func:`step_view` runs the sampling chain (torch,
+imported when it is called).
 
 Entropy is Shannon's, in bits (log base 2), over the tokens with nonzero
 probability. A cut token is attributed to the first stage, in the preset's
@@ -8,11 +11,14 @@ probability cannot come back), so that stage is the one that cut it.
 """
 from __future__ import annotations
 
-from typing import Mapping, Optional, Sequence
+from typing import Callable, Mapping, Optional, Sequence, Union
 
 import numpy as np
 
-from .results import PresetStep, TokenRow
+from .presets import Preset
+from .results import PresetStep, StepView, TokenRow
+
+TokenTexts = Union[Callable[[int], str], Sequence[str]]
 
 
 def entropy_bits(probs) -> np.ndarray | float:
@@ -86,3 +92,47 @@ def preset_step(name: str, order: Sequence[str], raw_probs: np.ndarray, probs: n
             for i, t, c in zip(ids, texts, cuts)]
     return PresetStep(name=name, probs=probs, kept=int(kept.sum()), kept_raw_mass=float(raw_probs[kept].sum()),
                       entropy_bits=entropy_bits(probs), raw_entropy_bits=entropy_bits(raw_probs), top=rows)
+
+
+def step_view(logits, presets: Sequence[Preset], texts: TokenTexts, history: Sequence[int] = (),
+              generated: Sequence[int] = (), top: int = 20, drawn_id: Optional[int] = None,
+              context_tokens: int = 0) -> StepView:
+    """The next-token distribution at one step, raw and as each preset shapes it.
+
+    Args:
+        logits: 1-D raw next-token logits (numpy or torch).
+        presets: the presets to compare.
+        texts: the text of a token id: a function of the id, or a sequence indexed by it.
+        history: context token ids (passage + generated), seen by the repetition
+            penalty and the no-repeat n-gram rule.
+        generated: generated token ids only, seen by frequency/presence.
+        top: how many tokens (by raw probability) to list.
+        drawn_id: the token the inspected sample drew here, passed through.
+        context_tokens: how many tokens come before this step, passed through.
+
+    Returns:
+        The step view; each preset's ``probs`` is exactly :func:`chain.shape`'s.
+
+    Raises:
+        ValueError: for logits that are empty, NaN or +inf, or history ids outside the vocabulary.
+    """
+    import torch
+
+    from .chain import RowHistory, RowParams, as_logits_row, run_chain
+
+    row = as_logits_row(logits)
+    raw = torch.softmax(row[0], dim=-1).numpy()
+    ids = top_ids(raw, top)
+    names = [texts(i) if callable(texts) else texts[i] for i in ids]
+    steps = []
+    if presets:
+        rows = len(presets)
+        hist = RowHistory.build([list(history)] * rows, [list(generated)] * rows,
+                                [p.no_repeat_ngram_size for p in presets], row.shape[-1])
+        out = run_chain(row.expand(rows, -1), RowParams.from_presets(presets), hist, keep_stages=True)
+        probs = torch.softmax(out.logits, dim=-1).numpy()
+        steps = [preset_step(preset.name, preset.order, raw, probs[r],
+                             {name: stage[r].numpy() for name, stage in out.after_stage.items()}, ids, names)
+                 for r, preset in enumerate(presets)]
+    return StepView(raw_probs=raw, raw_entropy_bits=entropy_bits(raw), top_ids=ids, top_texts=names,
+                    presets=steps, context_tokens=context_tokens, drawn_id=drawn_id)
