@@ -96,3 +96,48 @@ def test_main_module_hands_arguments_to_the_command_line(tmp_path):
                           text=True, env=env, timeout=120)
     assert done.returncode == 0, done.stderr
     assert done.stdout.strip() == check_file(path)
+
+
+def menu_paths(window):
+    """Every "Menu ▸ Entry" path of the menu bar, as the user reads it (no & markers)."""
+    paths = set()
+    for menu_action in window.menuBar().actions():
+        title = menu_action.text().replace("&", "")
+        for action in menu_action.menu().actions():
+            if action.text():
+                paths.add(f"{title} ▸ {action.text()}")
+    return paths
+
+
+def test_messages_name_menu_entries_that_exist(window):
+    from samplewright.core.errors import SamplewrightError
+    from samplewright.qt.workers import EngineWorker
+
+    window.offer_copy = lambda title, text: window.offered.append(text) or False
+    window._save_failed("Quay notice", "The folder is read-only.")
+    paths = menu_paths(window)
+    assert any(path in window.offered[-1] for path in paths), window.offered[-1]
+    try:
+        EngineWorker(None, None, None)._need_engine()
+    except SamplewrightError as error:
+        message = str(error)
+    model_entries = [p.split(" ▸ ")[1] for p in paths if p.startswith("Model ▸ ")]
+    assert "Model menu" in message and all(entry in message for entry in model_entries[:2])
+
+
+def test_new_samples_without_an_inspected_token_names_the_preset(window, qtbot):
+    untick_all(window)
+    tick(window, 2)
+    generate(window, qtbot, samples=1, tokens=3)
+    window._clear_inspection()
+    window.actions["regenerate"].trigger()
+    assert window.session.presets[0].name in window.statusBar().currentMessage()
+    assert "first column" in window.statusBar().currentMessage()
+    qtbot.waitUntil(lambda: not window.running(), timeout=30000)
+
+
+def test_controls_have_accessible_names(window):
+    assert window.library_list.favourites_only.accessibleName() == "Favourites only"
+    assert window.model_progress.accessibleName()
+    from samplewright.core.model import DEFAULT_NAME
+    assert DEFAULT_NAME in window.actions["model_default"].toolTip()

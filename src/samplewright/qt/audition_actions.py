@@ -103,8 +103,13 @@ class AuditionActions:
         return f"{name} {DRAFT_MARK}" if drafted else name
 
     def regenerate_current(self) -> None:
-        """Regenerate the preset whose sample is being inspected (else the first column)."""
-        self.regenerate_column(self._inspected[0] if self._inspected else 0)
+        """New samples for the preset whose sample is being inspected (else the first column, said so)."""
+        column = self._inspected[0] if self._inspected else 0
+        self.regenerate_column(column)
+        if not self._inspected and self.running() and self.session.presets:
+            self.statusBar().showMessage(
+                f"Writing new samples for '{self._column_name(column)}', the first column. To choose another "
+                "preset, click a token in its samples first, or use the ↻ button above its column.")
 
     def _start(self, request: AuditionRequest, columns, notes: list[str]) -> None:
         if self.running():

@@ -64,6 +64,7 @@ class QtLibraryList(QWidget):
         self.tag_filter.setToolTip("Show only presets with this tag")
         self.favourites_only = QCheckBox("★ only")
         self.favourites_only.setToolTip("Show only your favourite presets")
+        self.favourites_only.setAccessibleName("Favourites only")
         self.tree = QTreeWidget()
         self.tree.setAccessibleName("Preset list")
         self.tree.setHeaderLabels(["Preset", "★"])

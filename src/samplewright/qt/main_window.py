@@ -17,6 +17,7 @@ from PySide6.QtWidgets import (QCheckBox, QFileDialog, QHBoxLayout, QInputDialog
                                QMessageBox, QProgressBar, QPushButton, QSpinBox, QSplitter, QVBoxLayout,
                                QWidget)
 
+from ..core.model import DEFAULT_NAME
 from ..core.session import AuditionSession
 from ..core.user_state import UserState, default_config_dir
 from .audition_actions import AuditionActions
@@ -135,6 +136,7 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
         self.model_label.setAccessibleName("Model status")
         self.model_progress = QProgressBar()
         self.model_progress.setMaximumWidth(220)
+        self.model_progress.setAccessibleName("Model loading progress")
         self.model_progress.hide()
         self.statusBar().addPermanentWidget(self.model_progress)
         self.statusBar().addPermanentWidget(self.model_label)
@@ -223,7 +225,8 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
             "model_folder": a("Open model folder…", self.choose_model_folder, None,
                               "Load a transformers model folder"),
             "model_gguf": a("Open GGUF file…", self.choose_model_file, None, "Load a .gguf model file"),
-            "model_default": a("Use the default model", lambda: self.load_model(None), None),
+            "model_default": a("Use the default model", lambda: self.load_model(None), None,
+                               f"Load the default model, {DEFAULT_NAME}"),
             "legend": a("What the letters mean", self.show_legend, "F1"),
         }
         # Delete only acts in the preset list, never on text being edited elsewhere in the window.

@@ -236,7 +236,7 @@ class PresetActions:
     def _save_failed(self, name: str, message: str) -> None:
         self.last_error = message
         text = (f"{message}\n\nYour edits to '{name}' are still in the editor. You can save a copy as a "
-                "file now and bring it into the library later with File ▸ Import.")
+                f"file now and bring it into the library later with File ▸ {self.actions['import'].text()}")
         if self.offer_copy("The preset was not saved", text):
             self.save_copy_as_file()
 

@@ -195,7 +195,7 @@ class EngineWorker(QObject):
     def _need_engine(self):
         if self._engine is None:
             raise SamplewrightError("No model is loaded yet. Wait for the model to finish loading, "
-                                    "or choose one with Model ▸ Switch model.")
+                                    "or choose one in the Model menu (Open model folder… or Open GGUF file…).")
         return self._engine
 
 
