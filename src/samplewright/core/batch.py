@@ -16,7 +16,7 @@ from typing import Callable, Optional
 
 import torch
 
-from . import sampler, stages
+from . import sampler
 from .chain import RowHistory, RowParams, run_chain
 from .errors import RequestError
 from .inspection import entropy_bits
@@ -90,6 +90,46 @@ def run_audition(engine, request: AuditionRequest, on_token=None, should_stop=No
                           samples=samples, cancelled=cancelled, seconds=time.perf_counter() - start)
 
 
+class NgramBans:
+    """The no-repeat n-gram rule for one growing token list, kept up to date one
+    token at a time: each (n-1)-gram maps to the tokens that have followed it, so a
+    step adds one n-gram instead of rescanning the whole history.
+
+    ``banned()`` always equals ``stages.banned_ngram_tokens(all tokens so far, n)``.
+    """
+
+    def __init__(self, ids, n: int):
+        self.n, self.length, self.tail = n, 0, []
+        self.follow: dict[tuple[int, ...], set[int]] = {}
+        for token in ids:
+            self.push(int(token))
+
+    def push(self, token: int) -> None:
+        """Add the next token (and the n-gram it completes)."""
+        self.length += 1
+        if self.n <= 0:
+            return
+        if self.length >= self.n:
+            self.follow.setdefault(tuple(self.tail), set()).add(token)
+        self.tail = (self.tail + [token])[-(self.n - 1):] if self.n > 1 else []
+
+    def banned(self) -> set[int]:
+        """The tokens that would repeat an n-gram already in the list."""
+        if self.n <= 0 or self.length < self.n:
+            return set()
+        return set(self.follow.get(tuple(self.tail), ()))
+
+
+def _stop_window(stops) -> int:
+    """How many final tokens to decode to see a stop string the newest token completes.
+
+    A token holds at least one byte, so a stop string spans at most its UTF-8
+    length in tokens; 4 more cover a character cut at the window's start (UTF-8
+    characters are at most 4 bytes) and a tokenizer dropping a leading space.
+    """
+    return max(len(stop.encode("utf-8")) for stop in stops) + 4
+
+
 def _cut_at_stop(text: str, stops) -> tuple[str, bool]:
     """``text`` cut before the earliest stop string, and whether one was found."""
     found = [text.find(s) for s in stops if s in text]
@@ -113,7 +153,6 @@ class _Batch:
 
     def __init__(self, engine, passage_ids: list[int], rows: list[_Row], seed: int):
         self.engine, self.rows, self.seed = engine, list(rows), seed
-        self.passage_ids = list(passage_ids)
         self.eos = engine.loaded.eos_ids
         state = engine.passage_state(passage_ids)
         self.vocab = state.logits.shape[-1]
@@ -123,6 +162,8 @@ class _Batch:
         self.params = RowParams.from_presets(presets)
         self.history = RowHistory.build([passage_ids] * len(rows), [[]] * len(rows),
                                         [p.no_repeat_ngram_size for p in presets], self.vocab)
+        passage_bans = {n: NgramBans(passage_ids, n) for n in {p.no_repeat_ngram_size for p in presets} if n}
+        self.ngrams = [_copy_bans(passage_bans.get(p.no_repeat_ngram_size)) for p in presets]
 
     def run(self, tally: _Tally, should_stop) -> bool:
         """Generate until every row has ended; True if cancelled."""
@@ -178,7 +219,8 @@ class _Batch:
                           drawn.kept[i], drawn.raw_entropy[i], drawn.entropy[i])
         row.sample.tokens.append(token)
         reason = None
-        if row.preset.stop and _cut_at_stop(self.engine.decode(row.ids), row.preset.stop)[1]:
+        stops = row.preset.stop
+        if stops and _cut_at_stop(self.engine.decode(row.ids[-_stop_window(stops):]), stops)[1]:
             reason = "stop"
         elif len(row.sample.tokens) >= row.limit:
             reason = "length"
@@ -196,6 +238,7 @@ class _Batch:
             self.cache.batch_select_indices(index)
             self.params, self.history = self.params.select(keep), self.history.select(keep)
             self.rows, ids = [self.rows[i] for i in keep], ids[index]
+            self.ngrams = [self.ngrams[i] for i in keep]
         self._extend_history(ids)
         self.logits, self.cache = self.engine.forward(ids.unsqueeze(-1), self.cache)
 
@@ -203,10 +246,20 @@ class _Batch:
         rows = torch.arange(len(self.rows))
         self.history.seen[rows, ids] = True
         self.history.counts[rows, ids] += 1
-        for r, row in enumerate(self.rows):
-            n = row.preset.no_repeat_ngram_size
-            if n:
-                banned = stages.banned_ngram_tokens(self.passage_ids + row.ids, n)
+        for r, bans in enumerate(self.ngrams):
+            if bans is not None:
+                bans.push(int(ids[r]))
+                banned = bans.banned()
                 self.history.banned[r] = False
                 if banned:
                     self.history.banned[r, sorted(banned)] = True
+
+
+def _copy_bans(bans: Optional[NgramBans]) -> Optional[NgramBans]:
+    """A row's own copy of the passage's n-gram index (None when the rule is off)."""
+    if bans is None:
+        return None
+    copy = NgramBans((), bans.n)
+    copy.length, copy.tail = bans.length, list(bans.tail)
+    copy.follow = {key: set(value) for key, value in bans.follow.items()}
+    return copy
