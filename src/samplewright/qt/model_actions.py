@@ -80,6 +80,10 @@ class ModelActions:
                 self.show_error("The model could not be loaded", message)
         elif kind in ("audition", "step"):
             self._audition_failed(serial, kind, message)
+        elif kind == "count" and serial == self._count_serial:
+            self._count_serial = None
+            if message:
+                self.passage.show_note(f"The tokens could not be counted: {message}")
 
     # -- passage ---------------------------------------------------------------------------
     def open_passage_dialog(self) -> None:
@@ -98,7 +102,11 @@ class ModelActions:
 
     def count_passage(self, text: str) -> None:
         """Ask the engine how many tokens the passage has."""
-        if self.model_info is not None and text.strip():
+        if self.model_info is None:
+            if text.strip():
+                self.passage.show_note("The token count appears once the model has loaded.")
+            return
+        if text.strip():
             if self._count_serial is not None:
                 self.engine.cancel(self._count_serial)
             self._count_serial = self.engine.count_passage(text)

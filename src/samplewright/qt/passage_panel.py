@@ -114,6 +114,11 @@ class QtPassagePanel(QWidget):
         self.info.setText("counting tokens…" if self.text().strip() else "empty")
         self._settle.start()
 
+    def show_note(self, text: str) -> None:
+        """Say why no token count is shown (no model yet, or counting failed) and drop the shading."""
+        self.info.setText(text)
+        self.editor.setExtraSelections([])
+
     def show_length(self, tokens: int, dropped: int, context: int, cut_at: Optional[int]) -> None:
         """Show the token count, and shade the part left out when the passage is too long.
 
@@ -137,7 +142,16 @@ class QtPassagePanel(QWidget):
             shade.format = fmt
             cursor = QTextCursor(self.editor.document())
             cursor.setPosition(0)
-            cursor.setPosition(min(cut_at, len(self.text())), QTextCursor.KeepAnchor)
+            cursor.setPosition(qt_position(self.text(), cut_at), QTextCursor.KeepAnchor)
             shade.cursor = cursor
             selections.append(shade)
         self.editor.setExtraSelections(selections)
+
+
+def qt_position(text: str, index: int) -> int:
+    """The Qt text position of Python character ``index`` in ``text``.
+
+    Qt counts UTF-16 code units, so a character outside the Basic Multilingual
+    Plane (an emoji, say) takes two positions where Python counts one.
+    """
+    return len(text[:max(0, index)].encode("utf-16-le")) // 2
