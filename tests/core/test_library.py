@@ -188,6 +188,26 @@ def test_names_are_unique_and_copies_get_free_names(lib):
     assert len(lib.unused_name(long_name, "copy")) == 120
 
 
+def test_two_libraries_on_one_folder_cannot_both_add_a_name(lib, folder):
+    # Each object loaded the folder before either wrote, so neither one's memory knows the other's
+    # preset; the name check must look at the folder itself (docs/library.md: the second is refused).
+    other = PresetLibrary(folder, user="tomas", seed=False, lock_timeout=1.0)
+    lib.add(FERRY)
+    with pytest.raises(LibraryError, match="'Harbour update' is already in the library"):
+        other.add(FERRY.replace(temperature=0.2))
+    assert [r.name for r in PresetLibrary(folder, seed=False).records()] == ["Harbour update"]
+
+
+def test_restore_checks_names_on_disk_not_in_memory(lib, folder):
+    record = lib.add(FERRY)
+    lib.delete(record.id)
+    PresetLibrary(folder, user="tomas", seed=False).add(FERRY.replace(temperature=0.1))
+    restored = lib.restore(record.id)   # lib has not rescanned: its memory has no 'Harbour update'
+    assert restored.name == "Harbour update (restored)"
+    names = sorted(r.name for r in PresetLibrary(folder, seed=False).records())
+    assert names == ["Harbour update", "Harbour update (restored)"]
+
+
 def test_find_by_id_name_and_case(lib):
     record = lib.add(FERRY)
     assert lib.find(record.id) == record

@@ -333,10 +333,10 @@ class PresetLibrary:
             trashed = read_record_file(source)
         except (OSError, BadContent):
             raise LibraryError(f"No restorable preset with id {record_id} in the trash of {self.folder}.") from None
-        name_taken = any(r.name == trashed.name for r in self._records.values())
         with self._writing(f"restore '{trashed.name}'"):
-            if (self.folder / trashed.file_name).exists() or name_taken:
-                renamed = trashed.preset.replace(name=self.unused_name(trashed.name, "restored"))
+            taken = {r.name for r in self._scan()[0].values()}  # under the lock, as on disk now
+            if (self.folder / trashed.file_name).exists() or trashed.name in taken:
+                renamed = trashed.preset.replace(name=self.unused_name(trashed.name, "restored", taken))
                 record = self._commit(PresetRecord(new_id(), 0, renamed), expected=0)
                 os.unlink(source)
             else:
@@ -345,9 +345,10 @@ class PresetLibrary:
         self._remember(record)
         return record
 
-    def unused_name(self, name: str, label: str) -> str:
-        """``name`` with " (label)", " (label 2)", ... appended, not used by any preset here."""
-        taken = {r.name for r in self._records.values()}
+    def unused_name(self, name: str, label: str, taken: set[str] | None = None) -> str:
+        """``name`` with " (label)", " (label 2)", ... appended, not used by any preset here
+        (or, when given, not in ``taken``)."""
+        taken = {r.name for r in self._records.values()} if taken is None else taken
         for n in itertools.count(1):
             tail = f" ({label})" if n == 1 else f" ({label} {n})"
             candidate = name[: MAX_TEXT["name"] - len(tail)].rstrip() + tail
@@ -399,7 +400,8 @@ class PresetLibrary:
         theirs = self._read_on_disk(mine.id)
         if (theirs.revision if theirs else 0) != expected:
             raise SaveConflict(mine, theirs)
-        if any(r.name == mine.name and r.id != mine.id for r in self._records.values()):
+        # The folder's current names, not the ones loaded: another program may have added one since.
+        if any(r.name == mine.name and r.id != mine.id for r in self._scan()[0].values()):
             raise LibraryError(f"A preset named '{mine.name}' is already in the library; choose another name.")
         now = now_iso()
         stamped = mine.preset.replace(created=mine.preset.created or now, modified=now)
