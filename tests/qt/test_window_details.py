@@ -171,3 +171,43 @@ def test_failed_token_count_is_reported(window, qtbot):
     window.engine.worker._engine = None          # the next count fails inside the worker
     window.passage.set_text("Dear passengers, from Monday the quay is closed")
     qtbot.waitUntil(lambda: "could not be counted" in window.passage.info.text(), timeout=5000)
+
+
+def test_damaged_settings_file_falls_back_to_defaults(qtbot, tiny_loader, tmp_path):
+    from samplewright.qt.main_window import SETTINGS_FILE, MainWindow
+
+    config = tmp_path / "cfg"
+    config.mkdir()
+    (config / SETTINGS_FILE).write_text(
+        "[window]\ngeometry=not-a-geometry\n[splitters]\nmain=@Variant(garbage\n"
+        "[passage]\nrecent={broken json\ntext=Dear passengers\nsource=/nowhere/letter.txt\n"
+        "[audition]\nsamples=four\nnew_tokens=99999999999999999999\nseed=1,2\nchosen=[unclosed\n",
+        encoding="utf-8")
+    win = MainWindow(model_loader=tiny_loader, library_dir=tmp_path / "lib", config_dir=config,
+                     load_on_start=False)
+    qtbot.addWidget(win)
+    assert win.samples_spin.value() == 4 and win.seed_spin.value() == 1234
+    assert win.tokens_spin.value() == win.tokens_spin.maximum()
+    assert win.passage.text() == "Dear passengers"
+    assert len(win.library_list.chosen) == 2
+    win.close()
+
+
+def test_passage_file_name_is_shown_after_restart(qtbot, tiny_loader, tmp_path):
+    from samplewright.qt.main_window import MainWindow
+
+    path = tmp_path / "timetable.txt"
+    path.write_text("From Monday the first sailing leaves at six.\n", encoding="utf-8")
+
+    def make():
+        win = MainWindow(model_loader=tiny_loader, library_dir=tmp_path / "lib", config_dir=tmp_path / "cfg",
+                         load_on_start=False)
+        qtbot.addWidget(win)
+        return win
+    first = make()
+    first.open_passage(str(path))
+    first.close()
+    second = make()
+    assert second.passage.source == str(path)
+    assert "timetable.txt" in second.passage.title.text()
+    second.close()

@@ -11,7 +11,7 @@ import json
 from pathlib import Path
 from typing import Callable, Optional
 
-from PySide6.QtCore import QSettings, Qt
+from PySide6.QtCore import QByteArray, QSettings, Qt
 from PySide6.QtGui import QAction, QKeySequence, QUndoStack
 from PySide6.QtWidgets import (QCheckBox, QFileDialog, QHBoxLayout, QInputDialog, QLabel, QMainWindow, QMenu,
                                QMessageBox, QProgressBar, QPushButton, QSpinBox, QSplitter, QVBoxLayout,
@@ -319,29 +319,34 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
 
     # -- state -----------------------------------------------------------------------------
     def restore_state(self) -> None:
-        """Bring back the window layout, passage, selection and audition settings of last time."""
+        """Bring back the window layout, passage, selection and audition settings of last time.
+
+        A damaged or hand-edited settings file never stops the window: each unreadable
+        value falls back to its default.
+        """
         s = self.settings
-        if s.value("window/geometry"):
-            self.restoreGeometry(s.value("window/geometry"))
-        else:
+        geometry = s.value("window/geometry")
+        if not (isinstance(geometry, QByteArray) and self.restoreGeometry(geometry)):
             self.resize(1400, 900)
         for name, splitter in self.splitters.items():
-            if s.value(f"splitters/{name}"):
-                splitter.restoreState(s.value(f"splitters/{name}"))
-        self.passage.set_recent(json.loads(s.value("passage/recent", "[]")))
-        text = s.value("passage/text", "")
+            state = s.value(f"splitters/{name}")
+            if isinstance(state, QByteArray):
+                splitter.restoreState(state)
+        recent = _setting_json(s, "passage/recent", [])
+        self.passage.set_recent([p for p in recent if isinstance(p, str)] if isinstance(recent, list) else [])
+        text = _setting_str(s, "passage/text")
         if text:
-            self.passage.set_text(text)
-            self.passage.source = s.value("passage/source", "") or None
+            self.passage.set_text(text, _setting_str(s, "passage/source") or None)
         self.fill_example_passage()
-        self.samples_spin.setValue(int(s.value("audition/samples", 4)))
-        self.tokens_spin.setValue(int(s.value("audition/new_tokens", 48)))
-        self.seed_spin.setValue(int(s.value("audition/seed", 1234)))
+        for key, spin, default in (("audition/samples", self.samples_spin, 4),
+                                   ("audition/new_tokens", self.tokens_spin, 48),
+                                   ("audition/seed", self.seed_spin, 1234)):
+            spin.setValue(min(max(_setting_int(s, key, default), spin.minimum()), spin.maximum()))
         self.new_seed_box.setChecked(s.value("audition/new_seed", "false") == "true")
-        chosen = json.loads(s.value("audition/chosen", "null") or "null")
-        if chosen is None:
+        chosen = _setting_json(s, "audition/chosen", None)
+        if not isinstance(chosen, list):
             chosen = [r.id for r in self.library.records()[:2]]
-        self.library_list.set_chosen(chosen)
+        self.library_list.set_chosen([i for i in chosen if isinstance(i, str)])
         if self.library_list.current_id() is None and self.library.records():
             self.library_list.select(self.library.records()[0].id)
 
@@ -389,6 +394,28 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
             self.library_list.cleanup()
             self.grid.cleanup()
         super().closeEvent(event)
+
+
+def _setting_str(settings: QSettings, key: str) -> str:
+    """A text setting, or "" when missing or not text."""
+    value = settings.value(key, "")
+    return value if isinstance(value, str) else ""
+
+
+def _setting_int(settings: QSettings, key: str, default: int) -> int:
+    """A whole-number setting, or ``default`` when missing or unreadable."""
+    try:
+        return int(settings.value(key, default))
+    except (TypeError, ValueError):
+        return default
+
+
+def _setting_json(settings: QSettings, key: str, default):
+    """A setting stored as JSON text, or ``default`` when missing or unreadable."""
+    try:
+        return json.loads(_setting_str(settings, key) or "null") if settings.contains(key) else default
+    except ValueError:
+        return default
 
 
 def _titled(title: str, widget: QWidget) -> QWidget:
