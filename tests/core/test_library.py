@@ -208,6 +208,26 @@ def test_restore_checks_names_on_disk_not_in_memory(lib, folder):
     assert names == ["Harbour update", "Harbour update (restored)"]
 
 
+def test_rescan_reads_again_only_the_files_that_changed(lib, folder):
+    # The window rescans on a timer; an unchanged file (same mtime, size, inode) keeps its parsed record.
+    first, second = lib.add(FERRY), lib.add(FERRY.replace(name="Tide table"))
+    other = PresetLibrary(folder, user="tomas", seed=False)
+    lib.rescan()                     # reads the file of the last add (written after the add's own scan)
+    before = library_module.files_parsed
+    assert not lib.rescan()
+    assert library_module.files_parsed == before
+    changed = other.save(other.get(second.id).edited(second.preset.replace(top_p=0.5)))
+    (folder / "notes.json").write_text("{ not json", encoding="utf-8")
+    before = library_module.files_parsed
+    report = lib.rescan()
+    assert library_module.files_parsed == before + 2        # the saved preset and the new file only
+    assert report.changed == (second.id,) and lib.get(second.id) == changed
+    assert lib.get(first.id) == first and [s.name for s in lib.skipped] == ["notes.json"]
+    before = library_module.files_parsed
+    lib.rescan()
+    assert library_module.files_parsed == before and [s.name for s in lib.skipped] == ["notes.json"]
+
+
 def test_find_by_id_name_and_case(lib):
     record = lib.add(FERRY)
     assert lib.find(record.id) == record

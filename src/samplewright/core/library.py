@@ -38,6 +38,9 @@ HISTORY_DIR = ".history"
 TRASH_DIR = ".trash"
 ConflictChoice = Literal["keep_both", "take_theirs", "overwrite"]
 CONFLICT_CHOICES: tuple[str, ...] = ("keep_both", "take_theirs", "overwrite")
+#: How many library files have been read and checked in this process (a rescan
+#: re-reads only changed files); tests and diagnostics look at it.
+files_parsed = 0
 
 
 def starter_presets() -> tuple[Preset, ...]:
@@ -128,6 +131,8 @@ class PresetLibrary:
         self.added, self.changed, self.removed = Emitter(), Emitter(), Emitter()
         self._records: dict[str, PresetRecord] = {}
         self.skipped: list[SkippedFile] = []
+        # File name -> ((mtime_ns, size, inode), the record or the reason it was skipped).
+        self._parsed: dict[str, tuple[tuple[int, int, int], PresetRecord | str]] = {}
         self._prepare_folder(self.folder == default_library_dir() if create is None else create, seed)
         self._records, self.skipped = self._scan()
 
@@ -217,21 +222,41 @@ class PresetLibrary:
             raise LibraryError(f"Could not read the library folder {self.folder}: {exc.strerror}.") from exc
         records: dict[str, PresetRecord] = {}
         skipped: list[SkippedFile] = []
+        parsed: dict[str, tuple[tuple[int, int, int], PresetRecord | str]] = {}
         for entry in entries:
             if entry.name.startswith(".") or not entry.is_file():
                 continue  # our own folders, lock, temporary files; hidden files of the sync tool
             try:
-                record = read_record_file(Path(entry.path))
+                outcome = self._read_entry(entry, parsed)
             except FileNotFoundError:
                 continue  # deleted by someone while we scanned
-            except BadContent as exc:
-                skipped.append(SkippedFile(entry.name, str(exc)))
-                continue
             except OSError as exc:
                 skipped.append(SkippedFile(entry.name, f"cannot be read ({exc.strerror})"))
                 continue
-            records[record.id] = record
+            if isinstance(outcome, str):
+                skipped.append(SkippedFile(entry.name, outcome))
+            else:
+                records[outcome.id] = outcome
+        self._parsed = parsed
         return records, skipped
+
+    def _read_entry(self, entry: os.DirEntry, parsed: dict) -> PresetRecord | str:
+        """The record in a folder entry, or why it is skipped. The file is read again only
+        when its (mtime_ns, size, inode) changed; atomic replacement gives a new inode."""
+        global files_parsed
+        info = entry.stat()  # before reading: a change after this is seen at the next scan
+        key = (info.st_mtime_ns, info.st_size, info.st_ino)
+        known = self._parsed.get(entry.name)
+        if known is not None and known[0] == key:
+            outcome = known[1]
+        else:
+            files_parsed += 1
+            try:
+                outcome = read_record_file(Path(entry.path))
+            except BadContent as exc:
+                outcome = str(exc)
+        parsed[entry.name] = (key, outcome)
+        return outcome
 
     # -- writing -------------------------------------------------------------------------------
 
