@@ -84,3 +84,17 @@ def window(qtbot, tiny_loader, tmp_path):
 def discard_edits(win):
     """Answer "discard" to the closing window's question about unsaved edits."""
     win.ask_unsaved = lambda name, problem: "discard"
+
+
+@pytest.fixture
+def make_window(qtbot, tiny_loader, tmp_path):
+    """``make_window()`` opens a window on the tiny model without loading it, with this test's
+    library and config folders (``config_dir=`` overrides), so a second call sees what the first kept."""
+    from samplewright.qt.main_window import MainWindow
+
+    def make(config_dir=None, **kwargs):
+        win = MainWindow(model_loader=tiny_loader, library_dir=tmp_path / "lib",
+                         config_dir=config_dir or tmp_path / "cfg", load_on_start=False, **kwargs)
+        qtbot.addWidget(win)
+        return win
+    return make

@@ -155,12 +155,8 @@ def test_cut_shading_counts_emoji_as_qt_does(window, qtbot):
     assert shade.cursor.selectedText() == text[:counted.cut_at]
 
 
-def test_token_count_without_a_model_says_when_it_appears(qtbot, tiny_loader, tmp_path):
-    from samplewright.qt.main_window import MainWindow
-
-    win = MainWindow(model_loader=tiny_loader, library_dir=tmp_path / "lib", config_dir=tmp_path / "cfg",
-                     load_on_start=False)
-    qtbot.addWidget(win)
+def test_token_count_without_a_model_says_when_it_appears(make_window, qtbot):
+    win = make_window()
     win.passage.set_text("Dear passengers, from Monday")
     qtbot.waitUntil(lambda: "counting" not in win.passage.info.text(), timeout=5000)
     assert "once the model has loaded" in win.passage.info.text()
@@ -173,8 +169,8 @@ def test_failed_token_count_is_reported(window, qtbot):
     qtbot.waitUntil(lambda: "could not be counted" in window.passage.info.text(), timeout=5000)
 
 
-def test_damaged_settings_file_falls_back_to_defaults(qtbot, tiny_loader, tmp_path):
-    from samplewright.qt.main_window import SETTINGS_FILE, MainWindow
+def test_damaged_settings_file_falls_back_to_defaults(make_window, tmp_path):
+    from samplewright.qt.main_window import SETTINGS_FILE
 
     config = tmp_path / "cfg"
     config.mkdir()
@@ -183,9 +179,7 @@ def test_damaged_settings_file_falls_back_to_defaults(qtbot, tiny_loader, tmp_pa
         "[passage]\nrecent={broken json\ntext=Dear passengers\nsource=/nowhere/letter.txt\n"
         "[audition]\nsamples=four\nnew_tokens=99999999999999999999\nseed=1,2\nchosen=[unclosed\n",
         encoding="utf-8")
-    win = MainWindow(model_loader=tiny_loader, library_dir=tmp_path / "lib", config_dir=config,
-                     load_on_start=False)
-    qtbot.addWidget(win)
+    win = make_window(config_dir=config)
     assert win.samples_spin.value() == 4 and win.seed_spin.value() == 1234
     assert win.tokens_spin.value() == win.tokens_spin.maximum()
     assert win.passage.text() == "Dear passengers"
@@ -193,17 +187,10 @@ def test_damaged_settings_file_falls_back_to_defaults(qtbot, tiny_loader, tmp_pa
     win.close()
 
 
-def test_passage_file_name_is_shown_after_restart(qtbot, tiny_loader, tmp_path):
-    from samplewright.qt.main_window import MainWindow
-
+def test_passage_file_name_is_shown_after_restart(make_window, tmp_path):
     path = tmp_path / "timetable.txt"
     path.write_text("From Monday the first sailing leaves at six.\n", encoding="utf-8")
-
-    def make():
-        win = MainWindow(model_loader=tiny_loader, library_dir=tmp_path / "lib", config_dir=tmp_path / "cfg",
-                         load_on_start=False)
-        qtbot.addWidget(win)
-        return win
+    make = make_window
     first = make()
     first.open_passage(str(path))
     first.close()

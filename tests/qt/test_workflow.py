@@ -192,15 +192,8 @@ def test_event_loop_keeps_serving_during_generation(window, qtbot):
     assert gaps.max() < 0.150, f"longest stall {gaps.max() * 1000:.0f} ms"
 
 
-def test_window_remembers_passage_and_selection(qtbot, tiny_loader, tmp_path):
-    from samplewright.qt.main_window import MainWindow
-
-    def make():
-        win = MainWindow(model_loader=tiny_loader, library_dir=tmp_path / "lib", config_dir=tmp_path / "cfg",
-                         load_on_start=False)
-        qtbot.addWidget(win)
-        return win
-
+def test_window_remembers_passage_and_selection(make_window):
+    make = make_window
     first = make()
     first.passage.set_text("Dear passengers, from Monday")
     untick_all(first)
