@@ -16,6 +16,7 @@ import sys
 from pathlib import Path
 from typing import Sequence
 
+from . import cli_exchange
 from .core.errors import SamplewrightError
 from .core.presets import Preset
 
@@ -62,12 +63,7 @@ def build_parser() -> argparse.ArgumentParser:
     window = sub.add_parser("window", help="open the desktop window")
     window.set_defaults(handler=run_window)
 
-    try:
-        from . import cli_exchange
-    except ImportError:  # the exchange commands are optional for a partial install
-        cli_exchange = None
-    if cli_exchange is not None:
-        cli_exchange.register(sub)
+    cli_exchange.register(sub)
     return parser
 
 

@@ -190,3 +190,12 @@ def test_preset_files_are_read_strictly_and_settings_files_give_all_their_preset
         resolve_presets(str(odd))
     code, _, err = run(capsys, "step", "--text", PASSAGE, "--preset", odd)
     assert code == 2 and "odd.json" in err and "Traceback" not in err
+
+
+def test_building_the_parser_loads_neither_jsonschema_nor_torch():
+    # Start-up: the schema checker and the model stack load only when a command needs them.
+    code = ("import sys; from samplewright.cli import build_parser; build_parser(); "
+            "print(sorted(m for m in ('jsonschema', 'torch', 'transformers') if m in sys.modules))")
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.strip() == "[]"

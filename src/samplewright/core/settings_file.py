@@ -20,14 +20,15 @@ import functools
 import json
 from importlib import resources
 from pathlib import Path
-from typing import Any, Callable, Iterable
-
-import jsonschema
+from typing import TYPE_CHECKING, Any, Callable, Iterable
 
 from .errors import LibraryError
 from .presets import Preset, PresetError, now_iso
 from .records import RECORD_FORMAT, SETTINGS_FORMAT, decode_record, foreign_reason
 from .storage import BadContent, atomic_write, current_user, dump_json, explain_os_error, parse_json, read_limited
+
+if TYPE_CHECKING:
+    import jsonschema
 
 FORMAT = SETTINGS_FORMAT
 FORMAT_VERSION = 1
@@ -95,13 +96,17 @@ def schema() -> dict[str, Any]:
 
 
 @functools.lru_cache(maxsize=1)
-def _validator() -> jsonschema.Draft202012Validator:
+def _validator() -> "jsonschema.Draft202012Validator":
+    import jsonschema  # here, not at module level: it takes a noticeable share of the CLI's start-up
+
     return jsonschema.Draft202012Validator(schema())
 
 
 def schema_problem(document: Any) -> str | None:
     """The most relevant way ``document`` breaks the schema, with its place (``presets[2].top_p``), or None."""
-    error = jsonschema.exceptions.best_match(_validator().iter_errors(document))
+    from jsonschema.exceptions import best_match
+
+    error = best_match(_validator().iter_errors(document))
     if error is None:
         return None
     place = ""
