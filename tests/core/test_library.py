@@ -85,8 +85,17 @@ def test_record_file_is_sorted_indented_json_named_by_a_uuid4_id(lib, folder):
     path = folder / f"{record.id}.json"
     text = path.read_text("utf-8")
     data = json.loads(text)
-    # Byte-for-byte what the standard library writes for sort_keys + indent 2 (diff-friendly).
-    assert text == json.dumps(data, indent=2, sort_keys=True, ensure_ascii=False) + "\n"
+    # Diff-friendly (common practice): one key per line, indented by two spaces per level, keys sorted
+    # at every level, non-ASCII kept as written, a final newline.
+    lines = text.split("\n")
+    assert text.endswith("}\n") and lines[0] == "{" and lines[-1] == ""
+    top_keys = [line.split('"')[1] for line in lines if line.startswith('  "')]
+    assert top_keys == sorted(data) and len(top_keys) == len(data)
+    inner_keys = [line.split('"')[1] for line in lines if line.startswith('    "')]
+    assert inner_keys == sorted(data["preset"]) and len(inner_keys) == len(data["preset"])
+    assert not any(line.startswith("\t") for line in lines)
+    island = lib.add(FERRY.replace(name="Ærø crossing"))
+    assert '"name": "Ærø crossing"' in (folder / island.file_name).read_text("utf-8")
     assert uuid.UUID(hex=record.id).version == 4
     assert data["format"] == "samplewright-preset" and data["format_version"] == 1
     assert data["revision"] == 1 and data["modified_by"] == "ingrid"

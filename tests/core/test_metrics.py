@@ -87,9 +87,15 @@ def test_preset_metrics_collects_every_key():
                _sample("the harbour bell rings at dusk", [1, 2, 3, 4, 6], [0.25] * 5, [5] * 5, "eos")]
     m = preset_metrics(samples)
     assert set(METRIC_KEYS) <= set(m)
+    # Worked by hand: surprisal is -log2 of the raw probability (Shannon 1948), averaged over all
+    # ten tokens: five at -log2(0.5) = 1 bit and five at -log2(0.25) = 2 bits -> (5*1 + 5*2) / 10 = 1.5.
     assert m["mean_surprisal_bits"] == pytest.approx(1.5)
+    # Worked by hand: kept counts 3 (five tokens) and 5 (five tokens) -> (5*3 + 5*5) / 10 = 4.0.
     assert m["mean_kept"] == pytest.approx(4.0)
+    # Worked by hand: both samples hold 5 tokens -> (5 + 5) / 2 = 5.0.
     assert m["mean_length"] == pytest.approx(5.0)
+    # Worked by hand (Welleck et al. 2020): ids 1,2,3,4,5 and 1,2,3,4,6 each hold two 4-grams, both
+    # distinct within their sample -> 1 - 2/2 = 0 for each, mean 0.
     assert m["seq_rep_4"] == 0.0
     assert m["stop_reasons"] == {"length": 1, "eos": 1}
 

@@ -41,12 +41,35 @@ def test_every_invalid_parameter_is_rejected_with_its_name(field, value):
     assert isinstance(err.value, ValueError)
 
 
-@pytest.mark.parametrize("field", [f for f in BAD_VALUES if f in FIELDS and f not in ("stop", "order")])
-def test_message_names_value_and_allowed_range(field):
+# The ranges as docs/settings-format.md states them, written out here rather than read from FIELDS;
+# each bad value lies beyond the upper end so none of the range's words is already in the value.
+@pytest.mark.parametrize("field, value, allowed", [
+    ("temperature", 5.5, "0 to 5"),
+    ("top_k", 1_000_001, "0 to 1000000"),
+    ("top_p", 1.25, "above 0 up to 1"),
+    ("min_p", 1.0, "0 up to, not including, 1"),
+    ("typical_p", 1.5, "above 0 up to 1"),
+    ("repetition_penalty", 10.5, "above 0 up to 10"),
+    ("frequency_penalty", 2.5, "-2 to 2"),
+    ("presence_penalty", 3.0, "-2 to 2"),
+    ("no_repeat_ngram_size", 33, "0 to 32"),
+    ("max_new_tokens", 513, "1 to 512"),
+])
+def test_message_names_value_and_allowed_range(field, value, allowed):
     with pytest.raises(PresetError) as err:
-        validate_field(field, BAD_VALUES[field][0])
-    assert repr(BAD_VALUES[field][0]) in str(err.value)
-    assert FIELDS[field][2].split(" ")[0] in str(err.value)
+        validate_field(field, value)
+    message = str(err.value)
+    assert message.startswith(f"{field}: ") and repr(value) in message
+    assert f"allowed: {allowed}" in message or f"allowed: a whole number from {allowed}" in message
+
+
+def test_preset_errors_are_user_facing_and_still_value_errors():
+    from samplewright.core.errors import SamplewrightError
+
+    with pytest.raises(PresetError) as err:
+        validate_field("top_p", 2)
+    assert isinstance(err.value, SamplewrightError) and isinstance(err.value, ValueError)
+    assert err.value.field == "top_p"
 
 
 def test_unknown_key_is_rejected_by_name():

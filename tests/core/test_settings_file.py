@@ -381,7 +381,10 @@ def test_check_file_recognises_the_three_kinds(tmp_path, lib):
     record = lib.find("Greedy")
     assert "a valid library preset 'Greedy', revision 1" in check_file(lib.folder / record.file_name)
     export_preset_file(LETTER, tmp_path / "one.json")
-    assert check_file(tmp_path / "one.json") == f"one.json: a valid preset 'Lost property reply' ({LETTER.describe()})"
+    verdict = check_file(tmp_path / "one.json")
+    assert verdict.startswith("one.json: a valid preset 'Lost property reply' (")
+    # LETTER sets temperature 0.8 and top_p 0.9; the summary names both settings with their values.
+    assert "temperature=0.8" in verdict and "top_p=0.9" in verdict and verdict.endswith(")")
 
 
 def test_check_file_raises_on_problems(tmp_path):
