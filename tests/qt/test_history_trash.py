@@ -142,3 +142,19 @@ def test_history_and_compare_are_in_the_presets_menu_and_the_list_menu(window, q
     dialog = window.findChild(HistoryDialog)
     assert dialog is not None and dialog.record_id == record.id
     dialog.close()
+
+
+def test_compare_survives_a_preset_deleted_by_a_colleague(window, qtbot):
+    from samplewright.core.library import PresetLibrary
+
+    first, second = window.library.records()[:2]
+    window.library_list.select(first.id)
+    window.actions["compare"].trigger()
+    dialog = window.findChild(CompareDialog)
+    PresetLibrary(window.library.folder, user="colleague").delete(second.id)
+    window.rescan_library()
+    assert second.id not in {r.id for r in window.library.records()}
+    dialog.refresh()
+    assert f"'{second.name}' is no longer in the library" in dialog.summary.text()
+    assert dialog.table.rows() == []
+    dialog.close()

@@ -11,7 +11,7 @@ from samplewright.core.errors import ModelError
 from samplewright.core.presets import Preset
 from samplewright.core.settings_file import check_file, export_settings
 
-from test_workflow import generate, tick, untick_all, with_tokens
+from test_workflow import generate, inspect_a_token, tick, untick_all, with_tokens
 
 
 def test_long_passage_shows_where_it_is_cut(window, qtbot, tiny_loaded):
@@ -64,11 +64,7 @@ def test_a_failed_model_switch_keeps_the_loaded_model(qtbot, tiny_loaded, tmp_pa
 
 
 def test_copy_puts_the_inspected_sample_on_the_clipboard(window, qtbot):
-    untick_all(window)
-    tick(window, 2)
-    generate(window, qtbot, samples=2, tokens=5)
-    column, row, sample = with_tokens(window, least=1)
-    window.inspect(column, row, 0)
+    _, _, sample = inspect_a_token(window, qtbot, tokens=5)
     window.actions["copy"].trigger()
     assert QGuiApplication.clipboard().text() == sample.text
 

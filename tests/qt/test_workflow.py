@@ -44,6 +44,16 @@ def generate(window, qtbot, samples=2, tokens=8, timeout=60000):
     qtbot.waitUntil(lambda: not window.running(), timeout=timeout)
 
 
+def inspect_a_token(window, qtbot, tokens):
+    """Generate two samples of two presets and inspect the first token of one; returns (column, row, sample)."""
+    untick_all(window)
+    tick(window, 2)
+    generate(window, qtbot, samples=2, tokens=tokens)
+    column, row, sample = with_tokens(window, least=1)
+    window.inspect(column, row, 0)
+    return column, row, sample
+
+
 def test_open_generate_click_token_shows_step(window, qtbot, tmp_path):
     path = tmp_path / "notice.txt"
     path.write_text(PASSAGE + "\n", encoding="utf-8")
@@ -205,3 +215,11 @@ def test_window_remembers_passage_and_selection(make_window):
     assert second.library_list.chosen == chosen
     assert second.seed_spin.value() == 77
     second.close()
+
+
+def test_new_run_clears_the_highlighted_token(window, qtbot):
+    column, row, _ = inspect_a_token(window, qtbot, tokens=4)
+    view = window.grid.view(column, row)
+    assert view.marked == 0
+    generate(window, qtbot, samples=2, tokens=4)       # same shape: the grid keeps its views
+    assert window.grid.view(column, row) is view and view.marked is None

@@ -235,6 +235,7 @@ class AuditionActions:
         if self._step_serial is not None:
             self.engine.cancel(self._step_serial)   # skipped if still queued; a late answer is dropped
         self._step_serial = None
+        self.grid.unmark()
         self.inspector.set_sample(None, None, None)
         self.inspector.plot.show_step(None, [])
 

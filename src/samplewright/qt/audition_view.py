@@ -310,15 +310,20 @@ class QtAuditionGrid(QScrollArea):
 
     def mark(self, column: int, row: int, step: Optional[int]) -> None:
         """Highlight one token; clears the highlight elsewhere."""
-        if self.current is not None and self.current != (column, row):
-            old = self._view(*self.current)
-            if old is not None:
-                old.mark_step(None)
+        if self.current != (column, row):
+            self.unmark()
         self.current = (column, row)
         view = self._view(column, row)
         if view is not None:
             view.mark_step(step)
             self.ensureWidgetVisible(view)
+
+    def unmark(self) -> None:
+        """Remove the highlight of the inspected token."""
+        old = self._view(*self.current) if self.current is not None else None
+        if old is not None:
+            old.mark_step(None)
+        self.current = None
 
     def _view(self, column: int, row: int) -> Optional[SampleView]:
         if 0 <= column < len(self.views) and 0 <= row < len(self.views[column]):

@@ -9,6 +9,8 @@ from __future__ import annotations
 from typing import Any, Optional
 
 from PySide6.QtCore import Qt
+
+from ..core.errors import LibraryError
 from PySide6.QtWidgets import (QComboBox, QDialog, QDialogButtonBox, QFormLayout, QHeaderView, QLabel,
                                QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
 
@@ -135,7 +137,15 @@ class CompareDialog(QDialog):
             self.summary.setText("The library has no presets to compare.")
             self.table.show_differences({}, "", "", "")
             return
-        left, right = self.library.get(a), self.library.get(b)
+        try:
+            left, right = self.library.get(a), self.library.get(b)
+        except LibraryError:       # deleted since the dialog opened, e.g. by a colleague
+            known = {r.id for r in self.library.records()}
+            gone = self.first.currentText() if a not in known else self.second.currentText()
+            self.summary.setText(f"'{gone}' is no longer in the library (it was deleted). "
+                                 "Choose another preset to compare.")
+            self.table.show_differences({}, "", "", "")
+            return
         differences = self.library.diff(left, right)
         differences.pop("name", None)       # the column titles already name them
         count = len(differences)
