@@ -28,7 +28,8 @@ def _add_common(parser: argparse.ArgumentParser) -> None:
     src.add_argument("--passage", metavar="FILE", help="draft passage to continue (.txt or .md, UTF-8)")
     src.add_argument("--text", metavar="STRING", help="the passage given directly")
     parser.add_argument("--preset", metavar="X", action="append", default=[],
-                        help="preset JSON file, or the name of a starter or library preset (repeatable)")
+                        help="preset file or settings file (all its presets), or a preset name: the "
+                             "library's first, else a starter preset's (repeatable)")
     parser.add_argument("--model", metavar="PATH", help="model folder or .gguf file (default: the built-in model)")
     parser.add_argument("--library", metavar="DIR",
                         help="preset library folder (default: the one last chosen in the window, else your own)")
