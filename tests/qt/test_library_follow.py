@@ -95,3 +95,17 @@ def test_a_vanished_folder_is_reported_without_a_message_box(window, qtbot):
     assert "is not there" in window.statusBar().currentMessage()
     assert len(list_names(window)) == count     # what was read stays listed
     assert window.errors == []
+
+
+def test_a_rescan_with_many_changes_rebuilds_the_list_once(window, qtbot):
+    colleague = colleague_of(window)
+    window.library_watch._periodic.stop()      # only the rescan below may read the folder
+    window.library_watch._settle.stop()
+    for n in range(5):
+        colleague.add(Preset(f"Pier update {n}", temperature=0.5 + n / 10))
+    rebuilds = []
+    window.library_list.current_changed.connect(
+        lambda _id: rebuilds.append(1) if window.library_list.refreshing else None)
+    window.rescan_library()
+    assert [f"Pier update {n}" for n in range(5)] == [n for n in list_names(window) if "Pier update" in n]
+    assert len(rebuilds) == 1

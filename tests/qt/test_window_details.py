@@ -11,7 +11,7 @@ from samplewright.core.errors import ModelError
 from samplewright.core.presets import Preset
 from samplewright.core.settings_file import check_file, export_settings
 
-from test_workflow import generate, inspect_a_token, tick, untick_all, with_tokens
+from test_workflow import generate, inspect_a_token, tick, untick_all
 
 
 def test_long_passage_shows_where_it_is_cut(window, qtbot, tiny_loaded):

@@ -20,7 +20,7 @@ class LibraryActions:
     """Mixed into :class:`~samplewright.qt.main_window.MainWindow`."""
 
     def _init_library_watch(self) -> None:
-        self.library_watch = LibraryWatch(self.library, parent=self)
+        self.library_watch = LibraryWatch(self.library, parent=self, batched=self.library_list.batched)
         self.library_watch.checked.connect(self._on_library_checked)
         self.library_watch.failed.connect(self._on_library_unreadable)
         self.library_watch.recovered.connect(

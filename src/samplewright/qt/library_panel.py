@@ -8,7 +8,8 @@ restoring the preset from the library's trash).
 """
 from __future__ import annotations
 
-from typing import Callable, Optional
+import contextlib
+from typing import Callable, Iterator, Optional
 
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QUndoStack
@@ -50,6 +51,10 @@ class QtLibraryList(QWidget):
         self.undo_stack = undo_stack
         self.report = report
         self.chosen: list[str] = []
+        # A rescan or import reports each changed preset on its own: inside batched() the rows are
+        # rebuilt once, as the batch ends, so callers still find the list current when it returns.
+        self._dirty = False
+        self._batching = 0
         self._build()
         for emitter in (library.added, library.changed, library.removed):
             emitter.connect(self._on_library_changed)
@@ -107,6 +112,7 @@ class QtLibraryList(QWidget):
         ``current_changed`` this emits comes with :attr:`refreshing` set, so a
         listener can tell it from the user's own choice.
         """
+        self._dirty = False
         current = self.current_id()
         current_row = self.tree.indexOfTopLevelItem(self.tree.currentItem()) if current else -1
         ids = {r.id for r in self.library.records()}
@@ -166,7 +172,21 @@ class QtLibraryList(QWidget):
         return [self.tree.topLevelItem(i) for i in range(self.tree.topLevelItemCount())]
 
     def _on_library_changed(self, record) -> None:
-        self.refresh()
+        if self._batching:
+            self._dirty = True
+        else:
+            self.refresh()
+
+    @contextlib.contextmanager
+    def batched(self) -> Iterator[None]:
+        """While inside, library changes are collected and the rows rebuilt once afterwards."""
+        self._batching += 1
+        try:
+            yield
+        finally:
+            self._batching -= 1
+            if not self._batching and self._dirty:
+                self.refresh()
 
     # -- user actions ---------------------------------------------------------------
     def _on_item_changed(self, item: QTreeWidgetItem, column: int) -> None:

@@ -13,7 +13,8 @@ reports an empty change.
 """
 from __future__ import annotations
 
-from typing import Optional
+import contextlib
+from typing import Callable, ContextManager, Optional
 
 from PySide6.QtCore import QFileSystemWatcher, QObject, QTimer, Signal
 
@@ -40,6 +41,7 @@ class LibraryWatch(QObject):
         library: the library to keep current.
         settle_ms: quiet time after the last file event before re-reading.
         check_ms: interval of the periodic re-read.
+        batched: a context manager the re-read runs in (the preset list's, to show the changes at once).
 
     Signals:
         checked(ChangeReport, dict): after each successful re-read: what changed
@@ -55,9 +57,10 @@ class LibraryWatch(QObject):
     recovered = Signal()
 
     def __init__(self, library, settle_ms: int = SETTLE_MS, check_ms: int = CHECK_MS,
-                 parent: Optional[QObject] = None):
+                 parent: Optional[QObject] = None, batched: Callable[[], ContextManager] = contextlib.nullcontext):
         super().__init__(parent)
         self.library = library
+        self._batched = batched
         self.problem: Optional[str] = None
         self._check_ms = check_ms
         self._watcher = QFileSystemWatcher(self)
@@ -78,7 +81,8 @@ class LibraryWatch(QObject):
         self._settle.stop()
         names = {record.id: record.name for record in self.library.records()}
         try:
-            report = self.library.rescan()
+            with self._batched():
+                report = self.library.rescan()
         except SamplewrightError as error:
             self._on_failure(str(error))
             return None

@@ -303,7 +303,8 @@ class PresetActions:
         if choices is None:
             return
         try:
-            written = apply_import(plan, self.library, choices)
+            with self.library_list.batched():
+                written = apply_import(plan, self.library, choices)
         except SamplewrightError as error:
             self.show_error("The import did not finish", str(error))
             return
