@@ -224,3 +224,17 @@ def test_editor_reads_a_decimal_comma_in_fractional_fields_only():
     assert parse_field("top_k", "40") == 40 and isinstance(parse_field("top_k", "40"), int)
     with pytest.raises(PresetError, match="whole numbers"):
         parse_field("no_repeat_ngram_size", "3,0")
+
+
+def test_editor_offers_every_core_field_and_knows_whole_numbers(window):
+    from samplewright.qt.preset_editor import NUMBER_FIELDS, WHOLE_NUMBERS
+
+    assert set(FIELDS) <= set(window.editor.inputs)
+    for field in NUMBER_FIELDS:
+        # The core's own check decides which fields take fractions: 0.5 is refused exactly by whole-number ones.
+        try:
+            validate_field(field, 0.5)
+            takes_fractions = True
+        except PresetError:
+            takes_fractions = False
+        assert (field in WHOLE_NUMBERS) == (not takes_fractions), field

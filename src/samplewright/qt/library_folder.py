@@ -21,12 +21,12 @@ from PySide6.QtWidgets import QLabel, QMenu, QMessageBox, QSizePolicy, QVBoxLayo
 
 from ..core.errors import LibraryError
 from ..core.library import PresetLibrary, default_library_dir, starter_presets
+from . import palette
 
 #: The key of the recent library folders in ``UserState.view``.
 RECENT_KEY = "recent_libraries"
 RECENT_LIMIT = 8
 OWN_LIBRARY = "my own library"
-NOTICE_STYLE = "#libraryNotice { background: #FFF4CC; border: 1px solid #E69F00; padding: 3px; }"
 
 
 def short_folder(folder: Path, width: int = 34) -> str:
@@ -87,7 +87,7 @@ class LibraryFolderActions:
         self.library_notice = QLabel()
         self.library_notice.setObjectName("libraryNotice")
         self.library_notice.setAccessibleName("Library notice")
-        self.library_notice.setStyleSheet(NOTICE_STYLE)
+        self.library_notice.setStyleSheet(palette.notice_style("libraryNotice"))
         self.library_notice.setWordWrap(True)
         self.library_notice.linkActivated.connect(lambda _link: self.library_notice.hide())
         self.library_notice.hide()

@@ -22,7 +22,9 @@ from ..core.session import AuditionSession
 from ..core.user_state import UserState, default_config_dir
 from .audition_actions import AuditionActions
 from .audition_view import QtAuditionGrid
+from . import palette
 from .library_actions import LibraryActions
+from .library_dialogs import captioned
 from .library_folder import LibraryFolderActions
 from .library_panel import QtLibraryList
 from .model_actions import ModelActions
@@ -125,7 +127,7 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
         self.caution.setObjectName("caution")
         self.caution.setWordWrap(True)
         self.caution.setAccessibleName("Review caution")
-        self.caution.setStyleSheet("#caution { background: #FFF4CC; border: 1px solid #E69F00; padding: 4px; }")
+        self.caution.setStyleSheet(palette.notice_style("caution", padding=4))
         central = QWidget()
         layout = QVBoxLayout(central)
         layout.setContentsMargins(6, 6, 6, 2)
@@ -419,11 +421,11 @@ def _setting_json(settings: QSettings, key: str, default):
 
 
 def _titled(title: str, widget: QWidget) -> QWidget:
+    """``widget`` under a bold caption, as one widget for a splitter."""
     box = QWidget()
-    layout = QVBoxLayout(box)
+    layout = captioned(title, widget)
     layout.setContentsMargins(0, 0, 0, 0)
-    layout.addWidget(QLabel(f"<b>{title}</b>"))
-    layout.addWidget(widget, 1)
+    box.setLayout(layout)
     return box
 
 

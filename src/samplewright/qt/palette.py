@@ -67,3 +67,13 @@ def preset_colour(index: int) -> str:
 def stage_legend() -> str:
     """One line explaining the stage letters, e.g. ``K = top-k · P = top-p``."""
     return " · ".join(f"{STAGE_LETTERS[s]} = {STAGE_NAMES[s]}" for s in DEFAULT_ORDER)
+
+
+#: Background and border of the pale notices (the review caution, library and editor notices).
+NOTICE_BACKGROUND, NOTICE_BORDER = "#FFF4CC", OKABE_ITO["orange"]
+
+
+def notice_style(object_name: str, padding: int = 3) -> str:
+    """The style sheet of a pale notice label with this object name."""
+    return (f"#{object_name} {{ background: {NOTICE_BACKGROUND}; border: 1px solid {NOTICE_BORDER}; "
+            f"padding: {padding}px; }}")

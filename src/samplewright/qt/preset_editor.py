@@ -15,13 +15,15 @@ from PySide6.QtWidgets import (QAbstractItemView, QFormLayout, QHBoxLayout, QLab
 
 from ..core.presets import FIELDS, Preset, PresetError, validate_field
 from . import palette
+from .difference_view import value_text
 
-NUMBER_FIELDS = ("temperature", "top_k", "top_p", "min_p", "typical_p", "repetition_penalty",
-                 "frequency_penalty", "presence_penalty", "no_repeat_ngram_size", "max_new_tokens")
-WHOLE_NUMBERS = ("top_k", "no_repeat_ngram_size", "max_new_tokens")
+#: The core's numeric parameters, in its order: a whole-number default marks a whole-number field,
+#: so a field added to the core appears here without an edit.
+NUMBER_FIELDS = tuple(f for f, spec in FIELDS.items() if isinstance(spec[1], (int, float))
+                      and not isinstance(spec[1], bool))
+WHOLE_NUMBERS = tuple(f for f in NUMBER_FIELDS if isinstance(FIELDS[f][1], int))
 ERROR_STYLE = "color: #B00020;"
 HELP_STYLE = "color: #505050;"
-NOTICE_STYLE = "#editorNotice { background: #FFF4CC; border: 1px solid #E69F00; padding: 3px; }"
 
 
 def parse_field(field: str, text: str) -> Any:
@@ -65,9 +67,9 @@ def field_text(field: str, value: Any) -> str:
         return ", ".join(value)
     if field == "stop":
         return "\n".join(s.replace("\n", "\\n") for s in value)
-    if isinstance(value, float):
-        return f"{value:g}"
-    return str(value)
+    if isinstance(value, str):
+        return value                  # typed text is shown exactly as stored
+    return value_text(value, field)
 
 
 class QtPresetEditor(QWidget):
@@ -98,7 +100,7 @@ class QtPresetEditor(QWidget):
         self.notice.setWordWrap(True)
         self.notice.setObjectName("editorNotice")
         self.notice.setAccessibleName("Editor notice")
-        self.notice.setStyleSheet(NOTICE_STYLE)
+        self.notice.setStyleSheet(palette.notice_style("editorNotice"))
         self.notice.hide()
         form_host = QWidget()
         self.form = QFormLayout(form_host)
