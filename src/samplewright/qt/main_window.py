@@ -7,11 +7,10 @@ audition's samples live in a core :class:`AuditionSession`.
 """
 from __future__ import annotations
 
-import json
 from pathlib import Path
 from typing import Callable, Optional
 
-from PySide6.QtCore import QByteArray, QSettings, Qt
+from PySide6.QtCore import QSettings, Qt
 from PySide6.QtGui import QAction, QKeySequence, QUndoStack
 from PySide6.QtWidgets import (QCheckBox, QFileDialog, QHBoxLayout, QInputDialog, QLabel, QMainWindow, QMenu,
                                QMessageBox, QProgressBar, QPushButton, QSpinBox, QSplitter, QVBoxLayout,
@@ -32,6 +31,7 @@ from .passage_panel import QtPassagePanel
 from .preset_actions import PresetActions
 from .preset_editor import QtPresetEditor
 from .step_inspector import QtStepInspector
+from .window_state import WindowState
 from .workers import EngineThread, EngineWorker
 
 CAUTION = ("⚠ Generated text can be wrong, biased or offensive. A person must review it under your "
@@ -54,7 +54,8 @@ def _default_metrics(samples):
     return preset_metrics(samples)
 
 
-class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderActions, ModelActions, QMainWindow):
+class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderActions, ModelActions, WindowState,
+                 QMainWindow):
     """The Samplewright workbench.
 
     Args:
@@ -319,66 +320,6 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
             "removed; the letter names the stage that removed it:\n" + stage_legend() +
             "\n\nThe shaded row with ▶ is the token the inspected sample drew."))
 
-    # -- state -----------------------------------------------------------------------------
-    def restore_state(self) -> None:
-        """Bring back the window layout, passage, selection and audition settings of last time.
-
-        A damaged or hand-edited settings file never stops the window: each unreadable
-        value falls back to its default.
-        """
-        s = self.settings
-        geometry = s.value("window/geometry")
-        if not (isinstance(geometry, QByteArray) and self.restoreGeometry(geometry)):
-            self.resize(1400, 900)
-        for name, splitter in self.splitters.items():
-            state = s.value(f"splitters/{name}")
-            if isinstance(state, QByteArray):
-                splitter.restoreState(state)
-        recent = _setting_json(s, "passage/recent", [])
-        self.passage.set_recent([p for p in recent if isinstance(p, str)] if isinstance(recent, list) else [])
-        text = _setting_str(s, "passage/text")
-        if text:
-            self.passage.set_text(text, _setting_str(s, "passage/source") or None)
-        self.fill_example_passage()
-        for key, spin, default in (("audition/samples", self.samples_spin, 4),
-                                   ("audition/new_tokens", self.tokens_spin, 48),
-                                   ("audition/seed", self.seed_spin, 1234)):
-            spin.setValue(min(max(_setting_int(s, key, default), spin.minimum()), spin.maximum()))
-        self.new_seed_box.setChecked(s.value("audition/new_seed", "false") == "true")
-        chosen = _setting_json(s, "audition/chosen", None)
-        if not isinstance(chosen, list):
-            chosen = [r.id for r in self.library.records()[:2]]
-        self.library_list.set_chosen([i for i in chosen if isinstance(i, str)])
-        if self.library_list.current_id() is None and self.library.records():
-            self.library_list.select(self.library.records()[0].id)
-
-    def save_state(self) -> None:
-        """Remember layout, passage, selection and audition settings for next time."""
-        s = self.settings
-        s.setValue("window/geometry", self.saveGeometry())
-        for name, splitter in self.splitters.items():
-            s.setValue(f"splitters/{name}", splitter.saveState())
-        s.setValue("passage/text", self.passage.text()[:500_000])
-        s.setValue("passage/source", self.passage.source or "")
-        s.setValue("passage/recent", json.dumps(self.passage.recent))
-        s.setValue("audition/samples", self.samples_spin.value())
-        s.setValue("audition/new_tokens", self.tokens_spin.value())
-        s.setValue("audition/seed", self.seed_spin.value())
-        s.setValue("audition/new_seed", "true" if self.new_seed_box.isChecked() else "false")
-        s.setValue("audition/chosen", json.dumps(self.library_list.chosen))
-        s.sync()
-
-    def fill_example_passage(self) -> None:
-        """Offer the example passages and put the first one in the editor."""
-        try:
-            from ..core.passages import demo_passages
-            examples = demo_passages()
-        except ImportError:
-            examples = {}
-        self.passage.set_examples(examples, lambda title, text: self.passage.set_text(text))
-        if examples and not self.passage.text().strip():
-            self.passage.set_text(next(iter(examples.values())))
-
     def closeEvent(self, event) -> None:
         """Ask about unsaved edits, then cancel any run, stop the engine thread and keep the window's state."""
         if not self._closed:
@@ -396,28 +337,6 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
             self.library_list.cleanup()
             self.grid.cleanup()
         super().closeEvent(event)
-
-
-def _setting_str(settings: QSettings, key: str) -> str:
-    """A text setting, or "" when missing or not text."""
-    value = settings.value(key, "")
-    return value if isinstance(value, str) else ""
-
-
-def _setting_int(settings: QSettings, key: str, default: int) -> int:
-    """A whole-number setting, or ``default`` when missing or unreadable."""
-    try:
-        return int(settings.value(key, default))
-    except (TypeError, ValueError):
-        return default
-
-
-def _setting_json(settings: QSettings, key: str, default):
-    """A setting stored as JSON text, or ``default`` when missing or unreadable."""
-    try:
-        return json.loads(_setting_str(settings, key) or "null") if settings.contains(key) else default
-    except ValueError:
-        return default
 
 
 def _titled(title: str, widget: QWidget) -> QWidget:

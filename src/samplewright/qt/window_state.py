@@ -1,0 +1,93 @@
+"""The window's memory between sessions: layout, passage, audition settings and ticked presets,
+kept in ``window.ini``. A damaged or hand-edited file never stops the window: each unreadable
+value falls back to its default."""
+from __future__ import annotations
+
+import json
+
+from PySide6.QtCore import QByteArray, QSettings
+
+
+class WindowState:
+    """Mixed into :class:`~samplewright.qt.main_window.MainWindow`."""
+
+    def restore_state(self) -> None:
+        """Bring back the window layout, passage, selection and audition settings of last time.
+
+        A damaged or hand-edited settings file never stops the window: each unreadable
+        value falls back to its default.
+        """
+        s = self.settings
+        geometry = s.value("window/geometry")
+        if not (isinstance(geometry, QByteArray) and self.restoreGeometry(geometry)):
+            self.resize(1400, 900)
+        for name, splitter in self.splitters.items():
+            state = s.value(f"splitters/{name}")
+            if isinstance(state, QByteArray):
+                splitter.restoreState(state)
+        recent = _setting_json(s, "passage/recent", [])
+        self.passage.set_recent([p for p in recent if isinstance(p, str)] if isinstance(recent, list) else [])
+        text = _setting_str(s, "passage/text")
+        if text:
+            self.passage.set_text(text, _setting_str(s, "passage/source") or None)
+        self.fill_example_passage()
+        for key, spin, default in (("audition/samples", self.samples_spin, 4),
+                                   ("audition/new_tokens", self.tokens_spin, 48),
+                                   ("audition/seed", self.seed_spin, 1234)):
+            spin.setValue(min(max(_setting_int(s, key, default), spin.minimum()), spin.maximum()))
+        self.new_seed_box.setChecked(s.value("audition/new_seed", "false") == "true")
+        chosen = _setting_json(s, "audition/chosen", None)
+        if not isinstance(chosen, list):
+            chosen = [r.id for r in self.library.records()[:2]]
+        self.library_list.set_chosen([i for i in chosen if isinstance(i, str)])
+        if self.library_list.current_id() is None and self.library.records():
+            self.library_list.select(self.library.records()[0].id)
+
+    def save_state(self) -> None:
+        """Remember layout, passage, selection and audition settings for next time."""
+        s = self.settings
+        s.setValue("window/geometry", self.saveGeometry())
+        for name, splitter in self.splitters.items():
+            s.setValue(f"splitters/{name}", splitter.saveState())
+        s.setValue("passage/text", self.passage.text()[:500_000])
+        s.setValue("passage/source", self.passage.source or "")
+        s.setValue("passage/recent", json.dumps(self.passage.recent))
+        s.setValue("audition/samples", self.samples_spin.value())
+        s.setValue("audition/new_tokens", self.tokens_spin.value())
+        s.setValue("audition/seed", self.seed_spin.value())
+        s.setValue("audition/new_seed", "true" if self.new_seed_box.isChecked() else "false")
+        s.setValue("audition/chosen", json.dumps(self.library_list.chosen))
+        s.sync()
+
+    def fill_example_passage(self) -> None:
+        """Offer the example passages and put the first one in the editor."""
+        try:
+            from ..core.passages import demo_passages
+            examples = demo_passages()
+        except ImportError:
+            examples = {}
+        self.passage.set_examples(examples, lambda title, text: self.passage.set_text(text))
+        if examples and not self.passage.text().strip():
+            self.passage.set_text(next(iter(examples.values())))
+
+
+def _setting_str(settings: QSettings, key: str) -> str:
+    """A text setting, or "" when missing or not text."""
+    value = settings.value(key, "")
+    return value if isinstance(value, str) else ""
+
+
+def _setting_int(settings: QSettings, key: str, default: int) -> int:
+    """A whole-number setting, or ``default`` when missing or unreadable."""
+    try:
+        return int(settings.value(key, default))
+    except (TypeError, ValueError):
+        return default
+
+
+def _setting_json(settings: QSettings, key: str, default):
+    """A setting stored as JSON text, or ``default`` when missing or unreadable."""
+    try:
+        return json.loads(_setting_str(settings, key) or "null") if settings.contains(key) else default
+    except ValueError:
+        return default
