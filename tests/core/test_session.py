@@ -57,3 +57,13 @@ def test_abandon_makes_the_running_run_stale():
     session.abandon()
     assert not session.running
     assert not session.add_events(serial, [event(0, 0, 0)])
+
+
+def test_clear_forgets_every_sample_and_stales_the_running_run():
+    session = AuditionSession()
+    serial = session.begin(request(["A", "B"]))
+    session.add_events(serial, [event(0, 0, 0)])
+    session.clear()
+    assert session.sample(SampleRef(0, 0)) is None and session.sample_count() == 0
+    assert session.presets == [] and not session.running
+    assert not session.add_events(serial, [event(0, 0, 1)])

@@ -129,6 +129,15 @@ class AuditionSession:
             self.serial += 1
             self.running = False
 
+    def clear(self) -> None:
+        """Forget every column and sample (e.g. after the model changed); a
+        running run becomes stale first."""
+        self.abandon()
+        self.presets, self.samples, self.metrics = [], [], []
+        self.columns, self.passage_ids = [], []
+        self.passage, self.passage_dropped = "", 0
+        self.done_tokens = self.total_tokens = 0
+
     def sample(self, ref: SampleRef) -> Optional[Sample]:
         """The sample at ``ref``, or None when there is no such sample."""
         if 0 <= ref.column < len(self.samples) and 0 <= ref.row < len(self.samples[ref.column]):

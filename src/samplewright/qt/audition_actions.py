@@ -244,10 +244,7 @@ class AuditionActions:
         if self.running():
             self.engine.cancel(self._run_serial)
             self._run_serial = None
-        self.session.abandon()
-        # The core session has no reset of its own: empty its columns so nothing old can be inspected.
-        self.session.presets, self.session.samples, self.session.metrics = [], [], []
-        self.session.columns, self.session.passage_ids = [], []
+        self.session.clear()
         self._last_request = None
         self._column_ids, self._column_drafts = [], []
         self._clear_inspection()
