@@ -35,15 +35,18 @@ def private_folders(tmp_path, monkeypatch):
 
 @pytest.fixture(autouse=True)
 def no_engine_thread_left():
-    """Fail a test that leaves an engine QThread running (set up first, so it checks last)."""
+    """Fail a test that leaves an engine QThread or a library folder reading running
+    (set up first, so it checks last)."""
     yield
+    from samplewright.qt.library_watch import scans_running
     from samplewright.qt.workers import running_threads
 
     deadline = time.monotonic() + 5
-    while running_threads() and time.monotonic() < deadline:
+    while (running_threads() or scans_running()) and time.monotonic() < deadline:
         time.sleep(0.05)
     left = running_threads()
     assert not left, f"{len(left)} engine thread(s) still running after the test"
+    assert not scans_running(), f"{scans_running()} library folder reading(s) still running after the test"
 
 
 @pytest.fixture

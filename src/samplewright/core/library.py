@@ -83,6 +83,25 @@ class ChangeReport:
         return bool(self.added or self.changed or self.removed)
 
 
+@dataclasses.dataclass(frozen=True)
+class FolderSnapshot:
+    """One reading of a library folder by :meth:`PresetLibrary.scan_folder`, not yet applied.
+
+    Attributes:
+        folder: the folder read.
+        generation: the library's write count when the reading began.
+        records: the presets found, by id.
+        skipped: the files that are not usable presets.
+        parsed: the parse cache as it should be after this reading.
+    """
+
+    folder: Path
+    generation: int
+    records: dict[str, PresetRecord]
+    skipped: tuple[SkippedFile, ...]
+    parsed: dict[str, tuple[tuple[int, int, int], PresetRecord | str]]
+
+
 class SaveConflict(LibraryError):
     """The preset changed (or was deleted) on disk since it was loaded.
 
@@ -133,6 +152,10 @@ class PresetLibrary:
         self.skipped: list[SkippedFile] = []
         # File name -> ((mtime_ns, size, inode), the record or the reason it was skipped).
         self._parsed: dict[str, tuple[tuple[int, int, int], PresetRecord | str]] = {}
+        # A count of this library's writes, and the count at each preset's latest one, so a
+        # snapshot read before a write cannot undo it (apply_snapshot).
+        self._generation = 0
+        self._touched: dict[str, int] = {}
         self._prepare_folder(self.folder == default_library_dir() if create is None else create, seed)
         self._records, self.skipped = self._scan()
 
@@ -193,27 +216,28 @@ class PresetLibrary:
         raise LibraryError(f"No preset named '{wanted}' in {self.folder}. Presets there: {known}.")
 
     def rescan(self) -> ChangeReport:
-        """Re-read the folder, report and emit what others added, changed or removed.
+        """Re-read the folder, report and emit what others added, changed or removed
+        (:meth:`scan_folder` then :meth:`apply_snapshot`).
 
         Raises:
             LibraryError: when the folder is gone or unreadable (the presets in memory stay).
         """
-        records, skipped = self._scan()
-        old = self._records
-        report = ChangeReport(
-            added=tuple(sorted(set(records) - set(old))),
-            changed=tuple(sorted(i for i in records if i in old and records[i] != old[i])),
-            removed=tuple(sorted(set(old) - set(records))))
-        self._records, self.skipped = records, skipped
-        for record_id in report.added:
-            self.added.emit(records[record_id])
-        for record_id in report.changed:
-            self.changed.emit(records[record_id])
-        for record_id in report.removed:
-            self.removed.emit(old[record_id])
-        return report
+        return self.apply_snapshot(self.scan_folder())
 
-    def _scan(self) -> tuple[dict[str, PresetRecord], list[SkippedFile]]:
+    def scan_folder(self) -> FolderSnapshot:
+        """Read the folder without changing this library: safe to call on another thread.
+
+        It changes no records, emits nothing and never writes the parse cache; it only
+        reads it. No lock is needed for that: the cache dict is replaced whole, never
+        changed in place, so a reader keeps a consistent one.
+
+        Returns:
+            What the folder holds now, to hand to :meth:`apply_snapshot` on the owning thread.
+
+        Raises:
+            LibraryError: when the folder is gone or unreadable.
+        """
+        generation, cache = self._generation, self._parsed
         try:
             entries = sorted(os.scandir(self.folder), key=lambda e: e.name)
         except FileNotFoundError:
@@ -227,7 +251,7 @@ class PresetLibrary:
             if entry.name.startswith(".") or not entry.is_file():
                 continue  # our own folders, lock, temporary files; hidden files of the sync tool
             try:
-                outcome = self._read_entry(entry, parsed)
+                outcome = self._read_entry(entry, cache, parsed)
             except FileNotFoundError:
                 continue  # deleted by someone while we scanned
             except OSError as exc:
@@ -237,16 +261,63 @@ class PresetLibrary:
                 skipped.append(SkippedFile(entry.name, outcome))
             else:
                 records[outcome.id] = outcome
-        self._parsed = parsed
-        return records, skipped
+        return FolderSnapshot(self.folder, generation, records, tuple(skipped), parsed)
 
-    def _read_entry(self, entry: os.DirEntry, parsed: dict) -> PresetRecord | str:
+    def apply_snapshot(self, snapshot: FolderSnapshot) -> ChangeReport:
+        """Take a :meth:`scan_folder` result as the library's state; report and emit the differences.
+
+        Presets this library wrote or deleted after the snapshot began keep their state in
+        memory (the snapshot may have read the folder before that write).
+
+        Args:
+            snapshot: a snapshot of this library's folder.
+
+        Returns:
+            What others added, changed or removed.
+
+        Raises:
+            LibraryError: when the snapshot is of another folder.
+        """
+        if snapshot.folder != self.folder:
+            raise LibraryError(f"A reading of {snapshot.folder} cannot update the library in {self.folder}.")
+        old = self._records
+        records, parsed = dict(snapshot.records), dict(snapshot.parsed)
+        newer = {i for i, generation in self._touched.items() if generation > snapshot.generation}
+        for record_id in newer:
+            records.pop(record_id, None)
+            if record_id in old:
+                records[record_id] = old[record_id]
+            parsed.pop(record_file_name(record_id), None)  # read again at the next scan
+        own_files = {record_file_name(i) for i in newer}
+        report = ChangeReport(
+            added=tuple(sorted(set(records) - set(old))),
+            changed=tuple(sorted(i for i in records if i in old and records[i] != old[i])),
+            removed=tuple(sorted(set(old) - set(records))))
+        self._records, self._parsed = records, parsed
+        self.skipped = [s for s in snapshot.skipped if s.name not in own_files]
+        for record_id in report.added:
+            self.added.emit(records[record_id])
+        for record_id in report.changed:
+            self.changed.emit(records[record_id])
+        for record_id in report.removed:
+            self.removed.emit(old[record_id])
+        return report
+
+    def _scan(self) -> tuple[dict[str, PresetRecord], list[SkippedFile]]:
+        """Read the folder now on this thread, keeping the parse cache (the records in memory stay)."""
+        snapshot = self.scan_folder()
+        self._parsed = snapshot.parsed
+        return dict(snapshot.records), list(snapshot.skipped)
+
+    @staticmethod
+    def _read_entry(entry: os.DirEntry, cache: dict, parsed: dict) -> PresetRecord | str:
         """The record in a folder entry, or why it is skipped. The file is read again only
-        when its (mtime_ns, size, inode) changed; atomic replacement gives a new inode."""
+        when its (mtime_ns, size, inode) changed since ``cache``; atomic replacement gives a
+        new inode. The outcome goes into ``parsed``; ``cache`` is only read."""
         global files_parsed
         info = entry.stat()  # before reading: a change after this is seen at the next scan
         key = (info.st_mtime_ns, info.st_size, info.st_ino)
-        known = self._parsed.get(entry.name)
+        known = cache.get(entry.name)
         if known is not None and known[0] == key:
             outcome = known[1]
         else:
@@ -337,6 +408,7 @@ class PresetLibrary:
             with contextlib.suppress(FileNotFoundError):  # already deleted by someone else
                 move(self.folder / record.file_name, trash / record.file_name)
         del self._records[record_id]
+        self._touch(record_id)
         self.removed.emit(record)
 
     def trash(self) -> list[PresetRecord]:
@@ -447,13 +519,19 @@ class PresetLibrary:
             raise LibraryError(f"The library file {path.name} is not a valid preset ({exc}); it is left as it "
                                "is. Save your preset under another name or export it.") from None
 
+    def _touch(self, record_id: str) -> None:
+        self._generation += 1
+        self._touched[record_id] = self._generation
+
     def _remember(self, record: PresetRecord) -> None:
+        self._touch(record.id)
         is_new = record.id not in self._records
         self._records[record.id] = record
         (self.added if is_new else self.changed).emit(record)
 
     def _take_disk_version(self, record_id: str, theirs: PresetRecord | None) -> None:
         if theirs is None and record_id in self._records:
+            self._touch(record_id)
             self.removed.emit(self._records.pop(record_id))
         elif theirs is not None and self._records.get(record_id) != theirs:
             self._remember(theirs)

@@ -7,19 +7,29 @@ re-read once the burst is over. A slow periodic check catches what the
 operating system does not report (network drives often send no events) and,
 after the folder has gone, notices when it comes back.
 
+Reading a slow network folder can take seconds, so these re-reads run
+``PresetLibrary.scan_folder`` on a worker thread (one at a time; requests
+made meanwhile are merged into one more reading) and apply the result with
+``apply_snapshot`` here, on the window's thread, where the library emits its
+events. A reading meant for a library the window has since left is dropped.
+The reload command (:meth:`LibraryWatch.check_now`) still reads at once: the
+user asked for it and waits for its answer.
+
 The window's own writes need no special handling: the library already holds
-what it wrote, so the re-read that follows them finds nothing new and
-reports an empty change.
+what it wrote (and ``apply_snapshot`` keeps writes newer than the reading),
+so the re-read that follows them finds nothing new and reports an empty change.
 """
 from __future__ import annotations
 
 import contextlib
+import threading
 from typing import Callable, ContextManager, Optional
 
-from PySide6.QtCore import QFileSystemWatcher, QObject, QTimer, Signal
+from PySide6.QtCore import QFileSystemWatcher, QObject, QRunnable, QThreadPool, QTimer, Signal
 
 from ..core.errors import SamplewrightError
 from ..core.library import ChangeReport
+from .workers import user_message
 
 #: Wait this long after the last file event before re-reading the folder.
 SETTLE_MS = 300
@@ -29,6 +39,44 @@ CHECK_MS = 30_000
 RETRY_MS = 3_000
 #: How many preset names a change message spells out before saying "and N more".
 NAMES_SHOWN = 3
+
+_running_lock = threading.Lock()
+_running = 0
+
+
+def scans_running() -> int:
+    """How many folder readings started here have not finished yet (tests check it is 0)."""
+    return _running
+
+
+class _Delivery(QObject):
+    """Carries a finished reading from the worker thread to the watch's thread (a queued signal)."""
+
+    done = Signal(int, object, object)   # serial, FolderSnapshot or None, problem text or None
+
+
+class _Scan(QRunnable):
+    """One ``scan_folder`` call on a pool thread; touches nothing but the library's read side."""
+
+    def __init__(self, library, serial: int, delivery: _Delivery):
+        super().__init__()
+        global _running
+        self.library, self.serial, self.delivery = library, serial, delivery
+        with _running_lock:
+            _running += 1
+
+    def run(self) -> None:
+        global _running
+        try:
+            try:
+                snapshot, problem = self.library.scan_folder(), None
+            except Exception as error:  # SamplewrightError mostly; nothing may escape a pool thread
+                snapshot, problem = None, user_message(error)
+            with contextlib.suppress(RuntimeError):  # the watch is gone: nobody waits for this
+                self.delivery.done.emit(self.serial, snapshot, problem)
+        finally:
+            with _running_lock:
+                _running -= 1
 
 
 class LibraryWatch(QObject):
@@ -66,23 +114,64 @@ class LibraryWatch(QObject):
         self._watcher = QFileSystemWatcher(self)
         self._settle = QTimer(self, singleShot=True, interval=settle_ms)
         self._periodic = QTimer(self, interval=check_ms)
+        # Readings run one at a time; _serial tells a reading for the current library from a stale one.
+        self._pool = QThreadPool(self)
+        self._pool.setMaxThreadCount(1)
+        self._delivery = _Delivery(self)
+        self._delivery.done.connect(self._on_scanned)
+        self._serial, self._scanning, self._again, self._stopped = 0, False, False, False
         self._watcher.directoryChanged.connect(self._on_event)
         self._watcher.fileChanged.connect(self._on_event)
-        self._settle.timeout.connect(self.check_now)
-        self._periodic.timeout.connect(self.check_now)
+        self._settle.timeout.connect(self.request_check)
+        self._periodic.timeout.connect(self.request_check)
         self._rewatch()
         self._periodic.start()
 
     def _on_event(self, _path: str) -> None:
         self._settle.start()     # restarting the timer is the debounce
 
-    def check_now(self) -> Optional[ChangeReport]:
-        """Re-read the folder at once; returns the report, or None when it could not be read."""
+    def request_check(self) -> None:
+        """Re-read the folder on a worker thread; the result is applied here when it arrives.
+
+        While a reading is under way, further requests are merged into one more reading after it.
+        """
         self._settle.stop()
+        if self._stopped:
+            return
+        if self._scanning:
+            self._again = True
+            return
+        self._scanning, self._again = True, False
+        self._pool.start(_Scan(self.library, self._serial, self._delivery))
+
+    def _on_scanned(self, serial: int, snapshot, problem: Optional[str]) -> None:
+        self._scanning = False
+        if self._stopped:
+            return
+        if serial == self._serial:      # else the library was switched or re-read since it began
+            if problem is not None:
+                self._on_failure(problem)
+            else:
+                self._apply(snapshot)
+        if self._again:
+            self.request_check()
+
+    def check_now(self) -> Optional[ChangeReport]:
+        """Re-read the folder at once, on this thread; returns the report, or None when it could not be read."""
+        self._settle.stop()
+        self._serial += 1       # a reading already under way is older than this one
+        try:
+            snapshot = self.library.scan_folder()
+        except SamplewrightError as error:
+            self._on_failure(str(error))
+            return None
+        return self._apply(snapshot)
+
+    def _apply(self, snapshot) -> Optional[ChangeReport]:
         names = {record.id: record.name for record in self.library.records()}
         try:
             with self._batched():
-                report = self.library.rescan()
+                report = self.library.apply_snapshot(snapshot)
         except SamplewrightError as error:
             self._on_failure(str(error))
             return None
@@ -119,6 +208,7 @@ class LibraryWatch(QObject):
     def set_library(self, library) -> None:
         """Follow another library from now on (the previous folder is no longer watched)."""
         self._settle.stop()
+        self._serial += 1       # a reading of the previous folder is dropped when it arrives
         self.library = library
         self.problem = None
         self._periodic.setInterval(self._check_ms)
@@ -126,9 +216,12 @@ class LibraryWatch(QObject):
         self._periodic.start()
 
     def stop(self) -> None:
-        """Stop watching (the window is closing)."""
+        """Stop watching (the window is closing); waits for a reading under way to end."""
+        self._stopped = True
+        self._serial += 1
         self._settle.stop()
         self._periodic.stop()
+        self._pool.waitForDone()
         paths = self.watched_paths()
         if paths:
             self._watcher.removePaths(paths)
