@@ -44,18 +44,9 @@ class QtPassagePanel(QWidget):
         self.info.setWordWrap(True)
         self.info.setTextInteractionFlags(Qt.TextSelectableByMouse)
         self.open_button = QToolButton()
-        self.recent_button = QToolButton()
-        self.recent_button.setText("Recent")
-        self.recent_button.setPopupMode(QToolButton.InstantPopup)
-        self.recent_button.setToolTip("Open a passage file used before")
-        self.recent_menu = QMenu(self)
-        self.recent_button.setMenu(self.recent_menu)
-        self.examples_button = QToolButton()
-        self.examples_button.setText("Examples")
-        self.examples_button.setPopupMode(QToolButton.InstantPopup)
-        self.examples_button.setToolTip("Fill in one of the example passages")
-        self.examples_menu = QMenu(self)
-        self.examples_button.setMenu(self.examples_menu)
+        self.recent_button, self.recent_menu = self._menu_button("Recent", "Open a passage file used before")
+        self.examples_button, self.examples_menu = self._menu_button(
+            "Examples", "Fill in one of the example passages")
         header = QHBoxLayout()
         header.addWidget(self.title)
         header.addWidget(self.info, 1)
@@ -72,6 +63,15 @@ class QtPassagePanel(QWidget):
         self._settle.timeout.connect(lambda: self.passage_settled.emit(self.text()))
         self.editor.textChanged.connect(self._on_text_changed)
 
+
+    def _menu_button(self, text: str, tip: str) -> tuple[QToolButton, QMenu]:
+        """A tool button that opens its own menu at once."""
+        button, menu = QToolButton(), QMenu(self)
+        button.setText(text)
+        button.setPopupMode(QToolButton.InstantPopup)
+        button.setToolTip(tip)
+        button.setMenu(menu)
+        return button, menu
     def set_open_action(self, action) -> None:
         """Show the window's "open passage" action as this panel's button."""
         self.open_button.setDefaultAction(action)
