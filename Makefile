@@ -7,7 +7,7 @@ STAMP  := $(VENV)/.installed-stamp
 export HF_HUB_OFFLINE := 1
 export TRANSFORMERS_OFFLINE := 1
 
-.PHONY: run test test-core benchmark screenshots clean
+.PHONY: run test test-core lint benchmark screenshots clean
 
 $(STAMP): pyproject.toml Makefile tools/ensure-qt-libs.sh
 	bash tools/ensure-qt-libs.sh
@@ -23,7 +23,13 @@ $(STAMP): pyproject.toml Makefile tools/ensure-qt-libs.sh
 run: $(STAMP)
 	$(PY) -m samplewright
 
-test: $(STAMP)
+# Lint and type check first: a violation fails `make test` and CI.
+lint: $(STAMP)
+	$(VENV)/bin/ruff check .
+	$(VENV)/bin/ruff format --check .
+	$(VENV)/bin/mypy
+
+test: lint
 	QT_QPA_PLATFORM=offscreen $(PY) -m pytest -q
 
 test-core: $(STAMP)

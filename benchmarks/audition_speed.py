@@ -11,6 +11,7 @@ Targets: ratio >= 2.0, ready from the cache <= 5 s, peak RSS <= 1.5 GB.
 
 Usage: python benchmarks/audition_speed.py [--repeats N] [--tokens N]
 """
+
 from __future__ import annotations
 
 import argparse
@@ -35,19 +36,27 @@ PASSAGE = "electric-ferry"
 def ensure_cache() -> None:
     """Convert the default model in a child process if its cache is missing,
     so this process measures a start from the cache."""
-    from samplewright.core.model import cache_key, cache_root, default_model_path
+    from samplewright.core.engine.model import cache_key, cache_root, default_model_path
 
     if not (cache_root() / cache_key(default_model_path()) / "config.json").is_file():
         print("converting the default model once (first run) ...", flush=True)
-        subprocess.run([sys.executable, "-c", "from samplewright.core.model import load_model; load_model()"],
-                       check=True)
+        subprocess.run(
+            [sys.executable, "-c", "from samplewright.core.engine.model import load_model; load_model()"], check=True
+        )
 
 
 def generate_kwargs(preset) -> dict:
     """transformers' generate() arguments for the same sampling parameters."""
-    return dict(do_sample=True, temperature=preset.temperature, top_k=preset.top_k, top_p=preset.top_p,
-                min_p=preset.min_p or None, typical_p=preset.typical_p,
-                repetition_penalty=preset.repetition_penalty, no_repeat_ngram_size=preset.no_repeat_ngram_size)
+    return dict(
+        do_sample=True,
+        temperature=preset.temperature,
+        top_k=preset.top_k,
+        top_p=preset.top_p,
+        min_p=preset.min_p or None,
+        typical_p=preset.typical_p,
+        repetition_penalty=preset.repetition_penalty,
+        no_repeat_ngram_size=preset.no_repeat_ngram_size,
+    )
 
 
 def run_baseline(loaded, passage_ids, presets, tokens: int, seed: int) -> tuple[int, float]:
@@ -60,16 +69,22 @@ def run_baseline(loaded, passage_ids, presets, tokens: int, seed: int) -> tuple[
     generated, start = 0, time.perf_counter()
     with torch.inference_mode():
         for preset in presets:
-            out = model.generate(input_ids, attention_mask=torch.ones_like(input_ids), max_new_tokens=tokens,
-                                 num_return_sequences=SAMPLES, pad_token_id=min(eos), **generate_kwargs(preset))
-            for row in out[:, input_ids.shape[1]:].tolist():
+            out = model.generate(
+                input_ids,
+                attention_mask=torch.ones_like(input_ids),
+                max_new_tokens=tokens,
+                num_return_sequences=SAMPLES,
+                pad_token_id=min(eos),
+                **generate_kwargs(preset),
+            )
+            for row in out[:, input_ids.shape[1] :].tolist():
                 generated += next((i for i, t in enumerate(row) if t in eos), len(row))
     return generated, time.perf_counter() - start
 
 
 def run_engine(loaded, passage, presets, tokens: int, seed: int) -> tuple[int, float]:
     """One audition with a fresh engine (its passage pass included)."""
-    from samplewright.core.engine import Engine
+    from samplewright.core.engine.engine import Engine
     from samplewright.core.results import AuditionRequest
 
     start = time.perf_counter()
@@ -80,8 +95,9 @@ def run_engine(loaded, passage, presets, tokens: int, seed: int) -> tuple[int, f
 def main(argv=None) -> int:
     """Run the comparison and print the figures."""
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--repeats", type=int, default=3,
-                        help="runs of each side, alternating; the fastest of each counts")
+    parser.add_argument(
+        "--repeats", type=int, default=3, help="runs of each side, alternating; the fastest of each counts"
+    )
     parser.add_argument("--tokens", type=int, default=48)
     args = parser.parse_args(argv)
     ensure_cache()
@@ -89,21 +105,23 @@ def main(argv=None) -> int:
     import torch  # noqa: F401  (timed: part of getting the model ready)
     import transformers  # noqa: F401
 
-    from samplewright.core.model import load_model
+    from samplewright.core.engine.model import load_model
 
     imported = time.perf_counter()
     loaded = load_model()
     ready, loading = time.perf_counter() - start, time.perf_counter() - imported
     from samplewright import Preset
-    from samplewright.core.engine import Engine
-    from samplewright.core.passages import demo_passages
+    from samplewright.core.engine.engine import Engine
+    from samplewright.core.engine.passages import demo_passages
 
     passage = demo_passages()[PASSAGE]
     presets = [Preset.from_dict(p) for p in PRESETS]
     passage_ids = Engine(loaded).encode_passage(passage).ids
     print(f"model: {loaded.describe()}")
-    print(f"work: {len(presets)} presets x {SAMPLES} samples x {args.tokens} new tokens, "
-          f"passage of {len(passage_ids)} tokens, torch threads: {__import__('torch').get_num_threads()}")
+    print(
+        f"work: {len(presets)} presets x {SAMPLES} samples x {args.tokens} new tokens, "
+        f"passage of {len(passage_ids)} tokens, torch threads: {__import__('torch').get_num_threads()}"
+    )
     # Warm up both paths once (first calls pay one-off set-up costs).
     run_engine(loaded, passage, presets[:1], 2, seed=0)
     run_baseline(loaded, passage_ids, presets[:1], 2, seed=0)
@@ -118,8 +136,10 @@ def main(argv=None) -> int:
     print(f"engine audition: {engine_rate:.1f} tokens/s")
     print(f"baseline generate(): {baseline_rate:.1f} tokens/s")
     print(f"ratio: {engine_rate / baseline_rate:.2f}")
-    print(f"model ready from the cache: {ready:.2f} s ({loading:.2f} s in load_model, "
-          f"the rest importing torch and transformers)")
+    print(
+        f"model ready from the cache: {ready:.2f} s ({loading:.2f} s in load_model, "
+        f"the rest importing torch and transformers)"
+    )
     print(f"peak resident memory: {resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024:.0f} MB")
     return 0
 

@@ -7,6 +7,7 @@ result to the plot, as the window does for a real step.
 Run:  python examples/plot_demo.py --iterations 50
       (add --stay to keep the window open afterwards)
 """
+
 from __future__ import annotations
 
 import argparse
@@ -14,20 +15,50 @@ import sys
 
 import numpy as np
 
-WORDS = ("ferry", "harbour", "timetable", "sailing", "delayed", "tide", "pier", "ticket", "crossing",
-         "weather", "notice", "passengers", "island", "morning", "evening", "cancelled", "return",
-         "quay", "cabin", "deck", "captain", "route", "fare", "service", "storm")
+WORDS = (
+    "ferry",
+    "harbour",
+    "timetable",
+    "sailing",
+    "delayed",
+    "tide",
+    "pier",
+    "ticket",
+    "crossing",
+    "weather",
+    "notice",
+    "passengers",
+    "island",
+    "morning",
+    "evening",
+    "cancelled",
+    "return",
+    "quay",
+    "cabin",
+    "deck",
+    "captain",
+    "route",
+    "fare",
+    "service",
+    "storm",
+)
 
 
 def synthetic_view(rng: np.random.Generator, presets, top: int = 20):
     """A StepView of random logits, built by the core exactly as the window's steps are."""
-    from samplewright.core.inspection import step_view
+    from samplewright.core.sampling.inspection import step_view
 
     logits = rng.normal(0.0, 2.0, len(WORDS))
     raw = np.exp(logits - logits.max())
     drawn = int(rng.choice(len(WORDS), p=raw / raw.sum()))
-    return step_view(logits, presets, [" " + word for word in WORDS], top=top, drawn_id=drawn,
-                     context_tokens=int(rng.integers(10, 200)))
+    return step_view(
+        logits,
+        presets,
+        [" " + word for word in WORDS],
+        top=top,
+        drawn_id=drawn,
+        context_tokens=int(rng.integers(10, 200)),
+    )
 
 
 def main(argv=None) -> int:
@@ -43,8 +74,11 @@ def main(argv=None) -> int:
     from samplewright.qt.distribution_plot import DistributionPlot
 
     app = QApplication.instance() or QApplication(sys.argv)
-    presets = [Preset("Steady", temperature=0.7, top_p=0.9), Preset("Short list", top_k=5),
-               Preset("Floor", min_p=0.1, temperature=1.2)]
+    presets = [
+        Preset("Steady", temperature=0.7, top_p=0.9),
+        Preset("Short list", top_k=5),
+        Preset("Floor", min_p=0.1, temperature=1.2),
+    ]
     plot = DistributionPlot(top_n=20)
     plot.resize(520, 760)
     plot.show()

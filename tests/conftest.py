@@ -11,6 +11,7 @@ winners. It is built once per session and is deterministic.
 run on a machine pays the half-minute GGUF conversion; set
 ``SAMPLEWRIGHT_CACHE_DIR`` to point it elsewhere.
 """
+
 from __future__ import annotations
 
 import os
@@ -35,20 +36,33 @@ def build_tiny_model(seed: int = 1234):
     from tokenizers import Tokenizer, decoders, models, pre_tokenizers, trainers
     from transformers import LlamaConfig, LlamaForCausalLM, PreTrainedTokenizerFast
 
-    from samplewright.core.model import model_from_parts
+    from samplewright.core.engine.model import model_from_parts
 
     bpe = Tokenizer(models.BPE())
     bpe.pre_tokenizer = pre_tokenizers.ByteLevel(add_prefix_space=False)
     bpe.decoder = decoders.ByteLevel()
-    trainer = trainers.BpeTrainer(vocab_size=360, special_tokens=["<eos>"], show_progress=False,
-                                  initial_alphabet=pre_tokenizers.ByteLevel.alphabet())
+    trainer = trainers.BpeTrainer(
+        vocab_size=360,
+        special_tokens=["<eos>"],
+        show_progress=False,
+        initial_alphabet=pre_tokenizers.ByteLevel.alphabet(),
+    )
     bpe.train_from_iterator(TINY_CORPUS * 3, trainer)
     tokenizer = PreTrainedTokenizerFast(tokenizer_object=bpe, eos_token="<eos>")
-    config = LlamaConfig(vocab_size=bpe.get_vocab_size(), hidden_size=32, intermediate_size=64,
-                         num_hidden_layers=2, num_attention_heads=4, num_key_value_heads=2,
-                         max_position_embeddings=TINY_CONTEXT, initializer_range=0.3,
-                         eos_token_id=tokenizer.eos_token_id, pad_token_id=tokenizer.eos_token_id,
-                         bos_token_id=None, tie_word_embeddings=False)
+    config = LlamaConfig(
+        vocab_size=bpe.get_vocab_size(),
+        hidden_size=32,
+        intermediate_size=64,
+        num_hidden_layers=2,
+        num_attention_heads=4,
+        num_key_value_heads=2,
+        max_position_embeddings=TINY_CONTEXT,
+        initializer_range=0.3,
+        eos_token_id=tokenizer.eos_token_id,
+        pad_token_id=tokenizer.eos_token_id,
+        bos_token_id=None,
+        tie_word_embeddings=False,
+    )
     generator_state = torch.random.get_rng_state()
     torch.manual_seed(seed)
     model = LlamaForCausalLM(config)
@@ -74,6 +88,6 @@ def tiny_model_folder(tiny_model, tmp_path_factory):
 @pytest.fixture(scope="session")
 def default_model():
     """The real default model (from the converted cache), loaded once per session."""
-    from samplewright.core.model import load_model
+    from samplewright.core.engine.model import load_model
 
     return load_model()

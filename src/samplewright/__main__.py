@@ -1,4 +1,5 @@
 """``python -m samplewright``: the window with no arguments, the command line otherwise."""
+
 from __future__ import annotations
 
 import sys
@@ -9,8 +10,10 @@ def main(argv=None) -> int:
     argv = sys.argv[1:] if argv is None else list(argv)
     if not argv:
         from .qt.app import main as window_main
+
         return window_main()
     from .cli import main as cli_main
+
     return cli_main(argv)
 
 

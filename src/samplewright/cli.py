@@ -7,14 +7,15 @@ library/exchange commands registered by :mod:`samplewright.cli_exchange`.
 
 Errors print one line on stderr and exit with status 2; never a traceback.
 """
+
 from __future__ import annotations
 
 import argparse
 import json
 import os
 import sys
+from collections.abc import Sequence
 from pathlib import Path
-from typing import Sequence
 
 from . import cli_exchange
 from .core.errors import SamplewrightError
@@ -27,20 +28,29 @@ def _add_common(parser: argparse.ArgumentParser) -> None:
     src = parser.add_mutually_exclusive_group()
     src.add_argument("--passage", metavar="FILE", help="draft passage to continue (.txt or .md, UTF-8)")
     src.add_argument("--text", metavar="STRING", help="the passage given directly")
-    parser.add_argument("--preset", metavar="X", action="append", default=[],
-                        help="preset file or settings file (all its presets), or a preset name: the "
-                             "library's first, else a starter preset's (repeatable)")
+    parser.add_argument(
+        "--preset",
+        metavar="X",
+        action="append",
+        default=[],
+        help="preset file or settings file (all its presets), or a preset name: the "
+        "library's first, else a starter preset's (repeatable)",
+    )
     parser.add_argument("--model", metavar="PATH", help="model folder or .gguf file (default: the built-in model)")
-    parser.add_argument("--library", metavar="DIR",
-                        help="preset library folder (default: the one last chosen in the window, else your own)")
+    parser.add_argument(
+        "--library",
+        metavar="DIR",
+        help="preset library folder (default: the one last chosen in the window, else your own)",
+    )
     parser.add_argument("--top", type=int, default=10, metavar="N", help="top tokens to show (default 10)")
     parser.add_argument("--json", action="store_true", help="print one JSON object instead of text")
 
 
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser with every subcommand."""
-    parser = argparse.ArgumentParser(prog="samplewright", description=(
-        "Audition sampling presets on a draft passage with a local model."))
+    parser = argparse.ArgumentParser(
+        prog="samplewright", description=("Audition sampling presets on a draft passage with a local model.")
+    )
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
 
     aud = sub.add_parser("audition", help="write samples of the passage for several presets")
@@ -52,8 +62,12 @@ def build_parser() -> argparse.ArgumentParser:
 
     step = sub.add_parser("step", help="show how each preset reshapes the next-token distribution")
     _add_common(step)
-    step.add_argument("--after", metavar="STRING", default="",
-                      help="text already generated after the passage (the step comes after it)")
+    step.add_argument(
+        "--after",
+        metavar="STRING",
+        default="",
+        help="text already generated after the passage (the step comes after it)",
+    )
     step.set_defaults(handler=run_step)
 
     check = sub.add_parser("check", help="validate a preset file or a settings file")
@@ -69,7 +83,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _passage(args) -> str:
-    from .core.passages import demo_passages, read_passage
+    from .core.engine.passages import demo_passages, read_passage
 
     if args.text is not None:
         return args.text
@@ -91,9 +105,9 @@ def resolve_presets(spec: str, library_dir: str | None = None) -> list[Preset]:
         LibraryError: when the file is missing or refused, or when neither the
             library nor the starter set holds the name (the message lists what does).
     """
-    from .core import library
-    from .core.settings_file import read_importable
-    from .core.user_state import library_in_use
+    from .core.library import library
+    from .core.library.settings_file import read_importable
+    from .core.library.user_state import library_in_use
 
     if spec.endswith(".json") or Path(spec).is_file():
         return list(read_importable(spec).presets)
@@ -110,14 +124,14 @@ def resolve_presets(spec: str, library_dir: str | None = None) -> list[Preset]:
 def _presets(args) -> list[Preset]:
     if args.preset:
         return [preset for spec in args.preset for preset in resolve_presets(spec, args.library)]
-    from .core.library import starter_presets
+    from .core.library.library import starter_presets
 
     return list(starter_presets())[:3]
 
 
 def _engine(args):
-    from .core.engine import Engine
-    from .core.model import load_model
+    from .core.engine.engine import Engine
+    from .core.engine.model import load_model
 
     def progress(message, fraction):
         if sys.stderr.isatty() and not args.json:
@@ -133,8 +147,8 @@ def _check_range(name: str, value: int, low: int, high: int) -> None:
 
 def run_audition(args) -> int:
     """Generate samples and print them with their metrics."""
-    from .core.metrics import preset_metrics
     from .core.results import AuditionRequest
+    from .core.sampling.metrics import preset_metrics
 
     _check_range("samples", args.samples, 1, 16)
     _check_range("tokens", args.tokens, 1, 512)
@@ -147,14 +161,26 @@ def run_audition(args) -> int:
     result = engine.audition(request, on_token=bar.update if bar else None)
     if bar:
         bar.close()
-    report = [{"name": preset.name,
-               "samples": [{"text": s.text, "token_ids": s.token_ids, "stop_reason": s.stop_reason}
-                           for s in row],
-               "metrics": preset_metrics(row)}
-              for preset, row in zip(presets, result.samples)]
+    report = [
+        {
+            "name": preset.name,
+            "samples": [{"text": s.text, "token_ids": s.token_ids, "stop_reason": s.stop_reason} for s in row],
+            "metrics": preset_metrics(row),
+        }
+        for preset, row in zip(presets, result.samples, strict=False)
+    ]
     if args.json:
-        print(json.dumps({"seed": args.seed, "passage_tokens": len(result.passage_ids),
-                          "passage_dropped": result.passage_dropped, "presets": report}, ensure_ascii=False))
+        print(
+            json.dumps(
+                {
+                    "seed": args.seed,
+                    "passage_tokens": len(result.passage_ids),
+                    "passage_dropped": result.passage_dropped,
+                    "presets": report,
+                },
+                ensure_ascii=False,
+            )
+        )
         return 0
     _print_audition(report, presets, result)
     return 0
@@ -162,9 +188,11 @@ def run_audition(args) -> int:
 
 def _print_audition(report, presets, result) -> None:
     if result.passage_dropped:
-        print(f"(the passage was longer than the model's context: its first {result.passage_dropped} "
-              "tokens were left out)")
-    for entry, preset in zip(report, presets):
+        print(
+            f"(the passage was longer than the model's context: its first {result.passage_dropped} "
+            "tokens were left out)"
+        )
+    for entry, preset in zip(report, presets, strict=False):
         print(f"\n== {entry['name']} ({preset.describe()})")
         for i, sample in enumerate(entry["samples"], 1):
             text = " ".join(sample["text"].split())
@@ -206,19 +234,27 @@ def run_step(args) -> int:
     tokenizer = engine.loaded.tokenizer
     after = tokenizer.encode(args.after, add_special_tokens=False) if args.after else []
     view = engine.step(passage, presets, sample_ids=after, top=args.top)
-    entries = [{"name": ps.name, "kept": ps.kept, "kept_raw_mass": ps.kept_raw_mass,
-                "entropy_bits": ps.entropy_bits, "raw_entropy_bits": ps.raw_entropy_bits,
-                "top": [{"id": r.id, "text": r.text, "raw_p": r.raw_p, "p": r.p, "cut_by": r.cut_by}
-                        for r in ps.top]}
-               for ps in view.presets]
+    entries = [
+        {
+            "name": ps.name,
+            "kept": ps.kept,
+            "kept_raw_mass": ps.kept_raw_mass,
+            "entropy_bits": ps.entropy_bits,
+            "raw_entropy_bits": ps.raw_entropy_bits,
+            "top": [{"id": r.id, "text": r.text, "raw_p": r.raw_p, "p": r.p, "cut_by": r.cut_by} for r in ps.top],
+        }
+        for ps in view.presets
+    ]
     if args.json:
         print(json.dumps({"context_tokens": view.context_tokens, "presets": entries}, ensure_ascii=False))
         return 0
     print(f"Next token after {view.context_tokens} tokens; raw entropy {view.raw_entropy_bits:.2f} bits")
     for entry in entries:
         noun = "token" if entry["kept"] == 1 else "tokens"
-        print(f"\n== {entry['name']}: kept {entry['kept']} {noun} holding {entry['kept_raw_mass']:.1%} "
-              f"of the raw mass; entropy {entry['raw_entropy_bits']:.2f} -> {entry['entropy_bits']:.2f} bits")
+        print(
+            f"\n== {entry['name']}: kept {entry['kept']} {noun} holding {entry['kept_raw_mass']:.1%} "
+            f"of the raw mass; entropy {entry['raw_entropy_bits']:.2f} -> {entry['entropy_bits']:.2f} bits"
+        )
         for row in entry["top"]:
             cut = f"cut by {row['cut_by']}" if row["cut_by"] else ""
             print(f"  {row['text']!r:>16}  raw {row['raw_p']:.3f}  -> {row['p']:.3f}  {cut}")
@@ -227,7 +263,7 @@ def run_step(args) -> int:
 
 def run_check(args) -> int:
     """Validate a preset file or a settings file and print one line."""
-    from .core.settings_file import check_file
+    from .core.library.settings_file import check_file
 
     verdict = check_file(args.file)
     print(json.dumps({"file": args.file, "ok": True, "verdict": verdict}) if args.json else verdict)

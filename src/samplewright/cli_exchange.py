@@ -6,16 +6,17 @@ library's presets and the files it skipped. Each handler returns an exit
 status; errors are raised as SamplewrightError/PresetError for the main CLI to
 print as one line. All the work is done in ``samplewright.core``.
 """
+
 from __future__ import annotations
 
 import argparse
 import json
 
 from .core.errors import SamplewrightError
-from .core.importing import IMPORT_CHOICES, apply_import, preview_import
-from .core.library import PresetLibrary
-from .core.user_state import library_in_use
-from .core.settings_file import export_settings, read_settings
+from .core.library.importing import IMPORT_CHOICES, apply_import, preview_import
+from .core.library.library import PresetLibrary
+from .core.library.settings_file import export_settings, read_settings
+from .core.library.user_state import library_in_use
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
@@ -30,9 +31,13 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     imp = subparsers.add_parser("import", help="preview, then bring a settings file's presets into the library")
     imp.add_argument("file", metavar="FILE", help="the settings file to read")
     imp.add_argument("--yes", action="store_true", help="write the import (without it, only the preview)")
-    imp.add_argument("--on-conflict", choices=IMPORT_CHOICES, metavar="CHOICE",
-                     help="for a name already in the library with other parameters: keep_both (import as a "
-                          "copy), take_theirs or skip (keep the library's), overwrite (the file's wins)")
+    imp.add_argument(
+        "--on-conflict",
+        choices=IMPORT_CHOICES,
+        metavar="CHOICE",
+        help="for a name already in the library with other parameters: keep_both (import as a "
+        "copy), take_theirs or skip (keep the library's), overwrite (the file's wins)",
+    )
     _add_library_options(imp)
     imp.set_defaults(handler=run_import)
 
@@ -42,8 +47,11 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
 
 def _add_library_options(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--library", metavar="DIR",
-                        help="the library folder (default: the one last chosen in the window, else your own)")
+    parser.add_argument(
+        "--library",
+        metavar="DIR",
+        help="the library folder (default: the one last chosen in the window, else your own)",
+    )
     parser.add_argument("--json", action="store_true", help="print one JSON object instead of text")
 
 
@@ -77,13 +85,21 @@ def run_import(args: argparse.Namespace) -> int:
     plan = preview_import(document, library)
     if args.yes and plan.conflicts and not args.on_conflict:
         names = ", ".join(f"'{item.name}'" for item in plan.conflicts)
-        raise SamplewrightError(f"{names} already in the library with other parameters; add --on-conflict "
-                                f"{'|'.join(IMPORT_CHOICES)}. Nothing was imported.")
+        raise SamplewrightError(
+            f"{names} already in the library with other parameters; add --on-conflict "
+            f"{'|'.join(IMPORT_CHOICES)}. Nothing was imported."
+        )
     written = apply_import(plan, library, args.on_conflict) if args.yes else ()
     if args.json:
-        _print_json({"file": str(args.file), "library": str(library.folder), "applied": bool(args.yes),
-                     **plan.to_json(),
-                     "written": [{"name": r.name, "id": r.id, "revision": r.revision} for r in written]})
+        _print_json(
+            {
+                "file": str(args.file),
+                "library": str(library.folder),
+                "applied": bool(args.yes),
+                **plan.to_json(),
+                "written": [{"name": r.name, "id": r.id, "revision": r.revision} for r in written],
+            }
+        )
         return 0
     print(f"Importing {args.file} into {library.folder}:")
     for line in plan.lines():
@@ -100,10 +116,23 @@ def run_library(args: argparse.Namespace) -> int:
     library = _open(args)
     records, skipped = library.records(), library.skipped
     if args.json:
-        _print_json({"library": str(library.folder),
-                     "presets": [{"id": r.id, "name": r.name, "revision": r.revision, "modified_at": r.modified_at,
-                                  "modified_by": r.modified_by, "summary": r.preset.describe()} for r in records],
-                     "skipped": [{"file": s.name, "reason": s.reason} for s in skipped]})
+        _print_json(
+            {
+                "library": str(library.folder),
+                "presets": [
+                    {
+                        "id": r.id,
+                        "name": r.name,
+                        "revision": r.revision,
+                        "modified_at": r.modified_at,
+                        "modified_by": r.modified_by,
+                        "summary": r.preset.describe(),
+                    }
+                    for r in records
+                ],
+                "skipped": [{"file": s.name, "reason": s.reason} for s in skipped],
+            }
+        )
         return 0
     print(f"{library.folder}: {len(records)} preset(s)")
     for r in records:

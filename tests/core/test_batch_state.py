@@ -1,9 +1,10 @@
 """The audition batch's per-row incremental state equals its from-scratch definition."""
+
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from samplewright.core import stages
-from samplewright.core.batch import NgramBans, _copy_bans
+from samplewright.core.engine.batch import NgramBans, _copy_bans
+from samplewright.core.sampling import stages
 
 
 @settings(max_examples=200, deadline=None)
@@ -26,6 +27,6 @@ def test_incremental_ngram_bans_equal_a_full_rescan_at_every_step(passage, sampl
 def test_a_copy_does_not_share_state_with_the_passage_index():
     passage_index = NgramBans([1, 2, 1], 2)
     row = _copy_bans(passage_index)
-    row.push(2)          # the row now ends in 2, after which 1 followed once
+    row.push(2)  # the row now ends in 2, after which 1 followed once
     assert row.banned() == {1}
-    assert passage_index.banned() == {2}   # still after "...1": 2 followed 1
+    assert passage_index.banned() == {2}  # still after "...1": 2 followed 1

@@ -4,6 +4,7 @@ Runs in-process through ``cli.main`` with the tiny test model saved to a
 folder (so loading a local model folder is exercised too); one test runs the
 installed entry point in a subprocess.
 """
+
 import json
 import subprocess
 import sys
@@ -12,7 +13,7 @@ import pytest
 
 from samplewright import Preset, shape
 from samplewright.cli import main
-from samplewright.core.metrics import METRIC_KEYS
+from samplewright.core.sampling.metrics import METRIC_KEYS
 
 
 @pytest.fixture(scope="module")
@@ -42,8 +43,24 @@ PASSAGE = "The morning ferry to Skerry Point leaves the harbour"
 
 def test_audition_json(capsys, tiny_folder, preset_files):
     greedy, narrow, loose = preset_files
-    args = ["audition", "--text", PASSAGE, "--model", tiny_folder, "--preset", greedy, "--preset", loose,
-            "--samples", 3, "--tokens", 6, "--seed", 11, "--json"]
+    args = [
+        "audition",
+        "--text",
+        PASSAGE,
+        "--model",
+        tiny_folder,
+        "--preset",
+        greedy,
+        "--preset",
+        loose,
+        "--samples",
+        3,
+        "--tokens",
+        6,
+        "--seed",
+        11,
+        "--json",
+    ]
     code, out, err = run(capsys, *args)
     assert code == 0, err
     data = json.loads(out)
@@ -63,8 +80,21 @@ def test_audition_json(capsys, tiny_folder, preset_files):
 
 def test_step_json_ranks_by_raw_probability_and_names_the_cutting_stage(capsys, tiny_folder, preset_files):
     greedy, narrow, _ = preset_files
-    code, out, err = run(capsys, "step", "--text", PASSAGE, "--model", tiny_folder, "--preset", greedy,
-                         "--preset", narrow, "--top", 5, "--json")
+    code, out, err = run(
+        capsys,
+        "step",
+        "--text",
+        PASSAGE,
+        "--model",
+        tiny_folder,
+        "--preset",
+        greedy,
+        "--preset",
+        narrow,
+        "--top",
+        5,
+        "--json",
+    )
     assert code == 0, err
     data = json.loads(out)
     for entry in data["presets"]:
@@ -72,8 +102,9 @@ def test_step_json_ranks_by_raw_probability_and_names_the_cutting_stage(capsys, 
         raw = [row["raw_p"] for row in entry["top"]]
         assert raw == sorted(raw, reverse=True) and len(raw) == 5
         assert entry["kept"] == 1 and entry["entropy_bits"] == 0
-        assert [row["cut_by"] for row in entry["top"][1:]] == [entry["name"] == "Greedy" and "temperature"
-                                                                or "top_k"] * 4
+        assert [row["cut_by"] for row in entry["top"][1:]] == [
+            entry["name"] == "Greedy" and "temperature" or "top_k"
+        ] * 4
         assert entry["top"][0]["cut_by"] is None and entry["top"][0]["p"] == pytest.approx(1.0)
 
 
@@ -84,8 +115,9 @@ def test_step_agrees_with_shape(capsys, tiny_folder, tmp_path, tiny_model):
     preset = Preset("Mid", temperature=0.7, top_p=0.9, repetition_penalty=1.3)
     path = tmp_path / "mid.json"
     path.write_text(json.dumps(preset.to_dict()), encoding="utf-8")
-    data = json.loads(run(capsys, "step", "--text", PASSAGE, "--model", tiny_folder, "--preset", path,
-                          "--top", 8, "--json")[1])
+    data = json.loads(
+        run(capsys, "step", "--text", PASSAGE, "--model", tiny_folder, "--preset", path, "--top", 8, "--json")[1]
+    )
     ids = tiny_model.tokenizer(PASSAGE, return_tensors="pt").input_ids
     with torch.no_grad():
         logits = tiny_model.model(ids).logits[0, -1]
@@ -99,16 +131,19 @@ def test_check_accepts_a_preset_file(capsys, preset_files):
     assert code == 0 and len(out.strip().splitlines()) == 1
 
 
-@pytest.mark.parametrize("argv, words", [
-    (["audition", "--text", "x", "--samples", "0"], "--samples"),
-    (["audition", "--text", "x", "--tokens", "999"], "--tokens"),
-    (["audition", "--passage", "/nonexistent/draft.txt"], "draft.txt"),
-    (["audition", "--text", "x", "--preset", "No Such Preset Anywhere"], "No Such Preset Anywhere"),
-    (["step", "--text", "x", "--model", "/nonexistent/model-folder"], "model-folder"),
-    (["check", "/nonexistent/file.json"], "file.json"),
-    (["audition", "--text", "x", "--seed", "-1"], "--seed"),
-    (["step", "--text", "x", "--after", "the pier " * 400, "--model", "TINY"], "context"),
-])
+@pytest.mark.parametrize(
+    "argv, words",
+    [
+        (["audition", "--text", "x", "--samples", "0"], "--samples"),
+        (["audition", "--text", "x", "--tokens", "999"], "--tokens"),
+        (["audition", "--passage", "/nonexistent/draft.txt"], "draft.txt"),
+        (["audition", "--text", "x", "--preset", "No Such Preset Anywhere"], "No Such Preset Anywhere"),
+        (["step", "--text", "x", "--model", "/nonexistent/model-folder"], "model-folder"),
+        (["check", "/nonexistent/file.json"], "file.json"),
+        (["audition", "--text", "x", "--seed", "-1"], "--seed"),
+        (["step", "--text", "x", "--after", "the pier " * 400, "--model", "TINY"], "context"),
+    ],
+)
 def test_errors_are_one_line_with_status_2(capsys, tmp_path, monkeypatch, tiny_folder, argv, words):
     monkeypatch.setenv("SAMPLEWRIGHT_LIBRARY_DIR", str(tmp_path / "library"))
     argv = [tiny_folder if a == "TINY" else a for a in argv]
@@ -133,8 +168,12 @@ def test_bad_preset_file_and_non_utf8_passage(capsys, tmp_path):
 def test_entry_point_runs_the_default_model():
     # The installed console script, end to end with the real default model.
     exe = [sys.executable, "-m", "samplewright"]
-    proc = subprocess.run(exe + ["audition", "--text", "The evening crossing to the island", "--samples", "1",
-                                 "--tokens", "5", "--json"], capture_output=True, text=True, timeout=300)
+    proc = subprocess.run(
+        exe + ["audition", "--text", "The evening crossing to the island", "--samples", "1", "--tokens", "5", "--json"],
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
     assert proc.returncode == 0, proc.stderr
     data = json.loads(proc.stdout)
     assert data["presets"] and all(len(p["samples"]) == 1 for p in data["presets"])
@@ -142,8 +181,8 @@ def test_entry_point_runs_the_default_model():
 
 def test_cli_uses_the_library_folder_chosen_in_the_window(capsys, tmp_path, monkeypatch):
     # The window remembers the chosen folder in the user's state; the CLI follows it.
-    from samplewright.core.library import PresetLibrary
-    from samplewright.core.user_state import UserState
+    from samplewright.core.library.library import PresetLibrary
+    from samplewright.core.library.user_state import UserState
 
     monkeypatch.setenv("SAMPLEWRIGHT_CONFIG_DIR", str(tmp_path / "config"))
     monkeypatch.delenv("SAMPLEWRIGHT_LIBRARY_DIR", raising=False)
@@ -161,7 +200,7 @@ def test_cli_uses_the_library_folder_chosen_in_the_window(capsys, tmp_path, monk
 def test_a_library_preset_wins_over_the_starter_of_the_same_name(tmp_path):
     # Every new library is seeded with starter copies; a team's edit of one must be the one the CLI uses.
     from samplewright.cli import resolve_presets
-    from samplewright.core.library import PresetLibrary, starter_presets
+    from samplewright.core.library.library import PresetLibrary, starter_presets
 
     folder = tmp_path / "team"
     lib = PresetLibrary(folder, create=True)
@@ -178,7 +217,7 @@ def test_a_library_preset_wins_over_the_starter_of_the_same_name(tmp_path):
 def test_preset_files_are_read_strictly_and_settings_files_give_all_their_presets(capsys, tmp_path):
     from samplewright.cli import resolve_presets
     from samplewright.core.errors import LibraryError
-    from samplewright.core.settings_file import export_settings
+    from samplewright.core.library.settings_file import export_settings
 
     bundle = tmp_path / "bundle.json"
     export_settings([Preset("Pier notice", temperature=0.4), Preset("Letter", top_p=0.8)], bundle)
@@ -194,8 +233,10 @@ def test_preset_files_are_read_strictly_and_settings_files_give_all_their_preset
 
 def test_building_the_parser_loads_neither_jsonschema_nor_torch():
     # Start-up: the schema checker and the model stack load only when a command needs them.
-    code = ("import sys; from samplewright.cli import build_parser; build_parser(); "
-            "print(sorted(m for m in ('jsonschema', 'torch', 'transformers') if m in sys.modules))")
+    code = (
+        "import sys; from samplewright.cli import build_parser; build_parser(); "
+        "print(sorted(m for m in ('jsonschema', 'torch', 'transformers') if m in sys.modules))"
+    )
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert done.returncode == 0, done.stderr
     assert done.stdout.strip() == "[]"

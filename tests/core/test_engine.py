@@ -1,5 +1,6 @@
 """The engine's audition: agreement with transformers and with ``shape``,
 coupled randomness, endings, cancellation and passages."""
+
 from __future__ import annotations
 
 import dataclasses
@@ -10,16 +11,25 @@ import torch
 from scipy import stats
 
 from samplewright import Preset, shape
-from samplewright.core.engine import Engine
+from samplewright.core.engine.engine import Engine
+from samplewright.core.engine.passages import demo_passages
 from samplewright.core.errors import PassageError
-from samplewright.core.passages import demo_passages
 from samplewright.core.results import AuditionRequest
 
 PASSAGE = "The morning ferry to Skerry Point leaves the harbour at seven. Please arrive at the quay"
 GREEDY = Preset("greedy", temperature=0)
 WARM = Preset("warm", temperature=1.2)
-MIXED = Preset("mixed", temperature=0.9, top_k=40, top_p=0.9, min_p=0.01, repetition_penalty=1.3,
-               frequency_penalty=0.4, presence_penalty=0.2, no_repeat_ngram_size=2)
+MIXED = Preset(
+    "mixed",
+    temperature=0.9,
+    top_k=40,
+    top_p=0.9,
+    min_p=0.01,
+    repetition_penalty=1.3,
+    frequency_penalty=0.4,
+    presence_penalty=0.2,
+    no_repeat_ngram_size=2,
+)
 
 
 @pytest.fixture(scope="module")
@@ -38,12 +48,18 @@ def ids_of(result, preset_index):
 def reference_greedy(loaded, passage_ids, tokens):
     """transformers' greedy generate(), cut at EOS, and the top-2 logit gap at each step."""
     input_ids = torch.tensor([passage_ids])
-    out = loaded.model.generate(input_ids, attention_mask=torch.ones_like(input_ids), do_sample=False,
-                                max_new_tokens=tokens, output_scores=True, return_dict_in_generate=True,
-                                pad_token_id=min(loaded.eos_ids))
-    generated = out.sequences[0, len(passage_ids):].tolist()
+    out = loaded.model.generate(
+        input_ids,
+        attention_mask=torch.ones_like(input_ids),
+        do_sample=False,
+        max_new_tokens=tokens,
+        output_scores=True,
+        return_dict_in_generate=True,
+        pad_token_id=min(loaded.eos_ids),
+    )
+    generated = out.sequences[0, len(passage_ids) :].tolist()
     end = next((i for i, t in enumerate(generated) if t in loaded.eos_ids), len(generated))
-    gaps = [float(s[0].topk(2).values[0] - s[0].topk(2).values[1]) for s in out.scores[:end + 1]]
+    gaps = [float(s[0].topk(2).values[0] - s[0].topk(2).values[1]) for s in out.scores[: end + 1]]
     return generated[:end], min(gaps)
 
 
@@ -54,6 +70,7 @@ def forward_logits(loaded, ids):
 
 
 # -- agreement with transformers and with shape() ---------------------------
+
 
 def test_greedy_audition_equals_transformers_generate(engine, tiny_model):
     # Reference library: transformers generate(do_sample=False); the top-2 gap
@@ -95,6 +112,7 @@ def test_recorded_probabilities_match_shape(engine, tiny_model):
 
 
 # -- batching: one prefill, all rows together, finished rows dropped ---------
+
 
 class ForwardLog:
     """Records the input shape of every model call."""
@@ -145,6 +163,7 @@ def test_finished_rows_leave_the_batch_without_changing_results(tiny_model):
 
 # -- coupled randomness ------------------------------------------------------
 
+
 def test_same_seed_same_samples_other_seed_other_samples(engine):
     a = audition(engine, [WARM, MIXED], samples=3, tokens=8, seed=21)
     b = audition(engine, [WARM, MIXED], samples=3, tokens=8, seed=21)
@@ -173,6 +192,7 @@ def test_sample_stream_does_not_depend_on_the_batch(engine):
 
 # -- endings ------------------------------------------------------------------
 
+
 def greedy_ids(engine, tokens=20):
     return audition(engine, [GREEDY], samples=1, tokens=tokens).samples[0][0].token_ids
 
@@ -195,14 +215,17 @@ def test_stop_string_cuts_the_text(engine, tiny_model):
     ids = greedy_ids(engine)
     decode = tiny_model.tokenizer.decode
     full = decode(ids)
-    stop = next(full[a:a + 3] for a in range(len(full) // 2, len(full) - 3)
-                if full[a:a + 3].isascii() and full[a:a + 3].strip())
+    stop = next(
+        full[a : a + 3]
+        for a in range(len(full) // 2, len(full) - 3)
+        if full[a : a + 3].isascii() and full[a : a + 3].strip()
+    )
     k = next(k for k in range(1, len(ids) + 1) if stop in decode(ids[:k]))
     result = audition(engine, [GREEDY.replace(stop=("never here", stop))], samples=1, tokens=20)
     sample = result.samples[0][0]
     assert sample.stop_reason == "stop"
     assert sample.token_ids == ids[:k]
-    assert sample.text == decode(ids[:k])[:decode(ids[:k]).index(stop)]
+    assert sample.text == decode(ids[:k])[: decode(ids[:k]).index(stop)]
     assert stop not in sample.text
 
 
@@ -220,8 +243,9 @@ def test_cancel_ends_every_row(engine):
         return len(calls) > 3
 
     events = []
-    result = audition(engine, [WARM, MIXED], samples=2, tokens=30, seed=1, on_token=events.append,
-                      should_stop=should_stop)
+    result = audition(
+        engine, [WARM, MIXED], samples=2, tokens=30, seed=1, on_token=events.append, should_stop=should_stop
+    )
     assert result.cancelled
     assert all(s.stop_reason == "cancelled" and len(s.tokens) == 3 for row in result.samples for s in row)
     assert sum(1 for e in events if e.stop_reason == "cancelled") == 4
@@ -239,6 +263,7 @@ def test_progress_events_cover_every_token_and_ending(engine):
 
 # -- passages -----------------------------------------------------------------
 
+
 @pytest.mark.parametrize("text", ["", "   \n\t "])
 def test_empty_passage_is_an_error(engine, text):
     with pytest.raises(PassageError, match="empty"):
@@ -254,7 +279,7 @@ def test_long_passage_keeps_its_last_part(engine, tiny_model):
     assert engine.passage_limit == 128 and len(full) > 128
     assert tokens.ids == full[-128:]
     assert tokens.dropped == len(full) - 128
-    assert tiny_model.tokenizer.decode(tokens.ids) == text[tokens.cut_at:]
+    assert tiny_model.tokenizer.decode(tokens.ids) == text[tokens.cut_at :]
     result = audition(engine, [WARM], samples=1, tokens=3, passage=text)
     assert result.passage_dropped == tokens.dropped and result.passage_ids == tokens.ids
 

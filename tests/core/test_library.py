@@ -1,5 +1,6 @@
 """The shared preset library in one process: files, revisions, conflicts, history, trash,
 skipped files, events, per-user state and the error messages for broken folders."""
+
 import errno
 import json
 import os
@@ -10,43 +11,36 @@ import jsonschema
 import pytest
 
 from samplewright import Preset
-from samplewright.core import library as library_module
-from samplewright.core import records, storage
 from samplewright.core.errors import LibraryError
 from samplewright.core.events import Emitter
-from samplewright.core.library import (HISTORY_LIMIT, PresetLibrary, SaveConflict, default_library_dir,
-                                       starter_presets)
+from samplewright.core.library import library as library_module
+from samplewright.core.library import records, storage
+from samplewright.core.library.library import (
+    HISTORY_LIMIT,
+    PresetLibrary,
+    SaveConflict,
+    default_library_dir,
+    starter_presets,
+)
+from samplewright.core.library.settings_file import export_preset_file, schema
+from samplewright.core.library.user_state import UserState, default_config_dir
 from samplewright.core.presets import differences
-from samplewright.core.settings_file import export_preset_file, schema
-from samplewright.core.user_state import UserState, default_config_dir
+
+pytestmark = pytest.mark.usefixtures("private_dirs")
 
 FERRY = Preset(name="Harbour update", description="Weekly note for the quay staff", temperature=0.7, top_p=0.9)
 
 
-@pytest.fixture(autouse=True)
-def _private_dirs(tmp_path, monkeypatch):
-    monkeypatch.setenv("SAMPLEWRIGHT_CONFIG_DIR", str(tmp_path / "config"))
-    monkeypatch.setenv("SAMPLEWRIGHT_LIBRARY_DIR", str(tmp_path / "personal"))
-
-
-@pytest.fixture
-def folder(tmp_path):
-    path = tmp_path / "team"
-    path.mkdir()
-    return path
-
-
-@pytest.fixture
-def lib(folder):
-    return PresetLibrary(folder, user="ingrid", seed=False, lock_timeout=1.0)
-
-
 def snapshot(folder: Path) -> dict[str, bytes]:
-    return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*"))
-            if p.is_file() and not p.name.startswith(".samplewright.lock")}
+    return {
+        str(p.relative_to(folder)): p.read_bytes()
+        for p in sorted(folder.rglob("*"))
+        if p.is_file() and not p.name.startswith(".samplewright.lock")
+    }
 
 
 # -- files --------------------------------------------------------------------------------------
+
 
 def test_new_empty_library_is_seeded_with_the_starter_presets(tmp_path):
     lib = PresetLibrary(tmp_path / "fresh", create=True)
@@ -58,7 +52,7 @@ def test_new_empty_library_is_seeded_with_the_starter_presets(tmp_path):
 
 def test_starter_file_is_a_schema_valid_settings_file():
     # Checked with the jsonschema package directly (reference implementation of JSON Schema).
-    data = Path(library_module.__file__).parent.parent / "resources" / "presets" / "starter.json"
+    data = Path(library_module.__file__).parents[2] / "resources" / "presets" / "starter.json"
     jsonschema.validate(json.loads(data.read_text("utf-8")), schema(), cls=jsonschema.Draft202012Validator)
 
 
@@ -134,6 +128,7 @@ def test_diff_lists_changed_fields_between_revisions_and_presets(lib):
 
 
 # -- conflicts ----------------------------------------------------------------------------------
+
 
 def _two_views(folder):
     mine = PresetLibrary(folder, user="mine", seed=False)
@@ -211,7 +206,7 @@ def test_restore_checks_names_on_disk_not_in_memory(lib, folder):
     record = lib.add(FERRY)
     lib.delete(record.id)
     PresetLibrary(folder, user="tomas", seed=False).add(FERRY.replace(temperature=0.1))
-    restored = lib.restore(record.id)   # lib has not rescanned: its memory has no 'Harbour update'
+    restored = lib.restore(record.id)  # lib has not rescanned: its memory has no 'Harbour update'
     assert restored.name == "Harbour update (restored)"
     names = sorted(r.name for r in PresetLibrary(folder, seed=False).records())
     assert names == ["Harbour update", "Harbour update (restored)"]
@@ -221,7 +216,7 @@ def test_rescan_reads_again_only_the_files_that_changed(lib, folder):
     # The window rescans on a timer; an unchanged file (same mtime, size, inode) keeps its parsed record.
     first, second = lib.add(FERRY), lib.add(FERRY.replace(name="Tide table"))
     other = PresetLibrary(folder, user="tomas", seed=False)
-    lib.rescan()                     # reads the file of the last add (written after the add's own scan)
+    lib.rescan()  # reads the file of the last add (written after the add's own scan)
     before = library_module.files_parsed
     assert not lib.rescan()
     assert library_module.files_parsed == before
@@ -229,7 +224,7 @@ def test_rescan_reads_again_only_the_files_that_changed(lib, folder):
     (folder / "notes.json").write_text("{ not json", encoding="utf-8")
     before = library_module.files_parsed
     report = lib.rescan()
-    assert library_module.files_parsed == before + 2        # the saved preset and the new file only
+    assert library_module.files_parsed == before + 2  # the saved preset and the new file only
     assert report.changed == (second.id,) and lib.get(second.id) == changed
     assert lib.get(first.id) == first and [s.name for s in lib.skipped] == ["notes.json"]
     before = library_module.files_parsed
@@ -247,6 +242,7 @@ def test_find_by_id_name_and_case(lib):
 
 
 # -- trash --------------------------------------------------------------------------------------
+
 
 def test_delete_moves_to_trash_and_restore_brings_it_back_whole(lib, folder):
     record = lib.add(FERRY)
@@ -272,6 +268,7 @@ def test_restore_under_a_taken_name_comes_back_renamed(lib):
 
 # -- skipped files ------------------------------------------------------------------------------
 
+
 def _valid_bytes(record_id="0" * 32, **changes):
     data = records.PresetRecord(record_id, 1, FERRY, "2025-05-02T09:14:00+00:00", "ingrid").to_json()
     data.update(changes)
@@ -279,7 +276,7 @@ def _valid_bytes(record_id="0" * 32, **changes):
 
 
 BAD_FILES = {
-    "corrupt.json": (b"{\"format\": \"samplewright-preset\", \x00\xff", "not UTF-8"),
+    "corrupt.json": (b'{"format": "samplewright-preset", \x00\xff', "not UTF-8"),
     "truncated.json": (_valid_bytes(record_id="2" * 32)[:90], "not valid JSON"),
     "foreign.json": (b'{"colour": "teal", "rows": [1, 2]}', "no format tag"),
     "other-tool.json": (b'{"format": "ferry-timetable", "stops": []}', "another kind"),
@@ -322,6 +319,7 @@ def test_saving_over_a_file_that_became_invalid_refuses_and_leaves_it(lib, folde
 
 # -- events and rescan --------------------------------------------------------------------------
 
+
 def test_events_follow_own_writes_and_rescan(lib, folder):
     seen = []
     for kind in ("added", "changed", "removed"):
@@ -334,8 +332,13 @@ def test_events_follow_own_writes_and_rescan(lib, folder):
     report = lib.rescan()
     assert report.changed == (record.id,) and len(report.added) == 1 and not report.removed
     lib.delete(record.id)
-    assert seen == [("added", "Harbour update"), ("changed", "Harbour update"), ("added", "Pier closure"),
-                    ("changed", "Harbour update"), ("removed", "Harbour update")]
+    assert seen == [
+        ("added", "Harbour update"),
+        ("changed", "Harbour update"),
+        ("added", "Pier closure"),
+        ("changed", "Harbour update"),
+        ("removed", "Harbour update"),
+    ]
     assert not lib.rescan()
 
 
@@ -416,13 +419,17 @@ def test_a_folder_that_disappears(lib, folder):
 
 
 def test_export_preset_file_reports_a_refused_folder(tmp_path, monkeypatch):
-    monkeypatch.setattr(storage.tempfile, "mkstemp", lambda **kw: (_ for _ in ()).throw(
-        PermissionError(errno.EACCES, "Permission denied")))
+    monkeypatch.setattr(
+        storage.tempfile,
+        "mkstemp",
+        lambda **kw: (_ for _ in ()).throw(PermissionError(errno.EACCES, "Permission denied")),
+    )
     with pytest.raises(LibraryError, match="permission.*No file was written"):
         export_preset_file(FERRY, tmp_path / "x.json")
 
 
 # -- per-user state -----------------------------------------------------------------------------
+
 
 def test_user_state_lives_in_the_config_folder_not_the_library(lib, folder, tmp_path):
     record = lib.add(FERRY)
@@ -451,8 +458,10 @@ def test_library_code_loads_without_torch_or_qt():
     import subprocess
     import sys
 
-    code = ("import sys, samplewright.core.library, samplewright.core.settings_file, "
-            "samplewright.core.importing, samplewright.core.user_state, samplewright.cli_exchange; "
-            "print(sorted(m for m in ('torch', 'PySide6', 'pyqtgraph') if m in sys.modules))")
+    code = (
+        "import sys, samplewright.core.library.library, samplewright.core.library.settings_file, "
+        "samplewright.core.library.importing, samplewright.core.library.user_state, samplewright.cli_exchange; "
+        "print(sorted(m for m in ('torch', 'PySide6', 'pyqtgraph') if m in sys.modules))"
+    )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
     assert out.strip() == "[]"

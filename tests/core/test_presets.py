@@ -1,4 +1,5 @@
 """Preset validation, defaults and the exact plain-JSON round trip."""
+
 import json
 import math
 import subprocess
@@ -9,7 +10,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from samplewright import Preset, PresetError
-from samplewright.core.presets import DEFAULT_ORDER, FIELDS, PARAMETERS, differences, validate_field
+from samplewright.core.presets import DEFAULT_ORDER, PARAMETERS, differences, validate_field
 
 BAD_VALUES = {
     "temperature": [-0.1, 5.01, math.nan, math.inf, "1", True, None, 10**400],
@@ -23,8 +24,12 @@ BAD_VALUES = {
     "no_repeat_ngram_size": [-1, 1.5, 33],
     "max_new_tokens": [0, 513, 3.3],
     "stop": ["\n", [""], [1], ["x"] * 17],
-    "order": [["temperature"], list(DEFAULT_ORDER) + ["top_k"], ["penalties", "temperature", "top_k", "top_p",
-                                                              "min_p", "typicality"], "penalties"],
+    "order": [
+        ["temperature"],
+        list(DEFAULT_ORDER) + ["top_k"],
+        ["penalties", "temperature", "top_k", "top_p", "min_p", "typicality"],
+        "penalties",
+    ],
     "name": ["", "   ", "two\nlines", "x" * 121, 5],
     "tags": ["one", [3], ["t" * 61]],
     "created": ["yesterday", 12],
@@ -43,18 +48,21 @@ def test_every_invalid_parameter_is_rejected_with_its_name(field, value):
 
 # The ranges as docs/settings-format.md states them, written out here rather than read from FIELDS;
 # each bad value lies beyond the upper end so none of the range's words is already in the value.
-@pytest.mark.parametrize("field, value, allowed", [
-    ("temperature", 5.5, "0 to 5"),
-    ("top_k", 1_000_001, "0 to 1000000"),
-    ("top_p", 1.25, "above 0 up to 1"),
-    ("min_p", 1.0, "0 up to, not including, 1"),
-    ("typical_p", 1.5, "above 0 up to 1"),
-    ("repetition_penalty", 10.5, "above 0 up to 10"),
-    ("frequency_penalty", 2.5, "-2 to 2"),
-    ("presence_penalty", 3.0, "-2 to 2"),
-    ("no_repeat_ngram_size", 33, "0 to 32"),
-    ("max_new_tokens", 513, "1 to 512"),
-])
+@pytest.mark.parametrize(
+    "field, value, allowed",
+    [
+        ("temperature", 5.5, "0 to 5"),
+        ("top_k", 1_000_001, "0 to 1000000"),
+        ("top_p", 1.25, "above 0 up to 1"),
+        ("min_p", 1.0, "0 up to, not including, 1"),
+        ("typical_p", 1.5, "above 0 up to 1"),
+        ("repetition_penalty", 10.5, "above 0 up to 10"),
+        ("frequency_penalty", 2.5, "-2 to 2"),
+        ("presence_penalty", 3.0, "-2 to 2"),
+        ("no_repeat_ngram_size", 33, "0 to 32"),
+        ("max_new_tokens", 513, "1 to 512"),
+    ],
+)
 def test_message_names_value_and_allowed_range(field, value, allowed):
     with pytest.raises(PresetError) as err:
         validate_field(field, value)
@@ -92,8 +100,17 @@ def test_defaults_are_neutral():
 
 
 def test_boundaries_are_accepted():
-    Preset("b", temperature=0, top_p=1, min_p=0, typical_p=1e-9, frequency_penalty=-2, presence_penalty=2,
-           max_new_tokens=512, repetition_penalty=10)
+    Preset(
+        "b",
+        temperature=0,
+        top_p=1,
+        min_p=0,
+        typical_p=1e-9,
+        frequency_penalty=-2,
+        presence_penalty=2,
+        max_new_tokens=512,
+        repetition_penalty=10,
+    )
 
 
 def test_integral_floats_become_integers():
@@ -114,15 +131,22 @@ def test_differences():
 finite = dict(allow_nan=False, allow_infinity=False)
 presets = st.builds(
     Preset,
-    name=st.text(st.characters(blacklist_characters="\n\r\t", blacklist_categories=("Cs",)), min_size=1,
-                 max_size=40).filter(lambda s: s.strip() == s and s),
-    description=st.text(max_size=50), tags=st.lists(st.text(min_size=1, max_size=10).map(str.strip)
-                                                    .filter(bool), max_size=4, unique=True).map(tuple),
-    temperature=st.floats(0, 5, **finite), top_k=st.integers(0, 1000), top_p=st.floats(1e-6, 1, **finite),
-    min_p=st.floats(0, 0.999, **finite), typical_p=st.floats(1e-6, 1, **finite),
-    repetition_penalty=st.floats(0.01, 10, **finite), frequency_penalty=st.floats(-2, 2, **finite),
-    presence_penalty=st.floats(-2, 2, **finite), no_repeat_ngram_size=st.integers(0, 32),
-    max_new_tokens=st.integers(1, 512), stop=st.lists(st.text(min_size=1, max_size=5), max_size=3).map(tuple),
+    name=st.text(
+        st.characters(blacklist_characters="\n\r\t", blacklist_categories=("Cs",)), min_size=1, max_size=40
+    ).filter(lambda s: s.strip() == s and s),
+    description=st.text(max_size=50),
+    tags=st.lists(st.text(min_size=1, max_size=10).map(str.strip).filter(bool), max_size=4, unique=True).map(tuple),
+    temperature=st.floats(0, 5, **finite),
+    top_k=st.integers(0, 1000),
+    top_p=st.floats(1e-6, 1, **finite),
+    min_p=st.floats(0, 0.999, **finite),
+    typical_p=st.floats(1e-6, 1, **finite),
+    repetition_penalty=st.floats(0.01, 10, **finite),
+    frequency_penalty=st.floats(-2, 2, **finite),
+    presence_penalty=st.floats(-2, 2, **finite),
+    no_repeat_ngram_size=st.integers(0, 32),
+    max_new_tokens=st.integers(1, 512),
+    stop=st.lists(st.text(min_size=1, max_size=5), max_size=3).map(tuple),
     order=st.permutations(DEFAULT_ORDER).map(tuple),
 )
 
@@ -138,12 +162,14 @@ def test_round_trip_is_exact_through_json(preset):
 
 def test_core_never_imports_qt():
     # The headless split (STYLE.md): importing the whole core must not load Qt.
-    code = ("import sys, samplewright, samplewright.core.chain, samplewright.core.metrics, "
-            "samplewright.core.presets, samplewright.cli\n"
-            "import pkgutil, importlib, samplewright.core as c\n"
-            "for m in pkgutil.iter_modules(c.__path__): importlib.import_module('samplewright.core.' + m.name)\n"
-            "bad = [m for m in sys.modules if m.startswith(('PySide6', 'pyqtgraph'))]\n"
-            "assert not bad, bad\n")
+    code = (
+        "import sys, samplewright, samplewright.core.sampling.chain, samplewright.core.sampling.metrics, "
+        "samplewright.core.presets, samplewright.cli\n"
+        "import pkgutil, importlib, samplewright.core as c\n"
+        "for m in pkgutil.iter_modules(c.__path__): importlib.import_module('samplewright.core.' + m.name)\n"
+        "bad = [m for m in sys.modules if m.startswith(('PySide6', 'pyqtgraph'))]\n"
+        "assert not bad, bad\n"
+    )
     subprocess.run([sys.executable, "-c", code], check=True)
 
 

@@ -1,5 +1,6 @@
 """Importing accepts a single preset file (the window's "Save a copy as file…") as well as a
 settings file, with the same refusals."""
+
 from __future__ import annotations
 
 import json
@@ -7,8 +8,13 @@ import json
 import pytest
 
 from samplewright.core.errors import LibraryError
+from samplewright.core.library.settings_file import (
+    export_preset_file,
+    export_settings,
+    read_importable,
+    read_settings,
+)
 from samplewright.core.presets import Preset
-from samplewright.core.settings_file import export_preset_file, export_settings, read_importable, read_settings
 
 COPY = Preset("Quay closure notice", temperature=0.4, top_p=0.85, tags=("notices",), stop=("\n\n",))
 
@@ -24,10 +30,13 @@ def test_a_settings_file_reads_as_read_settings_reads_it(tmp_path):
     assert read_importable(path) == read_settings(path)
 
 
-@pytest.mark.parametrize("content, words", [
-    ('{"name": "x", "top_p": 2}', "top_p"),                          # breaks the preset's rules
-    ('{"name": "x", "launch": "rm -rf /"}', "launch"),               # unknown field, never run
-])
+@pytest.mark.parametrize(
+    "content, words",
+    [
+        ('{"name": "x", "top_p": 2}', "top_p"),  # breaks the preset's rules
+        ('{"name": "x", "launch": "rm -rf /"}', "launch"),  # unknown field, never run
+    ],
+)
 def test_a_bad_preset_file_is_refused_naming_the_field(tmp_path, content, words):
     path = tmp_path / "bad.json"
     path.write_text(content, encoding="utf-8")

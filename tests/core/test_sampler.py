@@ -1,4 +1,5 @@
 """The coupled Gumbel-max sampler draws from the distribution it claims."""
+
 from __future__ import annotations
 
 import numpy as np
@@ -7,7 +8,7 @@ import torch
 from scipy import stats
 
 from samplewright import Preset, shape
-from samplewright.core import sampler
+from samplewright.core.sampling import sampler
 
 
 def test_gumbel_worked_example():
@@ -49,11 +50,14 @@ def _draw_counts(logits: np.ndarray, preset: Preset, draws: int, seed: int = 11)
     return np.bincount(ids.numpy(), minlength=len(logits))
 
 
-@pytest.mark.parametrize("preset", [
-    Preset("warm", temperature=1.3),
-    Preset("cut", temperature=0.8, top_k=6),
-    Preset("nucleus", top_p=0.8, min_p=0.02),
-])
+@pytest.mark.parametrize(
+    "preset",
+    [
+        Preset("warm", temperature=1.3),
+        Preset("cut", temperature=0.8, top_k=6),
+        Preset("nucleus", top_p=0.8, min_p=0.02),
+    ],
+)
 def test_draws_follow_the_shaped_distribution(preset):
     # The Gumbel-max trick (Maddison, Tarlow & Minka 2014) samples exactly p;
     # checked with a chi-square goodness-of-fit test (scipy.stats.chisquare).
@@ -62,7 +66,7 @@ def test_draws_follow_the_shaped_distribution(preset):
     counts = _draw_counts(logits, preset, draws)
     expected = shape(logits, preset) * draws
     kept = expected > 0
-    assert counts[~kept].sum() == 0   # removed tokens are never drawn
+    assert counts[~kept].sum() == 0  # removed tokens are never drawn
     assert stats.chisquare(counts[kept], expected[kept]).pvalue > 1e-3
 
 

@@ -1,9 +1,10 @@
 """The audition session: collects token events per column and ignores stale runs."""
+
 from __future__ import annotations
 
+from samplewright.core.engine.session import AuditionSession, SampleRef
 from samplewright.core.presets import Preset
 from samplewright.core.results import AuditionRequest, AuditionResult, Sample, TokenEvent, TokenStep
-from samplewright.core.session import AuditionSession, SampleRef
 
 
 def token(i):

@@ -1,6 +1,7 @@
 """The portable settings file: schema, refusals, migration, the round trip, the import
 preview and writes, and check_file. The schema is checked with the jsonschema package
 (the reference implementation of JSON Schema draft 2020-12), not with our own code."""
+
 import copy
 import json
 import math
@@ -13,20 +14,33 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from samplewright import Preset, PresetError, __version__
-from samplewright.core import library as library_module
-from samplewright.core import settings_file
 from samplewright.core.errors import LibraryError
-from samplewright.core.importing import ImportStopped, apply_import, preview_import
-from samplewright.core.library import PresetLibrary
+from samplewright.core.library import library as library_module
+from samplewright.core.library import settings_file
+from samplewright.core.library.importing import ImportStopped, apply_import, preview_import
+from samplewright.core.library.library import PresetLibrary
+from samplewright.core.library.settings_file import (
+    FORMAT_VERSION,
+    MAX_BYTES,
+    check_file,
+    export_preset_file,
+    export_settings,
+    migrate,
+    read_settings,
+    schema,
+)
 from samplewright.core.presets import DEFAULT_ORDER, MAX_TEXT
-from samplewright.core.settings_file import (FORMAT_VERSION, MAX_BYTES, check_file, export_settings,
-                                             export_preset_file, migrate, read_settings, schema)
 
 VALIDATOR = jsonschema.Draft202012Validator
 
 NOTICE = Preset(name="Timetable change", temperature=0.3, top_k=20, stop=("\n\n",))
-LETTER = Preset(name="Lost property reply", description="Kind and short", temperature=0.8, top_p=0.9,
-                order=("penalties", "top_p", "temperature", "top_k", "min_p", "typical_p"))
+LETTER = Preset(
+    name="Lost property reply",
+    description="Kind and short",
+    temperature=0.8,
+    top_p=0.9,
+    order=("penalties", "top_p", "temperature", "top_k", "min_p", "typical_p"),
+)
 
 
 def document(*presets, **changes):
@@ -41,11 +55,15 @@ def write(path: Path, obj) -> Path:
 
 
 def snapshot(folder: Path) -> dict[str, bytes]:
-    return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*"))
-            if p.is_file() and not p.name.startswith(".samplewright.lock")}
+    return {
+        str(p.relative_to(folder)): p.read_bytes()
+        for p in sorted(folder.rglob("*"))
+        if p.is_file() and not p.name.startswith(".samplewright.lock")
+    }
 
 
 # -- schema and export --------------------------------------------------------------------------
+
 
 def test_the_schema_is_a_valid_draft_2020_12_schema():
     VALIDATOR.check_schema(schema())
@@ -84,6 +102,7 @@ def test_export_refuses_duplicate_names_and_an_empty_list(tmp_path):
 
 # -- refusals -----------------------------------------------------------------------------------
 
+
 def test_a_file_over_5_mb_is_refused(tmp_path):
     path = tmp_path / "big.json"
     text = json.dumps(document())
@@ -93,13 +112,16 @@ def test_a_file_over_5_mb_is_refused(tmp_path):
         read_settings(path)
 
 
-@pytest.mark.parametrize("data, words", [
-    (b"presets: [fast, slow]", "not valid JSON"),
-    (b"\xff\xfe{}", "not UTF-8"),
-    (b'{"format": "samplewright-settings", "format_version": 1, "presets": [], "presets": []}', "appears twice"),
-    (b"[1, 2, 3]", "not a Samplewright settings file"),
-    (b'{"format": "samplewright-preset"}', "library preset file"),
-])
+@pytest.mark.parametrize(
+    "data, words",
+    [
+        (b"presets: [fast, slow]", "not valid JSON"),
+        (b"\xff\xfe{}", "not UTF-8"),
+        (b'{"format": "samplewright-settings", "format_version": 1, "presets": [], "presets": []}', "appears twice"),
+        (b"[1, 2, 3]", "not a Samplewright settings file"),
+        (b'{"format": "samplewright-preset"}', "library preset file"),
+    ],
+)
 def test_files_that_are_not_settings_files_are_refused(tmp_path, data, words):
     (tmp_path / "x.json").write_bytes(data)
     with pytest.raises(LibraryError, match=words):
@@ -112,16 +134,19 @@ def test_a_newer_format_version_is_refused_with_update_advice(tmp_path):
         read_settings(path)
 
 
-@pytest.mark.parametrize("change, place", [
-    (lambda d: d["presets"][1].update(top_p=1.5), "presets[1].top_p"),
-    (lambda d: d["presets"][0].update(name="n" * 121), "presets[0].name"),
-    (lambda d: d["presets"][0].update(notes="n" * 10001), "presets[0].notes"),
-    (lambda d: d["presets"][0].update(stop=[""]), "presets[0].stop[0]"),
-    (lambda d: d["presets"][0].update(temprature=1), "presets[0]"),
-    (lambda d: d["presets"][0].update(order=["top_k"] * 6), "presets[0].order"),
-    (lambda d: d.pop("exported_by"), "exported_by"),
-    (lambda d: d.update(macro="rm -rf /"), "macro"),
-])
+@pytest.mark.parametrize(
+    "change, place",
+    [
+        (lambda d: d["presets"][1].update(top_p=1.5), "presets[1].top_p"),
+        (lambda d: d["presets"][0].update(name="n" * 121), "presets[0].name"),
+        (lambda d: d["presets"][0].update(notes="n" * 10001), "presets[0].notes"),
+        (lambda d: d["presets"][0].update(stop=[""]), "presets[0].stop[0]"),
+        (lambda d: d["presets"][0].update(temprature=1), "presets[0]"),
+        (lambda d: d["presets"][0].update(order=["top_k"] * 6), "presets[0].order"),
+        (lambda d: d.pop("exported_by"), "exported_by"),
+        (lambda d: d.update(macro="rm -rf /"), "macro"),
+    ],
+)
 def test_a_schema_mismatch_is_refused_naming_the_place(tmp_path, change, place):
     doc = document()
     change(doc)
@@ -145,6 +170,7 @@ def test_text_in_a_file_is_only_ever_data(tmp_path):
 
 # -- migration ----------------------------------------------------------------------------------
 
+
 def test_migrators_run_one_version_step_at_a_time(monkeypatch):
     steps = []
     monkeypatch.setitem(settings_file._MIGRATORS, 1, lambda d: steps.append(1) or {**d, "renamed": True})
@@ -158,22 +184,31 @@ def test_migrators_run_one_version_step_at_a_time(monkeypatch):
 
 # -- property tests -----------------------------------------------------------------------------
 
+
 def text(max_size):
     return st.text(max_size=max_size)
 
 
-names = st.text(min_size=1, max_size=MAX_TEXT["name"]).filter(
-    lambda s: s.strip() and not any(c in s for c in "\n\r\t"))
+names = st.text(min_size=1, max_size=MAX_TEXT["name"]).filter(lambda s: s.strip() and not any(c in s for c in "\n\r\t"))
 presets = st.builds(
-    Preset, name=names, description=text(200), notes=text(300),
+    Preset,
+    name=names,
+    description=text(200),
+    notes=text(300),
     tags=st.lists(text(MAX_TEXT["tag"]), max_size=5).map(tuple),
-    temperature=st.floats(0, 5), top_k=st.integers(0, 10**6),
-    top_p=st.floats(0, 1, exclude_min=True), min_p=st.floats(0, 1, exclude_max=True),
-    typical_p=st.floats(0, 1, exclude_min=True), repetition_penalty=st.floats(0, 10, exclude_min=True),
-    frequency_penalty=st.floats(-2, 2), presence_penalty=st.floats(-2, 2),
-    no_repeat_ngram_size=st.integers(0, 32), max_new_tokens=st.integers(1, 512),
+    temperature=st.floats(0, 5),
+    top_k=st.integers(0, 10**6),
+    top_p=st.floats(0, 1, exclude_min=True),
+    min_p=st.floats(0, 1, exclude_max=True),
+    typical_p=st.floats(0, 1, exclude_min=True),
+    repetition_penalty=st.floats(0, 10, exclude_min=True),
+    frequency_penalty=st.floats(-2, 2),
+    presence_penalty=st.floats(-2, 2),
+    no_repeat_ngram_size=st.integers(0, 32),
+    max_new_tokens=st.integers(1, 512),
     stop=st.lists(st.text(min_size=1, max_size=MAX_TEXT["stop"]), max_size=4).map(tuple),
-    order=st.permutations(DEFAULT_ORDER).map(tuple))
+    order=st.permutations(DEFAULT_ORDER).map(tuple),
+)
 
 
 @settings(max_examples=60, deadline=None)
@@ -191,8 +226,14 @@ def _near(low, high):
     return st.sampled_from([low, high, low - 1e-9, high + 1e-9, 0, 1, -1, 0.5, 10**15])
 
 
-ODD = st.one_of(st.none(), st.booleans(), st.text(max_size=3), st.lists(st.integers(), max_size=2),
-                st.floats(allow_nan=False), st.integers(-10**15, 10**15))
+ODD = st.one_of(
+    st.none(),
+    st.booleans(),
+    st.text(max_size=3),
+    st.lists(st.integers(), max_size=2),
+    st.floats(allow_nan=False),
+    st.integers(-(10**15), 10**15),
+)
 FIELD_VALUES = {
     "name": st.one_of(st.text(max_size=4), st.sampled_from(["x" * 120, "x" * 121, " ", "a\n", "a\u2028"]), ODD),
     "description": st.one_of(st.text(max_size=3), st.just("d" * 2001), ODD),
@@ -208,8 +249,12 @@ FIELD_VALUES = {
     "no_repeat_ngram_size": st.one_of(_near(0, 32), ODD),
     "max_new_tokens": st.one_of(_near(1, 512), ODD),
     "stop": st.one_of(st.lists(st.text(max_size=2), max_size=3), st.just(["s"] * 17), ODD),
-    "order": st.one_of(st.permutations(DEFAULT_ORDER).map(list), st.just(list(DEFAULT_ORDER[:5]) + ["top_k"]),
-                       st.lists(st.sampled_from(DEFAULT_ORDER + ("typical",)), min_size=6, max_size=6), ODD),
+    "order": st.one_of(
+        st.permutations(DEFAULT_ORDER).map(list),
+        st.just(list(DEFAULT_ORDER[:5]) + ["top_k"]),
+        st.lists(st.sampled_from(DEFAULT_ORDER + ("typical",)), min_size=6, max_size=6),
+        ODD,
+    ),
     "colour": ODD,
 }
 
@@ -240,9 +285,21 @@ def test_schema_and_preset_validation_agree(candidate):
 
 
 def _mutations():
-    paths = st.sampled_from([(), ("presets",), ("presets", 0), ("presets", 1), ("presets", 0, "top_k"),
-                             ("presets", 1, "order"), ("format_version",), ("presets", 0, "name")])
-    values = st.one_of(ODD, st.dictionaries(st.text(max_size=5), ODD, max_size=2), st.builds(dict, name=st.just("Pier")))
+    paths = st.sampled_from(
+        [
+            (),
+            ("presets",),
+            ("presets", 0),
+            ("presets", 1),
+            ("presets", 0, "top_k"),
+            ("presets", 1, "order"),
+            ("format_version",),
+            ("presets", 0, "name"),
+        ]
+    )
+    values = st.one_of(
+        ODD, st.dictionaries(st.text(max_size=5), ODD, max_size=2), st.builds(dict, name=st.just("Pier"))
+    )
     return st.lists(st.tuples(paths, st.text(max_size=8), values, st.booleans()), min_size=1, max_size=3)
 
 
@@ -291,6 +348,7 @@ def test_the_importer_on_malformed_documents_never_crashes_or_half_writes(mutati
 
 # -- import preview and apply -------------------------------------------------------------------
 
+
 @pytest.fixture
 def lib(tmp_path):
     lib = PresetLibrary(tmp_path / "lib", create=True, seed=False)
@@ -300,29 +358,39 @@ def lib(tmp_path):
 
 
 def incoming():
-    return settings_file.SettingsDocument((
-        NOTICE,                                   # same everything -> unchanged
-        LETTER.replace(description="Kinder"),     # same parameters, other text -> update
-        Preset(name="Greedy", temperature=0.2),   # same name, other parameters -> conflict
-        Preset(name="Ferry strike notice")))      # new -> add
+    return settings_file.SettingsDocument(
+        (
+            NOTICE,  # same everything -> unchanged
+            LETTER.replace(description="Kinder"),  # same parameters, other text -> update
+            Preset(name="Greedy", temperature=0.2),  # same name, other parameters -> conflict
+            Preset(name="Ferry strike notice"),
+        )
+    )  # new -> add
 
 
 def test_preview_sorts_presets_into_add_update_conflict_unchanged_and_writes_nothing(lib):
     before = snapshot(lib.folder)
     plan = preview_import(incoming(), lib)
     assert [(i.name, i.action) for i in plan.items] == [
-        ("Timetable change", "unchanged"), ("Lost property reply", "update"),
-        ("Greedy", "conflict"), ("Ferry strike notice", "add")]
+        ("Timetable change", "unchanged"),
+        ("Lost property reply", "update"),
+        ("Greedy", "conflict"),
+        ("Ferry strike notice", "add"),
+    ]
     assert plan.conflicts[0].differences == {"temperature": (0.0, 0.2)}
     assert "conflict   Greedy  (temperature: 0.0 -> 0.2)" in plan.lines()
     assert snapshot(lib.folder) == before
 
 
-@pytest.mark.parametrize("choice, greedy_temps", [
-    ("keep_both", {"Greedy": 0.0, "Greedy (copy)": 0.2}),
-    ("overwrite", {"Greedy": 0.2}),
-    ("take_theirs", {"Greedy": 0.0}),
-    ("skip", {"Greedy": 0.0})])
+@pytest.mark.parametrize(
+    "choice, greedy_temps",
+    [
+        ("keep_both", {"Greedy": 0.0, "Greedy (copy)": 0.2}),
+        ("overwrite", {"Greedy": 0.2}),
+        ("take_theirs", {"Greedy": 0.0}),
+        ("skip", {"Greedy": 0.0}),
+    ],
+)
 def test_apply_import_follows_the_choice_for_conflicts(lib, choice, greedy_temps):
     written = apply_import(preview_import(incoming(), lib), lib, {"Greedy": choice})
     after = PresetLibrary(lib.folder, seed=False)
@@ -374,10 +442,12 @@ def test_an_import_failing_part_way_stops_whole_and_can_be_run_again(lib, monkey
 
 # -- check_file ---------------------------------------------------------------------------------
 
+
 def test_check_file_recognises_the_three_kinds(tmp_path, lib):
     export_settings([NOTICE], tmp_path / "team.json", exported_by="ingrid")
-    assert check_file(tmp_path / "team.json").startswith("team.json: a valid settings file (format version 1) "
-                                                         "with 1 preset(s): 'Timetable change'")
+    assert check_file(tmp_path / "team.json").startswith(
+        "team.json: a valid settings file (format version 1) with 1 preset(s): 'Timetable change'"
+    )
     record = lib.find("Greedy")
     assert "a valid library preset 'Greedy', revision 1" in check_file(lib.folder / record.file_name)
     export_preset_file(LETTER, tmp_path / "one.json")

@@ -4,6 +4,7 @@ boundaries included, and on facts of the trade.
 Worked numbers come from /work/shared/REFERENCES.md (computed there with
 numpy in float64); the section is named beside each check.
 """
+
 import numpy as np
 import pytest
 import torch
@@ -12,7 +13,7 @@ from hypothesis import strategies as st
 from scipy.stats import entropy as scipy_entropy
 
 from samplewright import Preset, shape
-from samplewright.core.metrics import entropy_bits
+from samplewright.core.sampling.metrics import entropy_bits
 
 P4 = np.log([0.5, 0.3, 0.15, 0.05])
 
@@ -22,11 +23,14 @@ def close(a, b):
 
 
 # --- Temperature (REFERENCES §1; Ackley, Hinton & Sejnowski 1985) -----------------
-@pytest.mark.parametrize("t, expected, bits", [
-    (1.0, [0.665241, 0.244728, 0.090031], 1.200893),
-    (0.5, [0.866813, 0.117310, 0.015876], 0.636311),
-    (2.0, [0.506480, 0.307196, 0.186324], 1.471825),
-])
+@pytest.mark.parametrize(
+    "t, expected, bits",
+    [
+        (1.0, [0.665241, 0.244728, 0.090031], 1.200893),
+        (0.5, [0.866813, 0.117310, 0.015876], 0.636311),
+        (2.0, [0.506480, 0.307196, 0.186324], 1.471825),
+    ],
+)
 def test_temperature_worked(t, expected, bits):
     p = shape([2.0, 1.0, 0.0], Preset("t", temperature=t))
     close(p, expected)
@@ -66,11 +70,14 @@ def test_min_p_worked():
 
 
 # --- Typical (REFERENCES §5; Meister et al. 2023) ----------------------------------
-@pytest.mark.parametrize("mass, expected", [
-    (0.2, [0, 1, 0, 0]),                     # the top token is dropped
-    (0.5, [0.625, 0.375, 0, 0]),
-    (0.9, [0.526316, 0.315789, 0.157895, 0]),
-])
+@pytest.mark.parametrize(
+    "mass, expected",
+    [
+        (0.2, [0, 1, 0, 0]),  # the top token is dropped
+        (0.5, [0.625, 0.375, 0, 0]),
+        (0.9, [0.526316, 0.315789, 0.157895, 0]),
+    ],
+)
 def test_typical_worked(mass, expected):
     close(shape(P4, Preset("y", typical_p=mass)), expected)
 
@@ -129,11 +136,14 @@ def test_extreme_and_minus_inf_logits():
 
 # A division overflowing float64 (max about 1.8e308, IEEE 754) gives +inf, and a softmax over +inf
 # gives NaN; the chain makes such a row greedy over its +inf ids instead (docs/sampling-chain.md).
-@pytest.mark.parametrize("logits, preset, history, expected", [
-    ([30.0, 0.0], Preset("x", temperature=1e-307), (), [1.0, 0.0]),           # 30 / 1e-307 = 3e308 > max
-    ([30.0, 0.0], Preset("x", repetition_penalty=1e-308), (0,), [1.0, 0.0]),  # 30 / 1e-308 = 3e309 > max
-    ([1e308, 1e308, 0.0], Preset("x", temperature=0.5), (), [1.0, 0.0, 0.0]),  # tie: the lower id, as T = 0
-])
+@pytest.mark.parametrize(
+    "logits, preset, history, expected",
+    [
+        ([30.0, 0.0], Preset("x", temperature=1e-307), (), [1.0, 0.0]),  # 30 / 1e-307 = 3e308 > max
+        ([30.0, 0.0], Preset("x", repetition_penalty=1e-308), (0,), [1.0, 0.0]),  # 30 / 1e-308 = 3e309 > max
+        ([1e308, 1e308, 0.0], Preset("x", temperature=0.5), (), [1.0, 0.0, 0.0]),  # tie: the lower id, as T = 0
+    ],
+)
 def test_overflow_to_infinity_becomes_greedy_not_nan(logits, preset, history, expected):
     p = shape(np.array(logits), preset, history=history)
     assert not np.isnan(p).any() and p.sum() == 1.0
@@ -141,16 +151,28 @@ def test_overflow_to_infinity_becomes_greedy_not_nan(logits, preset, history, ex
 
 
 @settings(max_examples=150, deadline=None)
-@given(st.lists(st.floats(-1e308, 1e308, allow_nan=False, allow_infinity=False), min_size=2, max_size=12),
-       st.sampled_from([0.0, 5e-324, 1e-308, 1e-300, 1e-10, 0.5, 5.0]),
-       st.sampled_from([5e-324, 1e-308, 1e-200, 1e-5, 1.0, 10.0]),
-       st.sampled_from([-2.0, 0.0, 2.0]), st.integers(0, 3))
+@given(
+    st.lists(st.floats(-1e308, 1e308, allow_nan=False, allow_infinity=False), min_size=2, max_size=12),
+    st.sampled_from([0.0, 5e-324, 1e-308, 1e-300, 1e-10, 0.5, 5.0]),
+    st.sampled_from([5e-324, 1e-308, 1e-200, 1e-5, 1.0, 10.0]),
+    st.sampled_from([-2.0, 0.0, 2.0]),
+    st.integers(0, 3),
+)
 def test_extreme_temperatures_and_penalties_never_give_nan(z, t, rep, freq, order_shift):
     from samplewright.core.presets import DEFAULT_ORDER
 
     order = DEFAULT_ORDER[order_shift:] + DEFAULT_ORDER[:order_shift]
-    preset = Preset("x", temperature=t, repetition_penalty=rep, frequency_penalty=freq, presence_penalty=freq,
-                    top_p=0.9, min_p=0.05, typical_p=0.95, order=order)
+    preset = Preset(
+        "x",
+        temperature=t,
+        repetition_penalty=rep,
+        frequency_penalty=freq,
+        presence_penalty=freq,
+        top_p=0.9,
+        min_p=0.05,
+        typical_p=0.95,
+        order=order,
+    )
     p = shape(np.array(z), preset, history=[0, 1, 1], generated=[1, 1])
     assert np.isfinite(p).all() and p.sum() == pytest.approx(1.0)
 

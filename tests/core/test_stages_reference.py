@@ -10,6 +10,7 @@ docs/parameters.md:
 Random float64 logits make both differences practically unreachable, so the
 kept sets and the logits must agree exactly.
 """
+
 import numpy as np
 import pytest
 import torch
@@ -17,7 +18,7 @@ from transformers.generation import logits_process as tlp
 
 import samplewright
 from samplewright import Preset
-from samplewright.core import stages
+from samplewright.core.sampling import stages
 
 VOCAB = 64
 TRIALS = 25
@@ -121,8 +122,16 @@ CHAIN_PRESETS = [
     Preset("a", temperature=0.8, top_k=20, top_p=0.9),
     Preset("b", temperature=1.3, min_p=0.05, repetition_penalty=1.2),
     Preset("c", temperature=0.6, typical_p=0.7, no_repeat_ngram_size=2),
-    Preset("d", temperature=1.1, top_k=30, top_p=0.95, min_p=0.02, typical_p=0.9,
-           repetition_penalty=1.15, no_repeat_ngram_size=3),
+    Preset(
+        "d",
+        temperature=1.1,
+        top_k=30,
+        top_p=0.95,
+        min_p=0.02,
+        typical_p=0.9,
+        repetition_penalty=1.15,
+        no_repeat_ngram_size=3,
+    ),
 ]
 
 
@@ -151,7 +160,10 @@ def test_large_vocabulary_matches_transformers(scale):
     # A vocabulary larger than stages.CANDIDATES: flat rows (small scale) need more
     # tokens than the candidates hold and take the full-sort path.
     z = torch.randn(4, 3000, generator=torch.Generator().manual_seed(7), dtype=torch.float64) * scale
-    four = lambda v: torch.full((4,), v, dtype=torch.float64)
+
+    def four(v):
+        return torch.full((4,), v, dtype=torch.float64)
+
     same_logits(stages.top_p(z, four(0.9)), tlp.TopPLogitsWarper(0.9)(None, z.clone()))
     same_logits(stages.typical_p(z, four(0.9)), tlp.TypicalLogitsWarper(0.9)(None, z.clone()))
     same_logits(stages.top_k(z, torch.full((4,), 1500)), tlp.TopKLogitsWarper(1500)(None, z.clone()))

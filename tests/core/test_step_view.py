@@ -1,4 +1,5 @@
 """The step view: shaped distributions, kept sets, entropies and which stage cut a token."""
+
 from __future__ import annotations
 
 import numpy as np
@@ -7,10 +8,10 @@ import torch
 from scipy import stats
 
 from samplewright import Preset, shape
-from samplewright.core import inspection
-from samplewright.core.engine import Engine
+from samplewright.core.engine.engine import Engine
 from samplewright.core.presets import DEFAULT_ORDER
 from samplewright.core.results import AuditionRequest
+from samplewright.core.sampling import inspection
 
 PASSAGE = "Season tickets remain valid during the winter timetable. The last sailing"
 
@@ -22,6 +23,7 @@ def engine(tiny_model):
 
 # -- the pure helpers -----------------------------------------------------------
 
+
 def test_entropy_bits_matches_scipy():
     # Reference library: scipy.stats.entropy with base 2, zeros included.
     rng = np.random.default_rng(0)
@@ -29,9 +31,9 @@ def test_entropy_bits_matches_scipy():
     probs[:, :10] = 0
     probs /= probs.sum(axis=1, keepdims=True)
     assert inspection.entropy_bits(probs) == pytest.approx(stats.entropy(probs, base=2, axis=1), abs=1e-12)
-    assert inspection.entropy_bits([0.5, 0.5, 0.0]) == pytest.approx(1.0)   # a fair coin: 1 bit
+    assert inspection.entropy_bits([0.5, 0.5, 0.0]) == pytest.approx(1.0)  # a fair coin: 1 bit
     certain = inspection.entropy_bits([1.0, 0.0])
-    assert certain == 0.0 and np.copysign(1.0, certain) == 1.0   # printed as 0.00, not -0.00
+    assert certain == 0.0 and np.copysign(1.0, certain) == 1.0  # printed as 0.00, not -0.00
 
 
 def test_top_ids_rank_ties_to_the_lower_id():
@@ -40,16 +42,19 @@ def test_top_ids_rank_ties_to_the_lower_id():
 
 def test_cut_by_names_the_first_stage_that_removed_a_token():
     inf = -np.inf
-    after = {"penalties": np.array([2.0, 1.0, 0.5, 0.0]),
-             "temperature": np.array([4.0, 2.0, 1.0, 0.0]),
-             "top_k": np.array([4.0, 2.0, 1.0, inf]),
-             "top_p": np.array([4.0, 2.0, inf, inf]),
-             "min_p": np.array([4.0, 2.0, inf, inf]),
-             "typical_p": np.array([4.0, inf, inf, inf])}
+    after = {
+        "penalties": np.array([2.0, 1.0, 0.5, 0.0]),
+        "temperature": np.array([4.0, 2.0, 1.0, 0.0]),
+        "top_k": np.array([4.0, 2.0, 1.0, inf]),
+        "top_p": np.array([4.0, 2.0, inf, inf]),
+        "min_p": np.array([4.0, 2.0, inf, inf]),
+        "typical_p": np.array([4.0, inf, inf, inf]),
+    }
     assert inspection.cut_by(after, DEFAULT_ORDER, [0, 1, 2, 3]) == [None, "typical_p", "top_p", "top_k"]
 
 
 # -- the engine's step view -------------------------------------------------------
+
 
 def raw_logits(loaded, ids):
     with torch.inference_mode():
@@ -57,8 +62,11 @@ def raw_logits(loaded, ids):
 
 
 def test_step_view_agrees_with_shape_and_scipy(engine, tiny_model):
-    presets = [Preset("plain"), Preset("nucleus", temperature=0.8, top_p=0.7),
-               Preset("penalised", repetition_penalty=1.5, presence_penalty=0.5, no_repeat_ngram_size=2)]
+    presets = [
+        Preset("plain"),
+        Preset("nucleus", temperature=0.8, top_p=0.7),
+        Preset("penalised", repetition_penalty=1.5, presence_penalty=0.5, no_repeat_ngram_size=2),
+    ]
     sample = [40, 41, 42]
     view = engine.step(PASSAGE, presets, sample_ids=sample, top=10)
     history = engine.encode_passage(PASSAGE).ids + sample
@@ -68,7 +76,7 @@ def test_step_view_agrees_with_shape_and_scipy(engine, tiny_model):
     assert view.raw_probs == pytest.approx(raw, abs=1e-6)
     assert view.raw_entropy_bits == pytest.approx(stats.entropy(raw, base=2), abs=1e-5)
     assert view.top_ids == list(np.argsort(-raw, kind="stable")[:10])
-    for preset, step in zip(presets, view.presets):
+    for preset, step in zip(presets, view.presets, strict=False):
         expected = shape(logits, preset, history, sample)
         assert step.name == preset.name
         assert step.probs == pytest.approx(expected, abs=1e-6)
@@ -77,11 +85,12 @@ def test_step_view_agrees_with_shape_and_scipy(engine, tiny_model):
         assert step.entropy_bits == pytest.approx(stats.entropy(expected, base=2), abs=1e-5)
         assert [row.id for row in step.top] == view.top_ids
         assert all(row.p == pytest.approx(expected[row.id], abs=1e-6) for row in step.top)
-    assert view.presets[0].kept == tiny_model.vocab_size   # temperature 1 alone removes nothing
+    assert view.presets[0].kept == tiny_model.vocab_size  # temperature 1 alone removes nothing
 
 
-@pytest.mark.parametrize("preset, stage", [(Preset("one", top_k=1), "top_k"),
-                                           (Preset("greedy", temperature=0), "temperature")])
+@pytest.mark.parametrize(
+    "preset, stage", [(Preset("one", top_k=1), "top_k"), (Preset("greedy", temperature=0), "temperature")]
+)
 def test_single_survivor_cuts_everything_else(engine, preset, stage):
     # By hand: top_k = 1 and temperature 0 each keep only the most probable token.
     step = engine.step(PASSAGE, [preset], top=8).presets[0]
@@ -99,8 +108,9 @@ def test_cut_by_follows_the_preset_order(engine):
     r0, r1, r2 = (raw.raw_probs[i] for i in raw.top_ids)
     assert r1 > r2
     min_p = float((r1 + r2) / 2 / r0)
-    late_k = Preset("min-p first", top_k=1, min_p=min_p,
-                    order=["penalties", "temperature", "min_p", "top_p", "typical_p", "top_k"])
+    late_k = Preset(
+        "min-p first", top_k=1, min_p=min_p, order=["penalties", "temperature", "min_p", "top_p", "typical_p", "top_k"]
+    )
     early_k = late_k.replace(name="top-k first", order=list(DEFAULT_ORDER))
     view = engine.step(PASSAGE, [late_k, early_k], top=5)
     assert [row.cut_by for row in view.presets[0].top] == [None, "top_k", "min_p", "min_p", "min_p"]
@@ -129,8 +139,9 @@ def test_step_view_of_plain_logits_shapes_like_shape_and_names_the_cutting_stage
     # No model: the core function the engine, the CLI and the plot demo all use.
     logits = np.log([0.4, 0.3, 0.2, 0.1])
     presets = [Preset("one", top_k=1), Preset("greedy", temperature=0), Preset("rep", repetition_penalty=2.0)]
-    view = inspection.step_view(logits, presets, ["a", "b", "c", "d"], history=[0], generated=[0], top=3,
-                                drawn_id=2, context_tokens=7)
+    view = inspection.step_view(
+        logits, presets, ["a", "b", "c", "d"], history=[0], generated=[0], top=3, drawn_id=2, context_tokens=7
+    )
     assert view.top_ids == [0, 1, 2] and view.top_texts == ["a", "b", "c"]
     assert view.drawn_id == 2 and view.context_tokens == 7
     np.testing.assert_allclose(view.raw_probs, [0.4, 0.3, 0.2, 0.1])
@@ -138,7 +149,7 @@ def test_step_view_of_plain_logits_shapes_like_shape_and_names_the_cutting_stage
     # temperature 0 is greedy (common practice), so temperature cuts them.
     assert [row.cut_by for row in view.presets[0].top] == [None, "top_k", "top_k"]
     assert [row.cut_by for row in view.presets[1].top] == [None, "temperature", "temperature"]
-    for step, preset in zip(view.presets, presets):
+    for step, preset in zip(view.presets, presets, strict=False):
         np.testing.assert_array_equal(step.probs, shape(logits, preset, history=[0], generated=[0]))
     # CTRL's penalty (Keskar et al. 2019) multiplies a seen token's negative logit by the penalty:
     # log(0.4) * 2 = log(0.16), below id 1's log(0.3), so id 0 falls behind id 1.

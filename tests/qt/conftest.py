@@ -1,5 +1,6 @@
 """Qt test fixtures: offscreen platform, private folders, a window on the shared tiny
 model, and a guard that fails any test leaving an engine thread running."""
+
 from __future__ import annotations
 
 import os
@@ -20,9 +21,11 @@ def tiny_loaded(tiny_model):
 @pytest.fixture
 def tiny_loader(tiny_model):
     """A model loader for the window that hands out the tiny model and reports progress like the real one."""
+
     def load(source, progress):
         progress("Building the tiny model", 0.5)
         return tiny_model
+
     return load
 
 
@@ -66,6 +69,7 @@ def window(qtbot, tiny_loader, tmp_path):
     def capture(message, detail=None):
         errors.append(detail if detail is not None else message)
         win.last_error = errors[-1]
+
     win.show_error = capture
     win.errors = errors
     # Questions about unsaved edits are answered from ``win.answers``; an unexpected one fails the test.
@@ -75,6 +79,7 @@ def window(qtbot, tiny_loader, tmp_path):
         win.questions.append((name, problem))
         assert win.answers, f"unexpected question about unsaved edits to '{name}'"
         return win.answers.pop(0)
+
     win.ask_unsaved = answer
     # A failed save's offer to write a copy is recorded; ``win.copy_wanted`` is the answer.
     win.offered, win.copy_wanted = [], False
@@ -96,8 +101,14 @@ def make_window(qtbot, tiny_loader, tmp_path):
     from samplewright.qt.main_window import MainWindow
 
     def make(config_dir=None, **kwargs):
-        win = MainWindow(model_loader=tiny_loader, library_dir=tmp_path / "lib",
-                         config_dir=config_dir or tmp_path / "cfg", load_on_start=False, **kwargs)
+        win = MainWindow(
+            model_loader=tiny_loader,
+            library_dir=tmp_path / "lib",
+            config_dir=config_dir or tmp_path / "cfg",
+            load_on_start=False,
+            **kwargs,
+        )
         qtbot.addWidget(win)
         return win
+
     return make

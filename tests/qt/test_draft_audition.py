@@ -4,17 +4,17 @@ of a ticked preset, mark its column, and leave the library file as it was.
 Greedy decoding is checked against the model itself (a direct transformers
 forward pass), and the stored preset against an independent core ``PresetLibrary``.
 """
+
 from __future__ import annotations
 
 import numpy as np
 import torch
-
-from samplewright.core.library import PresetLibrary
-from samplewright.core.presets import Preset
-from samplewright.qt.audition_view import DRAFT_MARK
-
 from test_presets_ui import retype
 from test_workflow import generate
+
+from samplewright.core.library.library import PresetLibrary
+from samplewright.core.presets import Preset
+from samplewright.qt.audition_view import DRAFT_MARK
 
 WIDE = Preset("Open water — wide", temperature=1.5)
 
@@ -85,7 +85,7 @@ def test_the_step_view_uses_the_same_draft(window, qtbot):
 
 def test_an_invalid_draft_is_not_used(window, qtbot):
     record = edit_wide_preset(window)
-    retype(qtbot, window.editor.inputs["temperature"], "7")        # outside 0–5
+    retype(qtbot, window.editor.inputs["temperature"], "7")  # outside 0–5
     window.samples_spin.setValue(2)
     window.tokens_spin.setValue(4)
     window.generate_all()
@@ -103,5 +103,5 @@ def test_regenerate_picks_up_the_draft(window, qtbot):
     qtbot.waitUntil(lambda: not window.running(), timeout=60000)
     draft_rows = rows(window)
     assert window.session.presets[0].temperature == 0.0
-    assert all(r == draft_rows[0] for r in draft_rows)                 # greedy (common practice)
+    assert all(r == draft_rows[0] for r in draft_rows)  # greedy (common practice)
     assert DRAFT_MARK in window.grid.headers[0].title.text()

@@ -3,16 +3,16 @@
 Expected revisions and values come from the core library read afresh from
 disk (a second ``PresetLibrary`` on the folder), not from the dialogs.
 """
+
 from __future__ import annotations
 
 from PySide6.QtCore import Qt, QTimer
 from PySide6.QtWidgets import QApplication, QMenu
-
-from samplewright.core.library import PresetLibrary
-from samplewright.qt.difference_view import CompareDialog, FIELD_LABELS, value_text
-from samplewright.qt.library_dialogs import HistoryDialog, TrashDialog, when_text
-
 from test_presets_ui import highlight_first, retype
+
+from samplewright.core.library.library import PresetLibrary
+from samplewright.qt.difference_view import FIELD_LABELS, CompareDialog, value_text
+from samplewright.qt.library_dialogs import HistoryDialog, TrashDialog, when_text
 
 
 def save_temperature(window, qtbot, text):
@@ -57,9 +57,9 @@ def test_bringing_back_a_revision_restores_its_value_and_can_be_undone(window, q
 
     stored = PresetLibrary(window.library.folder).get(record.id)
     assert stored.preset.temperature == first
-    assert stored.revision == record.revision + 3          # a new revision; nothing rewritten
+    assert stored.revision == record.revision + 3  # a new revision; nothing rewritten
     assert window.editor.inputs["temperature"].text() == value_text(first)
-    assert column(dialog.revisions, 0)[0] == str(record.revision + 2)   # the replaced one is now history
+    assert column(dialog.revisions, 0)[0] == str(record.revision + 2)  # the replaced one is now history
 
     window.undo_action.trigger()
     stored = PresetLibrary(window.library.folder).get(record.id)
@@ -136,6 +136,7 @@ def test_history_and_compare_are_in_the_presets_menu_and_the_list_menu(window, q
             next(a for a in menu.actions() if a.text() == "History…").trigger()
         elif left:
             QTimer.singleShot(20, lambda: read_and_choose_history(left - 1))
+
     QTimer.singleShot(0, read_and_choose_history)
     tree.customContextMenuRequested.emit(tree.visualItemRect(item).center())
     assert "History…" in offered and "Compare with…" in offered
@@ -145,7 +146,7 @@ def test_history_and_compare_are_in_the_presets_menu_and_the_list_menu(window, q
 
 
 def test_compare_survives_a_preset_deleted_by_a_colleague(window, qtbot):
-    from samplewright.core.library import PresetLibrary
+    from samplewright.core.library.library import PresetLibrary
 
     first, second = window.library.records()[:2]
     window.library_list.select(first.id)

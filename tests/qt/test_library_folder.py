@@ -5,6 +5,7 @@ has gone.
 What the window shows is checked against an independent core ``PresetLibrary``
 reading the same folder, as a colleague's window would.
 """
+
 from __future__ import annotations
 
 import json
@@ -12,18 +13,18 @@ import shutil
 from pathlib import Path
 
 import pytest
-from PySide6.QtCore import Qt
+from test_library_follow import list_names
+from test_presets_ui import highlight_first, retype
 
-from samplewright.core.library import PresetLibrary, default_library_dir, starter_presets
+from samplewright.core.library.library import PresetLibrary, default_library_dir, starter_presets
 from samplewright.core.presets import Preset
 from samplewright.qt.library_folder import short_folder
 from samplewright.qt.main_window import MainWindow
 
-from test_library_follow import list_names
-from test_presets_ui import highlight_first, retype
-
-TEAM_PRESETS = [Preset("Timetable change — plain", temperature=0.3, top_p=0.8),
-                Preset("Ferry newsletter — chatty", temperature=1.1, top_k=60)]
+TEAM_PRESETS = [
+    Preset("Timetable change — plain", temperature=0.3, top_p=0.8),
+    Preset("Ferry newsletter — chatty", temperature=1.1, top_k=60),
+]
 
 
 @pytest.fixture
@@ -60,12 +61,13 @@ def test_switching_shows_the_team_folders_presets(window, qtbot, team_folder):
     assert window.library.folder == team_folder
     assert list_names(window) == names_on_disk(team_folder) == sorted(p.name for p in TEAM_PRESETS)
     current = PresetLibrary(team_folder).get(window.library_list.current_id())
-    assert window.editor.original == current.preset          # the editor follows the new library
+    assert window.editor.original == current.preset  # the editor follows the new library
     assert "ferry-team-presets" in window.library_header.text()
     assert str(team_folder) in window.library_header.toolTip()
     assert "ferry-team-presets" in window.windowTitle()
-    assert window.library_list.chosen and all(i in {r.id for r in window.library.records()}
-                                              for i in window.library_list.chosen)
+    assert window.library_list.chosen and all(
+        i in {r.id for r in window.library.records()} for i in window.library_list.chosen
+    )
     assert window.undo_stack.count() == 0
     # The file watch now follows the team folder, not the user's own one.
     watched = window.library_watch.watched_paths()
@@ -83,11 +85,12 @@ def test_favourites_work_in_the_team_library(window, tmp_path, team_folder):
     window.actions["favourite"].trigger()
     state = json.loads((tmp_path / "config" / "state.json").read_text())
     assert record.id in state["favourites"]
-    assert not (team_folder / "state.json").exists()          # kept in the user's own folder
+    assert not (team_folder / "state.json").exists()  # kept in the user's own folder
     window.library_list.favourites_only.setChecked(True)
     tree = window.library_list.tree
-    assert [tree.topLevelItem(i).text(0) for i in range(tree.topLevelItemCount())
-            if not tree.topLevelItem(i).isHidden()] == [record.name]
+    assert [
+        tree.topLevelItem(i).text(0) for i in range(tree.topLevelItemCount()) if not tree.topLevelItem(i).isHidden()
+    ] == [record.name]
 
 
 def test_the_choice_is_reopened_at_the_next_start(window, qtbot, tiny_loader, tmp_path, team_folder):
@@ -107,7 +110,7 @@ def test_a_removed_folder_at_start_falls_back_with_a_message(window, qtbot, tiny
     window.close()
     backup = tmp_path / "backup"
     shutil.copytree(team_folder, backup)
-    shutil.rmtree(team_folder)                   # the shared drive is not there at the next start
+    shutil.rmtree(team_folder)  # the shared drive is not there at the next start
 
     fallback = reopen(qtbot, tiny_loader, tmp_path)
     assert fallback.library.folder == default_library_dir()
@@ -119,7 +122,7 @@ def test_a_removed_folder_at_start_falls_back_with_a_message(window, qtbot, tiny
     assert "my own library" in fallback.library_header.text()
     fallback.close()
 
-    shutil.copytree(backup, team_folder)         # back again: the remembered choice opens
+    shutil.copytree(backup, team_folder)  # back again: the remembered choice opens
     back = reopen(qtbot, tiny_loader, tmp_path)
     assert back.library.folder == team_folder and back.library_notice.isHidden()
 
@@ -177,7 +180,7 @@ def test_a_folder_that_cannot_be_opened_keeps_the_current_library(window, tmp_pa
     switch_to(window, tmp_path / "unplugged-drive" / "presets")
     assert window.library.folder == own
     assert len(window.errors) == 1 and "is not there" in window.errors[0]
-    assert not (tmp_path / "unplugged-drive").exists()       # a missing shared folder is never created
+    assert not (tmp_path / "unplugged-drive").exists()  # a missing shared folder is never created
 
 
 def test_recent_folders_switch_back_and_forth(window, tmp_path, team_folder):

@@ -4,17 +4,17 @@ The colleague is a second core ``PresetLibrary`` on the same folder, as another
 person's window would be; what the window shows is checked against what that
 independent instance wrote to disk.
 """
+
 from __future__ import annotations
 
 import dataclasses
 
 from PySide6.QtCore import Qt
-
-from samplewright.core.library import PresetLibrary
-from samplewright.core.presets import Preset
-from samplewright.core.records import encode_record
-
 from test_presets_ui import highlight_first, retype
+
+from samplewright.core.library.library import PresetLibrary
+from samplewright.core.library.records import encode_record
+from samplewright.core.presets import Preset
 
 
 def list_names(window):
@@ -63,9 +63,10 @@ def test_a_file_rewritten_in_place_is_picked_up(window, qtbot):
     record = window.library.records()[-1]
     path = window.library.folder / record.file_name
     assert str(path) in window.library_watch.watched_paths()
-    edited = dataclasses.replace(record, revision=record.revision + 1,
-                                 preset=record.preset.replace(top_k=7), modified_by="text editor")
-    with open(path, "r+b") as handle:       # in place, as a plain text editor may save
+    edited = dataclasses.replace(
+        record, revision=record.revision + 1, preset=record.preset.replace(top_k=7), modified_by="text editor"
+    )
+    with open(path, "r+b") as handle:  # in place, as a plain text editor may save
         handle.truncate(0)
         handle.write(encode_record(edited))
     qtbot.waitUntil(lambda: window.library.get(record.id).preset.top_k == 7, timeout=5000)
@@ -82,7 +83,7 @@ def test_own_saves_are_not_reported_as_someone_elses(window, qtbot):
         qtbot.mouseClick(window.editor.save_button, Qt.LeftButton)
     report, _names = blocker.args
     assert not report, "the window's own save came back from the folder as a change by others"
-    assert [e.id for e in events] == [record.id]      # only the save itself, no second round
+    assert [e.id for e in events] == [record.id]  # only the save itself, no second round
     assert window.statusBar().currentMessage().startswith(f"Saved '{record.name}'")
 
 
@@ -93,19 +94,20 @@ def test_a_vanished_folder_is_reported_without_a_message_box(window, qtbot):
     shutil.rmtree(window.library.folder)
     qtbot.waitUntil(lambda: window.library_watch.problem is not None, timeout=5000)
     assert "is not there" in window.statusBar().currentMessage()
-    assert len(list_names(window)) == count     # what was read stays listed
+    assert len(list_names(window)) == count  # what was read stays listed
     assert window.errors == []
 
 
 def test_a_rescan_with_many_changes_rebuilds_the_list_once(window, qtbot):
     colleague = colleague_of(window)
-    window.library_watch._periodic.stop()      # only the rescan below may read the folder
+    window.library_watch._periodic.stop()  # only the rescan below may read the folder
     window.library_watch._settle.stop()
     for n in range(5):
         colleague.add(Preset(f"Pier update {n}", temperature=0.5 + n / 10))
     rebuilds = []
     window.library_list.current_changed.connect(
-        lambda _id: rebuilds.append(1) if window.library_list.refreshing else None)
+        lambda _id: rebuilds.append(1) if window.library_list.refreshing else None
+    )
     window.rescan_library()
     assert [f"Pier update {n}" for n in range(5)] == [n for n in list_names(window) if "Pier update" in n]
     assert len(rebuilds) == 1

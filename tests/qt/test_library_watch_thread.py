@@ -1,5 +1,6 @@
 """The file watch reads the library folder on a worker thread: a slow folder (a network drive)
 does not stall the window, and closing the window leaves no reading running."""
+
 from __future__ import annotations
 
 import threading
@@ -7,8 +8,8 @@ import time
 
 from PySide6.QtCore import QTimer
 
-from samplewright.core import library as library_module
-from samplewright.core.library import PresetLibrary
+from samplewright.core.library import library as library_module
+from samplewright.core.library.library import PresetLibrary
 from samplewright.core.presets import Preset
 from samplewright.qt.library_watch import scans_running
 
@@ -25,6 +26,7 @@ def slow_reads(monkeypatch):
         readers.append(threading.get_ident())
         time.sleep(SLOW_READ_S)
         return real(path)
+
     monkeypatch.setattr(library_module, "read_record_file", slow)
     return readers
 
@@ -43,8 +45,8 @@ def test_the_window_keeps_serving_while_the_folder_is_read_slowly(window, qtbot,
     qtbot.waitUntil(lambda: added.id in {r.id for r in window.library.records()}, timeout=5000)
     qtbot.wait(50)
     timer.stop()
-    assert readers and threading.get_ident() not in readers     # the file was read off the window's thread
-    longest = max(b - a for a, b in zip(ticks, ticks[1:]))
+    assert readers and threading.get_ident() not in readers  # the file was read off the window's thread
+    longest = max(b - a for a, b in zip(ticks, ticks[1:], strict=False))
     # The issue asks for this timing: the event loop must not wait for the slow read.
     assert longest < SLOW_READ_S / 2, f"the window's event loop stalled {longest:.2f} s"
     assert "added 'Storm timetable' (colleague)" in window.statusBar().currentMessage()
@@ -57,7 +59,7 @@ def test_requests_during_a_reading_merge_into_one_more(window, qtbot, monkeypatc
     first = colleague.add(Preset("Storm timetable", top_k=30))
     readers = slow_reads(monkeypatch)
     watch.request_check()
-    second = colleague.add(Preset("Quay closure", top_k=10))   # while the first reading is under way
+    second = colleague.add(Preset("Quay closure", top_k=10))  # while the first reading is under way
     for _ in range(3):
         watch.request_check()
     assert scans_running() <= 1
@@ -77,7 +79,7 @@ def test_closing_the_window_leaves_no_reading_running(window, qtbot, monkeypatch
     assert scans_running() == 1
     window.close()
     assert scans_running() == 0
-    qtbot.wait(100)                  # a late delivery, if any, must not update the closed window
+    qtbot.wait(100)  # a late delivery, if any, must not update the closed window
     assert added.id not in {r.id for r in window.library.records()}
 
 

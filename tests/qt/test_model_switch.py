@@ -1,11 +1,11 @@
 """Switching models: samples written by the old model are cleared, later requests use the new one,
 and a new load cancels one still running."""
+
 from __future__ import annotations
 
 import numpy as np
 import pytest
 import torch
-
 from tests.conftest import build_tiny_model
 from tests.qt.test_workflow import generate, tick, untick_all
 
@@ -24,6 +24,7 @@ def two_model_window(qtbot, tiny_model, other_tiny, tmp_path):
     def load(source, progress):
         progress("Building", 0.5)
         return other_tiny if source == "other" else tiny_model
+
     win = MainWindow(model_loader=load, library_dir=tmp_path / "lib", config_dir=tmp_path / "cfg")
     qtbot.addWidget(win)
     win.show()
@@ -43,8 +44,14 @@ def test_switching_model_clears_old_samples_and_steps_use_new_model(two_model_wi
     old_engine = win.engine.worker._engine
 
     win.load_model("other")
-    qtbot.waitUntil(lambda: win.engine.worker._engine is not old_engine and win._model_serial is not None
-                    and win.model_progress.isHidden(), timeout=20000)
+    qtbot.waitUntil(
+        lambda: (
+            win.engine.worker._engine is not old_engine
+            and win._model_serial is not None
+            and win.model_progress.isHidden()
+        ),
+        timeout=20000,
+    )
     assert win.session.samples == [] and win.session.presets == []
     assert win.grid.headers == [] and win.grid.view(0, 0) is None
     qtbot.waitUntil(lambda: win.inspector.plot.shown is None, timeout=5000)
@@ -74,15 +81,22 @@ def test_a_new_load_cancels_the_one_in_progress(qtbot, tiny_model, other_tiny, t
         if source == "slow":
             started.set()
             release.wait(20)
-            progress("Still converting", 0.5)    # the cancelled load stops here
+            progress("Still converting", 0.5)  # the cancelled load stops here
         return other_tiny if source == "other" else tiny_model
 
     def engine(loaded):
-        from samplewright.core.engine import Engine
+        from samplewright.core.engine.engine import Engine
+
         built.append(loaded)
         return Engine(loaded)
-    win = MainWindow(model_loader=load, engine_factory=engine, library_dir=tmp_path / "lib",
-                     config_dir=tmp_path / "cfg", model_source="slow")
+
+    win = MainWindow(
+        model_loader=load,
+        engine_factory=engine,
+        library_dir=tmp_path / "lib",
+        config_dir=tmp_path / "cfg",
+        model_source="slow",
+    )
     qtbot.addWidget(win)
     failed = []
     win.engine.worker.failed.connect(lambda serial, kind, message: failed.append((serial, kind, message)))

@@ -1,4 +1,5 @@
 """The distribution plot: built once, updated in place, newest step wins; and the demo script."""
+
 from __future__ import annotations
 
 import os
@@ -86,7 +87,12 @@ def test_token_labels_show_invisible_characters():
 
 def test_plot_demo_runs():
     env = dict(os.environ, QT_QPA_PLATFORM="offscreen")
-    done = subprocess.run([sys.executable, str(ROOT / "examples" / "plot_demo.py"), "--iterations", "5"],
-                          capture_output=True, text=True, env=env, timeout=300)
+    done = subprocess.run(
+        [sys.executable, str(ROOT / "examples" / "plot_demo.py"), "--iterations", "5"],
+        capture_output=True,
+        text=True,
+        env=env,
+        timeout=300,
+    )
     assert done.returncode == 0, done.stderr
     assert "drew 5 steps" in done.stdout

@@ -1,4 +1,5 @@
 """Preset editing, undoable library changes, export and import from the window."""
+
 from __future__ import annotations
 
 import json
@@ -7,8 +8,8 @@ import pytest
 from PySide6.QtCore import Qt
 
 from samplewright.core.errors import LibraryError
+from samplewright.core.library.settings_file import check_file, read_settings
 from samplewright.core.presets import FIELDS, PresetError, validate_field
-from samplewright.core.settings_file import check_file, read_settings
 
 
 def highlight_first(window):
@@ -24,8 +25,10 @@ def retype(qtbot, line_edit, text):
     qtbot.keyClicks(line_edit, text)
 
 
-@pytest.mark.parametrize("field, typed, value", [("temperature", "7", 7.0), ("top_p", "0", 0.0),
-                                                  ("top_k", "2.5", 2.5), ("min_p", "abc", None)])
+@pytest.mark.parametrize(
+    "field, typed, value",
+    [("temperature", "7", 7.0), ("top_p", "0", 0.0), ("top_k", "2.5", 2.5), ("min_p", "abc", None)],
+)
 def test_invalid_value_shows_reason_and_is_not_saved(window, qtbot, field, typed, value):
     record = highlight_first(window)
     editor = window.editor
@@ -79,8 +82,9 @@ def test_undo_restores_a_deleted_preset(window):
     record = highlight_first(window)
     window.actions["delete"].trigger()
     assert record.name not in [r.name for r in window.library.records()]
-    assert record.name not in [window.library_list.tree.topLevelItem(i).text(0)
-                               for i in range(window.library_list.tree.topLevelItemCount())]
+    assert record.name not in [
+        window.library_list.tree.topLevelItem(i).text(0) for i in range(window.library_list.tree.topLevelItemCount())
+    ]
     window.undo_action.trigger()
     names = [r.name for r in window.library.records()]
     assert record.name in names
@@ -112,13 +116,15 @@ def test_search_and_tag_filter_hide_other_presets(window):
     assert tagged, "the starter presets carry tags"
     tag = tagged[0].preset.tags[0]
     window.library_list.tag_filter.setCurrentText(tag)
-    visible = [tree.topLevelItem(i).text(0) for i in range(tree.topLevelItemCount())
-               if not tree.topLevelItem(i).isHidden()]
+    visible = [
+        tree.topLevelItem(i).text(0) for i in range(tree.topLevelItemCount()) if not tree.topLevelItem(i).isHidden()
+    ]
     assert sorted(visible) == sorted(r.name for r in records if tag in r.preset.tags)
     window.library_list.tag_filter.setCurrentIndex(0)
     window.library_list.search.setText(records[0].name)
-    visible = [tree.topLevelItem(i).text(0) for i in range(tree.topLevelItemCount())
-               if not tree.topLevelItem(i).isHidden()]
+    visible = [
+        tree.topLevelItem(i).text(0) for i in range(tree.topLevelItemCount()) if not tree.topLevelItem(i).isHidden()
+    ]
     assert records[0].name in visible and len(visible) < len(records)
 
 
@@ -129,8 +135,9 @@ def test_favourite_is_kept_in_the_user_state(window, tmp_path):
     assert record.id in state["favourites"]
     window.library_list.favourites_only.setChecked(True)
     tree = window.library_list.tree
-    visible = [tree.topLevelItem(i).text(0) for i in range(tree.topLevelItemCount())
-               if not tree.topLevelItem(i).isHidden()]
+    visible = [
+        tree.topLevelItem(i).text(0) for i in range(tree.topLevelItemCount()) if not tree.topLevelItem(i).isHidden()
+    ]
     assert visible == [record.name]
 
 
@@ -160,8 +167,8 @@ def test_import_of_a_broken_file_shows_the_reason(window, tmp_path):
 
 
 def test_import_previews_then_adds_presets(window, tmp_path):
+    from samplewright.core.library.settings_file import export_settings
     from samplewright.core.presets import Preset
-    from samplewright.core.settings_file import export_settings
 
     source = tmp_path / "from-a-colleague.json"
     export_settings([Preset("Quay notice", temperature=0.6, top_p=0.9)], source)
@@ -173,8 +180,8 @@ def test_import_previews_then_adds_presets(window, tmp_path):
 
 
 def test_import_conflict_choice_from_the_preview(window, qtbot, tmp_path):
-    from samplewright.core.importing import preview_import
-    from samplewright.core.settings_file import export_settings
+    from samplewright.core.library.importing import preview_import
+    from samplewright.core.library.settings_file import export_settings
     from samplewright.qt.dialogs import ImportPreviewDialog
 
     record = window.library.records()[0]
@@ -205,9 +212,16 @@ def test_delete_key_acts_only_in_the_preset_list(window, qtbot):
     assert len(window.library.records()) == count - 1
 
 
-@pytest.mark.parametrize("field, text", [("top_k", "1,000"), ("max_new_tokens", "1_000"),
-                                         ("temperature", "1,000.5"), ("temperature", "1.000,5"),
-                                         ("top_p", "0,5,1")])
+@pytest.mark.parametrize(
+    "field, text",
+    [
+        ("top_k", "1,000"),
+        ("max_new_tokens", "1_000"),
+        ("temperature", "1,000.5"),
+        ("temperature", "1.000,5"),
+        ("top_p", "0,5,1"),
+    ],
+)
 def test_editor_rejects_numbers_with_separators(field, text):
     from samplewright.qt.preset_editor import parse_field
 

@@ -5,6 +5,7 @@ written keeps the edits and offers a copy as a file.
 What ends up stored is read back with a second core ``PresetLibrary`` (or the
 core's preset-file reader), independently of the window.
 """
+
 from __future__ import annotations
 
 import json
@@ -13,13 +14,12 @@ import shutil
 import pytest
 from PySide6.QtCore import Qt, QTimer
 from PySide6.QtWidgets import QApplication, QMessageBox
-
-from samplewright.core.library import PresetLibrary
-from samplewright.core.presets import Preset, PresetError, validate_field
-from samplewright.core.settings_file import check_file
-from samplewright.qt.main_window import MainWindow
-
 from test_presets_ui import highlight_first, retype
+
+from samplewright.core.library.library import PresetLibrary
+from samplewright.core.library.settings_file import check_file
+from samplewright.core.presets import Preset, PresetError, validate_field
+from samplewright.qt.main_window import MainWindow
 
 
 def stored(window, record_id):
@@ -28,22 +28,32 @@ def stored(window, record_id):
 
 def answer_next_message_box(button_text, seen, tries=250):
     """Click ``button_text`` in the next modal message box (it blocks, so poll for it from the event loop)."""
+
     def poll(left=tries):
         box = QApplication.activeModalWidget()
         if isinstance(box, QMessageBox):
-            seen.append({"text": box.text(), "detail": box.informativeText(),
-                         "buttons": sorted(b.text().replace("&", "") for b in box.buttons())})
+            seen.append(
+                {
+                    "text": box.text(),
+                    "detail": box.informativeText(),
+                    "buttons": sorted(b.text().replace("&", "") for b in box.buttons()),
+                }
+            )
             next(b for b in box.buttons() if b.text().replace("&", "") == button_text).click()
         elif left:
             QTimer.singleShot(20, lambda: poll(left - 1))
+
     QTimer.singleShot(0, poll)
 
 
 def click_row(qtbot, window, record_id):
     """Click a preset's row in the list with the mouse, as a user would."""
     tree = window.library_list.tree
-    item = next(tree.topLevelItem(i) for i in range(tree.topLevelItemCount())
-                if tree.topLevelItem(i).data(0, Qt.UserRole) == record_id)
+    item = next(
+        tree.topLevelItem(i)
+        for i in range(tree.topLevelItemCount())
+        if tree.topLevelItem(i).data(0, Qt.UserRole) == record_id
+    )
     qtbot.mouseClick(tree.viewport(), Qt.LeftButton, pos=tree.visualItemRect(item).center())
 
 
@@ -74,7 +84,7 @@ def test_an_invalid_draft_can_only_be_discarded_and_says_why(window, qtbot):
     seen = []
     answer_next_message_box("Discard", seen)
     window.library_list.select(other.id)
-    with pytest.raises(PresetError) as why:      # the core's own reason for refusing the value
+    with pytest.raises(PresetError) as why:  # the core's own reason for refusing the value
         validate_field("top_p", 1.5)
     assert seen[0]["buttons"] == ["Cancel", "Discard"]
     assert str(why.value) in seen[0]["detail"]
@@ -100,7 +110,7 @@ def test_delete_and_rename_ask_first(window, qtbot, action):
     window.ask_text = lambda *args: "Pier notice"
     window.answers.append("cancel")
     window.actions[action].trigger()
-    assert stored(window, record.id) == record          # cancelled: nothing happened
+    assert stored(window, record.id) == record  # cancelled: nothing happened
     window.answers.append("discard")
     window.actions[action].trigger()
     library = PresetLibrary(window.library.folder)
@@ -133,8 +143,8 @@ def test_a_colleagues_save_in_between_goes_through_the_conflict_dialog(window, q
     window.actions["save"].trigger()
     assert seen and "colleague" in seen[0]["text"]
     library = PresetLibrary(window.library.folder)
-    assert library.get(record.id) == theirs                    # theirs untouched
-    copy = library.find(f"{record.name} (copy)")               # mine kept as a copy
+    assert library.get(record.id) == theirs  # theirs untouched
+    copy = library.find(f"{record.name} (copy)")  # mine kept as a copy
     assert copy.preset.temperature == 0.45 and copy.preset.top_p == record.preset.top_p
     assert window.library_list.current_id() == copy.id
     assert not window.editor.is_dirty()
@@ -146,7 +156,7 @@ def test_revert_after_a_colleagues_save_shows_their_version(window, qtbot):
     assert window.editor.original == theirs.preset
     assert window.editor.inputs["top_p"].text() == "0.5"
     retype(qtbot, window.editor.inputs["temperature"], "0.55")
-    window.actions["save"].trigger()                     # no conflict: the edit starts from theirs
+    window.actions["save"].trigger()  # no conflict: the edit starts from theirs
     saved = stored(window, record.id)
     assert (saved.revision, saved.preset.top_p, saved.preset.temperature) == (theirs.revision + 1, 0.5, 0.55)
 
@@ -156,7 +166,7 @@ def test_edits_to_a_preset_a_colleague_deleted_are_kept(window, qtbot):
     retype(qtbot, window.editor.inputs["temperature"], "0.45")
     PresetLibrary(window.library.folder, user="colleague").delete(record.id)
     qtbot.waitUntil(lambda: record.id not in [r.id for r in window.library.records()], timeout=5000)
-    assert window.questions == []                    # no question popped up from the file watch
+    assert window.questions == []  # no question popped up from the file watch
     assert window.editor.inputs["temperature"].text() == "0.45"
     assert "no longer in the library" in window.editor.notice.text()
 
@@ -199,12 +209,13 @@ def test_the_saved_copy_goes_back_into_the_library_when_the_folder_returns(windo
     window.ask_save_path = lambda *args: str(tmp_path / "my-draft.json")
     window.copy_wanted = True
     window.actions["save"].trigger()
-    shutil.copytree(backup, window.library.folder)          # the drive is back
+    shutil.copytree(backup, window.library.folder)  # the drive is back
     window.actions["rescan"].trigger()
 
     previews = []
-    window.confirm_import = lambda plan, name: previews.append([i.action for i in plan.items]) or {
-        record.name: "overwrite"}
+    window.confirm_import = lambda plan, name: (
+        previews.append([i.action for i in plan.items]) or {record.name: "overwrite"}
+    )
     window.import_settings(str(tmp_path / "my-draft.json"))
-    assert previews == [["conflict"]]          # same name, other parameters: the user chooses
+    assert previews == [["conflict"]]  # same name, other parameters: the user chooses
     assert stored(window, record.id).preset.parameters() == draft.parameters()

@@ -1,4 +1,5 @@
 """Passage length and cut, model switching, copying, the entry point and the caution."""
+
 from __future__ import annotations
 
 import os
@@ -6,12 +7,11 @@ import subprocess
 import sys
 
 from PySide6.QtGui import QGuiApplication
+from test_workflow import generate, inspect_a_token, tick, untick_all
 
 from samplewright.core.errors import ModelError
+from samplewright.core.library.settings_file import check_file, export_settings
 from samplewright.core.presets import Preset
-from samplewright.core.settings_file import check_file, export_settings
-
-from test_workflow import generate, inspect_a_token, tick, untick_all
 
 
 def test_long_passage_shows_where_it_is_cut(window, qtbot, tiny_loaded):
@@ -51,7 +51,7 @@ def test_a_failed_model_switch_keeps_the_loaded_model(qtbot, tiny_loaded, tmp_pa
     qtbot.addWidget(win)
     qtbot.waitUntil(lambda: win.model_info is not None, timeout=20000)
     assert "tiny test model" in win.model_label.text()
-    assert f"{tiny_loaded.n_parameters:,} parameters" in win.model_label.text()   # under a million: in full
+    assert f"{tiny_loaded.n_parameters:,} parameters" in win.model_label.text()  # under a million: in full
     errors = []
     win.show_error = lambda title, detail=None: errors.append(detail)
     win.ask_folder = lambda title: str(tmp_path / "missing-model")
@@ -88,8 +88,9 @@ def test_main_module_hands_arguments_to_the_command_line(tmp_path):
     path = tmp_path / "shared.json"
     export_settings([Preset("Quay notice", top_p=0.9)], path)
     env = dict(os.environ, QT_QPA_PLATFORM="offscreen")
-    done = subprocess.run([sys.executable, "-m", "samplewright", "check", str(path)], capture_output=True,
-                          text=True, env=env, timeout=120)
+    done = subprocess.run(
+        [sys.executable, "-m", "samplewright", "check", str(path)], capture_output=True, text=True, env=env, timeout=120
+    )
     assert done.returncode == 0, done.stderr
     assert done.stdout.strip() == check_file(path)
 
@@ -135,7 +136,8 @@ def test_new_samples_without_an_inspected_token_names_the_preset(window, qtbot):
 def test_controls_have_accessible_names(window):
     assert window.library_list.favourites_only.accessibleName() == "Favourites only"
     assert window.model_progress.accessibleName()
-    from samplewright.core.model import DEFAULT_NAME
+    from samplewright.core.engine.model import DEFAULT_NAME
+
     assert DEFAULT_NAME in window.actions["model_default"].toolTip()
 
 
@@ -146,9 +148,9 @@ def test_cut_shading_counts_emoji_as_qt_does(window, qtbot):
     window.passage.set_text(text)
     qtbot.waitUntil(lambda: "left out" in window.passage.info.text(), timeout=10000)
     counted = window.engine.worker._engine.encode_passage(text)
-    assert counted.cut_at and "🚢" in text[:counted.cut_at]
+    assert counted.cut_at and "🚢" in text[: counted.cut_at]
     (shade,) = window.passage.editor.extraSelections()
-    assert shade.cursor.selectedText() == text[:counted.cut_at]
+    assert shade.cursor.selectedText() == text[: counted.cut_at]
 
 
 def test_token_count_without_a_model_says_when_it_appears(make_window, qtbot):
@@ -160,7 +162,7 @@ def test_token_count_without_a_model_says_when_it_appears(make_window, qtbot):
 
 
 def test_failed_token_count_is_reported(window, qtbot):
-    window.engine.worker._engine = None          # the next count fails inside the worker
+    window.engine.worker._engine = None  # the next count fails inside the worker
     window.passage.set_text("Dear passengers, from Monday the quay is closed")
     qtbot.waitUntil(lambda: "could not be counted" in window.passage.info.text(), timeout=5000)
 
@@ -174,7 +176,8 @@ def test_damaged_settings_file_falls_back_to_defaults(make_window, tmp_path):
         "[window]\ngeometry=not-a-geometry\n[splitters]\nmain=@Variant(garbage\n"
         "[passage]\nrecent={broken json\ntext=Dear passengers\nsource=/nowhere/letter.txt\n"
         "[audition]\nsamples=four\nnew_tokens=99999999999999999999\nseed=1,2\nchosen=[unclosed\n",
-        encoding="utf-8")
+        encoding="utf-8",
+    )
     win = make_window(config_dir=config)
     assert win.samples_spin.value() == 4 and win.seed_spin.value() == 1234
     assert win.tokens_spin.value() == win.tokens_spin.maximum()

@@ -1,12 +1,13 @@
 """The main workflow end to end on the tiny model: passage → presets → generate →
 click a token → the plot shows that step with the drawn token marked."""
+
 from __future__ import annotations
 
 import numpy as np
 import torch
 from PySide6.QtCore import Qt
 
-from samplewright.core.passages import read_passage
+from samplewright.core.engine.passages import read_passage
 
 PASSAGE = "The morning ferry to the island leaves the harbour"
 
@@ -221,5 +222,5 @@ def test_new_run_clears_the_highlighted_token(window, qtbot):
     column, row, _ = inspect_a_token(window, qtbot, tokens=4)
     view = window.grid.view(column, row)
     assert view.marked == 0
-    generate(window, qtbot, samples=2, tokens=4)       # same shape: the grid keeps its views
+    generate(window, qtbot, samples=2, tokens=4)  # same shape: the grid keeps its views
     assert window.grid.view(column, row) is view and view.marked is None

@@ -3,9 +3,11 @@
 No Qt here, so the core can be used and tested headless; the window connects
 its own slots as ordinary callbacks.
 """
+
 from __future__ import annotations
 
-from typing import Any, Callable
+from collections.abc import Callable
+from typing import Any
 
 
 class Emitter:

@@ -9,12 +9,14 @@ presets stays fast.
 
 References for each parameter are in ``core/stages.py``.
 """
+
 from __future__ import annotations
 
 import dataclasses
 import math
+from collections.abc import Mapping
 from datetime import datetime, timezone
-from typing import Any, Mapping
+from typing import Any
 
 from .errors import SamplewrightError
 
@@ -52,8 +54,7 @@ def _fits_float(value: Any) -> bool:
         return False
 
 
-def _number(field: str, value: Any, low: float, high: float, *, low_open=False,
-            high_open=False, allowed: str) -> float:
+def _number(field: str, value: Any, low: float, high: float, *, low_open=False, high_open=False, allowed: str) -> float:
     if not _is_number(value) or not _fits_float(value):
         raise PresetError(field, f"{value!r} is not a finite number; allowed: {allowed}")
     too_low = value <= low if low_open else value < low
@@ -135,45 +136,77 @@ def _timestamp(field: str, value: Any) -> str:
 #: Per field: (validator, default, allowed range in words, one-sentence explanation).
 FIELDS: dict[str, tuple[Any, Any, str, str]] = {
     "temperature": (
-        lambda v: _number("temperature", v, 0.0, 5.0, allowed="0 to 5"), 1.0, "0 to 5",
-        "Divides the logits before the softmax: below 1 sharpens, above 1 flattens, 0 always takes the top token."),
+        lambda v: _number("temperature", v, 0.0, 5.0, allowed="0 to 5"),
+        1.0,
+        "0 to 5",
+        "Divides the logits before the softmax: below 1 sharpens, above 1 flattens, 0 always takes the top token.",
+    ),
     "top_k": (
-        lambda v: _integer("top_k", v, 0, MAX_TOP_K, "a whole number from 0 to 1000000 (0 = off)"), 0,
+        lambda v: _integer("top_k", v, 0, MAX_TOP_K, "a whole number from 0 to 1000000 (0 = off)"),
+        0,
         "whole number 0 to 1000000 (0 = off)",
-        "Keeps only the k most probable tokens."),
+        "Keeps only the k most probable tokens.",
+    ),
     "top_p": (
-        lambda v: _number("top_p", v, 0.0, 1.0, low_open=True, allowed="above 0 up to 1 (1 = off)"), 1.0,
+        lambda v: _number("top_p", v, 0.0, 1.0, low_open=True, allowed="above 0 up to 1 (1 = off)"),
+        1.0,
         "above 0 up to 1 (1 = off)",
-        "Nucleus sampling: keeps the most probable tokens until their probabilities add up to p."),
+        "Nucleus sampling: keeps the most probable tokens until their probabilities add up to p.",
+    ),
     "min_p": (
-        lambda v: _number("min_p", v, 0.0, 1.0, high_open=True, allowed="0 up to, not including, 1 (0 = off)"), 0.0,
+        lambda v: _number("min_p", v, 0.0, 1.0, high_open=True, allowed="0 up to, not including, 1 (0 = off)"),
+        0.0,
         "0 up to, not including, 1 (0 = off)",
-        "Drops every token less likely than this fraction of the top token's probability."),
+        "Drops every token less likely than this fraction of the top token's probability.",
+    ),
     "typical_p": (
-        lambda v: _number("typical_p", v, 0.0, 1.0, low_open=True, allowed="above 0 up to 1 (1 = off)"), 1.0,
+        lambda v: _number("typical_p", v, 0.0, 1.0, low_open=True, allowed="above 0 up to 1 (1 = off)"),
+        1.0,
         "above 0 up to 1 (1 = off)",
-        "Typical sampling: keeps the tokens whose surprise is closest to the average until they hold this mass."),
+        "Typical sampling: keeps the tokens whose surprise is closest to the average until they hold this mass.",
+    ),
     "repetition_penalty": (
         lambda v: _number("repetition_penalty", v, 0.0, 10.0, low_open=True, allowed="above 0 up to 10 (1 = off)"),
-        1.0, "above 0 up to 10 (1 = off)",
-        "Makes every token already in the passage or sample less likely (above 1) or more likely (below 1)."),
+        1.0,
+        "above 0 up to 10 (1 = off)",
+        "Makes every token already in the passage or sample less likely (above 1) or more likely (below 1).",
+    ),
     "frequency_penalty": (
-        lambda v: _number("frequency_penalty", v, -2.0, 2.0, allowed="-2 to 2 (0 = off)"), 0.0, "-2 to 2 (0 = off)",
-        "Lowers a token's logit by this much for each time the sample already used it."),
+        lambda v: _number("frequency_penalty", v, -2.0, 2.0, allowed="-2 to 2 (0 = off)"),
+        0.0,
+        "-2 to 2 (0 = off)",
+        "Lowers a token's logit by this much for each time the sample already used it.",
+    ),
     "presence_penalty": (
-        lambda v: _number("presence_penalty", v, -2.0, 2.0, allowed="-2 to 2 (0 = off)"), 0.0, "-2 to 2 (0 = off)",
-        "Lowers a token's logit by this much once the sample has used it at all."),
+        lambda v: _number("presence_penalty", v, -2.0, 2.0, allowed="-2 to 2 (0 = off)"),
+        0.0,
+        "-2 to 2 (0 = off)",
+        "Lowers a token's logit by this much once the sample has used it at all.",
+    ),
     "no_repeat_ngram_size": (
-        lambda v: _integer("no_repeat_ngram_size", v, 0, 32, "a whole number from 0 to 32 (0 = off)"), 0,
+        lambda v: _integer("no_repeat_ngram_size", v, 0, 32, "a whole number from 0 to 32 (0 = off)"),
+        0,
         "whole number 0 to 32 (0 = off)",
-        "Forbids any token that would repeat a run of this many tokens already in the text."),
+        "Forbids any token that would repeat a run of this many tokens already in the text.",
+    ),
     "max_new_tokens": (
-        lambda v: _integer("max_new_tokens", v, 1, 512, "a whole number from 1 to 512"), 64, "whole number 1 to 512",
-        "The longest continuation this preset writes."),
-    "stop": (_stop, (), "up to 16 non-empty strings",
-             "Text that ends a sample as soon as it appears in the continuation."),
-    "order": (_order, DEFAULT_ORDER, "each stage name exactly once",
-              "The order the stages reshape the distribution in; each stage sees the previous stage's result."),
+        lambda v: _integer("max_new_tokens", v, 1, 512, "a whole number from 1 to 512"),
+        64,
+        "whole number 1 to 512",
+        "The longest continuation this preset writes.",
+    ),
+    "stop": (
+        _stop,
+        (),
+        "up to 16 non-empty strings",
+        "Text that ends a sample as soon as it appears in the continuation.",
+    ),
+    "order": (
+        _order,
+        DEFAULT_ORDER,
+        "each stage name exactly once",
+        "The order the stages reshape the distribution in; each stage sees the previous stage's result.",
+    ),
 }
 PARAMETERS = tuple(FIELDS)
 METADATA = ("name", "description", "tags", "notes", "created", "modified")
@@ -242,7 +275,7 @@ class Preset:
             object.__setattr__(self, field, validate_field(field, value))
 
     @classmethod
-    def from_dict(cls, mapping: Mapping[str, Any]) -> "Preset":
+    def from_dict(cls, mapping: Mapping[str, Any]) -> Preset:
         """Build a preset from its plain-JSON form; missing parameters take their defaults.
 
         Raises:
@@ -270,7 +303,7 @@ class Preset:
         full = self.to_dict()
         return {field: full[field] for field in PARAMETERS}
 
-    def replace(self, **changes: Any) -> "Preset":
+    def replace(self, **changes: Any) -> Preset:
         """A validated copy with ``changes`` applied."""
         unknown = [key for key in changes if key not in ALL_KEYS]
         if unknown:
@@ -280,8 +313,17 @@ class Preset:
     def describe(self) -> str:
         """A short one-line summary of the parameters that are not at their neutral value."""
         parts = []
-        for field in ("temperature", "top_k", "top_p", "min_p", "typical_p", "repetition_penalty",
-                      "frequency_penalty", "presence_penalty", "no_repeat_ngram_size"):
+        for field in (
+            "temperature",
+            "top_k",
+            "top_p",
+            "min_p",
+            "typical_p",
+            "repetition_penalty",
+            "frequency_penalty",
+            "presence_penalty",
+            "no_repeat_ngram_size",
+        ):
             value = getattr(self, field)
             if value != FIELDS[field][1] or field == "temperature":
                 parts.append(f"{field}={value:g}")

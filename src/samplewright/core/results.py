@@ -1,9 +1,9 @@
 """Plain data produced by the engine: generated tokens, samples, auditions
 and the step view. Shared by the CLI and the window; no torch, no Qt."""
+
 from __future__ import annotations
 
 import dataclasses
-from typing import Optional
 
 import numpy as np
 
@@ -18,12 +18,12 @@ class TokenStep:
     """One generated token and the distribution it was drawn from."""
 
     token_id: int
-    text: str                  # the token's own text piece
-    raw_p: float               # probability under the unshaped model (temperature 1)
-    p: float                   # probability under the preset's shaped distribution
-    kept: int                  # tokens left with nonzero probability after shaping
-    raw_entropy_bits: float    # entropy of the unshaped distribution
-    entropy_bits: float        # entropy of the shaped distribution
+    text: str  # the token's own text piece
+    raw_p: float  # probability under the unshaped model (temperature 1)
+    p: float  # probability under the preset's shaped distribution
+    kept: int  # tokens left with nonzero probability after shaping
+    raw_entropy_bits: float  # entropy of the unshaped distribution
+    entropy_bits: float  # entropy of the shaped distribution
 
 
 @dataclasses.dataclass
@@ -33,8 +33,8 @@ class Sample:
     preset_index: int
     sample_index: int
     tokens: list[TokenStep] = dataclasses.field(default_factory=list)
-    stop_reason: Optional[str] = None   # one of STOP_REASONS once finished
-    text: str = ""                      # decoded continuation, cut before a stop string
+    stop_reason: str | None = None  # one of STOP_REASONS once finished
+    text: str = ""  # decoded continuation, cut before a stop string
 
     @property
     def token_ids(self) -> list[int]:
@@ -48,11 +48,11 @@ class TokenEvent:
 
     preset_index: int
     sample_index: int
-    step: int                      # 0-based position in the sample
-    token: Optional[TokenStep]     # None when the row ended without a token (EOS)
-    stop_reason: Optional[str]     # set when this event ends the sample
-    done_tokens: int               # tokens generated so far over all rows
-    total_tokens: int              # upper bound of tokens for the whole audition
+    step: int  # 0-based position in the sample
+    token: TokenStep | None  # None when the row ended without a token (EOS)
+    stop_reason: str | None  # set when this event ends the sample
+    done_tokens: int  # tokens generated so far over all rows
+    total_tokens: int  # upper bound of tokens for the whole audition
 
 
 @dataclasses.dataclass
@@ -62,7 +62,7 @@ class AuditionRequest:
     passage: str
     presets: list[Preset]
     samples: int = 4
-    max_new_tokens: int = 64   # budget; a row writes min(budget, preset.max_new_tokens)
+    max_new_tokens: int = 64  # budget; a row writes min(budget, preset.max_new_tokens)
     seed: int = 0
 
 
@@ -72,7 +72,7 @@ class AuditionResult:
 
     request: AuditionRequest
     passage_ids: list[int]
-    passage_dropped: int           # tokens cut from the start to fit the context
+    passage_dropped: int  # tokens cut from the start to fit the context
     samples: list[list[Sample]]
     cancelled: bool = False
     seconds: float = 0.0
@@ -90,7 +90,7 @@ class TokenRow:
     text: str
     raw_p: float
     p: float
-    cut_by: Optional[str]   # stage name that removed it, or None if kept
+    cut_by: str | None  # stage name that removed it, or None if kept
 
 
 @dataclasses.dataclass(frozen=True)
@@ -98,22 +98,22 @@ class PresetStep:
     """How one preset reshaped the distribution at this step."""
 
     name: str
-    probs: np.ndarray          # full shaped distribution (float64, vocab)
+    probs: np.ndarray  # full shaped distribution (float64, vocab)
     kept: int
-    kept_raw_mass: float       # raw probability mass of the kept tokens
+    kept_raw_mass: float  # raw probability mass of the kept tokens
     entropy_bits: float
     raw_entropy_bits: float
-    top: list[TokenRow]        # the step's top tokens by raw probability
+    top: list[TokenRow]  # the step's top tokens by raw probability
 
 
 @dataclasses.dataclass(frozen=True)
 class StepView:
     """The next-token distribution at one step, raw and per preset."""
 
-    raw_probs: np.ndarray      # unshaped distribution (temperature 1), float64
+    raw_probs: np.ndarray  # unshaped distribution (temperature 1), float64
     raw_entropy_bits: float
-    top_ids: list[int]         # top tokens by raw probability, most probable first
+    top_ids: list[int]  # top tokens by raw probability, most probable first
     top_texts: list[str]
     presets: list[PresetStep]
-    context_tokens: int        # passage tokens + sample tokens before this step
-    drawn_id: Optional[int] = None   # the token the inspected sample drew here, if any
+    context_tokens: int  # passage tokens + sample tokens before this step
+    drawn_id: int | None = None  # the token the inspected sample drew here, if any

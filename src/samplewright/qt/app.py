@@ -1,8 +1,9 @@
 """Start the desktop window: ``python -m samplewright`` with no arguments."""
+
 from __future__ import annotations
 
 import sys
-from typing import Optional, Sequence
+from collections.abc import Sequence
 
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QGuiApplication
@@ -11,7 +12,7 @@ from PySide6.QtWidgets import QApplication, QMessageBox
 from ..core.errors import SamplewrightError
 
 
-def make_app(argv: Optional[Sequence[str]] = None) -> QApplication:
+def make_app(argv: Sequence[str] | None = None) -> QApplication:
     """The QApplication, created once, readable on high-DPI screens."""
     app = QApplication.instance()
     if app is None:
@@ -23,10 +24,11 @@ def make_app(argv: Optional[Sequence[str]] = None) -> QApplication:
     return app
 
 
-def main(argv: Optional[Sequence[str]] = None) -> int:
+def main(argv: Sequence[str] | None = None) -> int:
     """Open the window and run until it is closed; returns the exit status."""
     app = make_app(argv)
     from .main_window import MainWindow
+
     try:
         window = MainWindow()
     except SamplewrightError as error:

@@ -5,15 +5,15 @@ Requests go to the engine thread with a serial; answers whose serial is not
 the newest are dropped. Step views are "latest wins": while one is being
 computed, only the newest click waits for its turn.
 """
+
 from __future__ import annotations
 
 import random
-from typing import Optional
 
 from PySide6.QtGui import QGuiApplication
 
+from ..core.engine.session import SampleRef
 from ..core.results import AuditionRequest
-from ..core.session import SampleRef
 from .audition_view import DRAFT_MARK
 from .workers import StepQuery
 
@@ -22,14 +22,14 @@ class AuditionActions:
     """Mixed into :class:`~samplewright.qt.main_window.MainWindow`."""
 
     def _init_audition_state(self) -> None:
-        self._run_serial: Optional[int] = None        # engine serial of the running audition
-        self._run_session: Optional[int] = None       # the session's serial for it
-        self._last_request: Optional[AuditionRequest] = None
+        self._run_serial: int | None = None  # engine serial of the running audition
+        self._run_session: int | None = None  # the session's serial for it
+        self._last_request: AuditionRequest | None = None
         self._column_ids: list[str] = []
-        self._column_drafts: list[bool] = []          # written with the editor's unsaved draft
-        self._inspected: Optional[tuple[int, int, int]] = None   # column, row, step
-        self._step_serial: Optional[int] = None
-        self._step_waiting: Optional[StepQuery] = None
+        self._column_drafts: list[bool] = []  # written with the editor's unsaved draft
+        self._inspected: tuple[int, int, int] | None = None  # column, row, step
+        self._step_serial: int | None = None
+        self._step_waiting: StepQuery | None = None
         self._update_buttons()
 
     def _connect_audition(self) -> None:
@@ -58,9 +58,13 @@ class AuditionActions:
             self.seed_spin.setValue(random.randrange(2**31))
         records = [self.library.get(i) for i in self.library_list.chosen]
         presets, self._column_drafts, notes = self._audition_presets(records)
-        request = AuditionRequest(self.passage.text(), presets,
-                                  samples=self.samples_spin.value(), max_new_tokens=self.tokens_spin.value(),
-                                  seed=self.seed_spin.value())
+        request = AuditionRequest(
+            self.passage.text(),
+            presets,
+            samples=self.samples_spin.value(),
+            max_new_tokens=self.tokens_spin.value(),
+            seed=self.seed_spin.value(),
+        )
         self._column_ids = [r.id for r in records]
         self._last_request = request
         self._clear_inspection()
@@ -70,14 +74,15 @@ class AuditionActions:
         """Write one preset's samples again with the last run's passage, seed and sizes."""
         if self._last_request is None or self.running() or column >= len(self._column_ids):
             return
-        record = self._record_or_none(self._column_ids[column])   # picks up a saved edit, or the draft
+        record = self._record_or_none(self._column_ids[column])  # picks up a saved edit, or the draft
         if record is not None:
             (preset,), (self._column_drafts[column],), notes = self._audition_presets([record])
         else:
             preset, notes = self.session.presets[column], []
         last = self._last_request
-        request = AuditionRequest(last.passage, [preset], samples=last.samples,
-                                  max_new_tokens=last.max_new_tokens, seed=last.seed)
+        request = AuditionRequest(
+            last.passage, [preset], samples=last.samples, max_new_tokens=last.max_new_tokens, seed=last.seed
+        )
         if self._inspected and self._inspected[0] == column:
             self._clear_inspection()
         self._start(request, [column], notes)
@@ -109,7 +114,8 @@ class AuditionActions:
         if not self._inspected and self.running() and self.session.presets:
             self.statusBar().showMessage(
                 f"Writing new samples for '{self._column_name(column)}', the first column. To choose another "
-                "preset, click a token in its samples first, or use the ↻ button above its column.")
+                "preset, click a token in its samples first, or use the ↻ button above its column."
+            )
 
     def _start(self, request: AuditionRequest, columns, notes: list[str]) -> None:
         if self.running():
@@ -129,7 +135,7 @@ class AuditionActions:
             self.engine.cancel(self._run_serial)
             self.statusBar().showMessage("Stopping…")
 
-    def _why_not_generate(self) -> Optional[str]:
+    def _why_not_generate(self) -> str | None:
         if self.model_info is None:
             return "The model is still loading (see the status bar). Try again when it is ready."
         if not self.passage.text().strip():
@@ -166,8 +172,7 @@ class AuditionActions:
         if result.cancelled:
             self.statusBar().showMessage("Stopped; the samples so far are kept.", 6000)
         else:
-            self.statusBar().showMessage(f"Wrote {result.tokens_generated()} tokens in {result.seconds:.1f} s.",
-                                         6000)
+            self.statusBar().showMessage(f"Wrote {result.tokens_generated()} tokens in {result.seconds:.1f} s.", 6000)
         self.progress.setValue(self.progress.maximum() if not result.cancelled else self.progress.value())
         self._update_buttons()
         if self._inspected:
@@ -197,9 +202,13 @@ class AuditionActions:
         self._inspected = (column, row, step)
         self.grid.mark(column, row, step)
         self.inspector.set_sample(column, self._column_name(column), row, len(sample.tokens), step)
-        query = StepQuery(self.session.passage, list(self.session.presets),
-                          tuple(sample.token_ids[:step]), sample.tokens[step].token_id,
-                          top=self.inspector.plot.top_n)
+        query = StepQuery(
+            self.session.passage,
+            list(self.session.presets),
+            tuple(sample.token_ids[:step]),
+            sample.tokens[step].token_id,
+            top=self.inspector.plot.top_n,
+        )
         self._step_waiting = query
         if self._step_serial is None:
             self._send_waiting_step()
@@ -222,7 +231,7 @@ class AuditionActions:
             self.inspector.plot.show_step(view, names, self._drawn_text())
         self._send_waiting_step()
 
-    def _drawn_text(self) -> Optional[str]:
+    def _drawn_text(self) -> str | None:
         if not self._inspected:
             return None
         sample = self.session.sample(SampleRef(self._inspected[0], self._inspected[1]))
@@ -233,7 +242,7 @@ class AuditionActions:
         self._inspected = None
         self._step_waiting = None
         if self._step_serial is not None:
-            self.engine.cancel(self._step_serial)   # skipped if still queued; a late answer is dropped
+            self.engine.cancel(self._step_serial)  # skipped if still queued; a late answer is dropped
         self._step_serial = None
         self.grid.unmark()
         self.inspector.set_sample(None, None, None)

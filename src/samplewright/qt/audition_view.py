@@ -2,22 +2,33 @@
 
 Sample *i* of every preset is drawn from the same random stream, so rows are
 aligned and read across. The grid follows an
-:class:`~samplewright.core.session.AuditionSession`: tokens are appended as
+:class:`~samplewright.core.engine.session.AuditionSession`: tokens are appended as
 the session reports them. Clicking a token asks the window to inspect that
 step.
 """
+
 from __future__ import annotations
 
 import bisect
 import html
-from typing import Optional
 
 from PySide6.QtCore import QPoint, Qt, Signal
 from PySide6.QtGui import QColor, QGuiApplication, QTextCharFormat, QTextCursor
-from PySide6.QtWidgets import (QFrame, QGridLayout, QHBoxLayout, QLabel, QPlainTextEdit, QScrollArea,
-                               QSizePolicy, QTextEdit, QToolButton, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (
+    QFrame,
+    QGridLayout,
+    QHBoxLayout,
+    QLabel,
+    QPlainTextEdit,
+    QScrollArea,
+    QSizePolicy,
+    QTextEdit,
+    QToolButton,
+    QVBoxLayout,
+    QWidget,
+)
 
-from ..core.session import AuditionSession
+from ..core.engine.session import AuditionSession
 from . import palette
 
 COLUMN_WIDTH = 212
@@ -27,12 +38,11 @@ SAMPLE_LINES = 6
 
 METRIC_HELP = {
     "distinct": "distinct-1/2/3: share of different words, word pairs and triples over all samples "
-                "(Li et al. 2016). Higher = more varied.",
+    "(Li et al. 2016). Higher = more varied.",
     "self_bleu": "self-BLEU: how much each sample resembles the others (Zhu et al. 2018). Lower = more varied.",
-    "seq_rep_4": "repeats: share of repeated 4-token runs within a sample (Welleck et al. 2020). "
-                 "Lower = less looping.",
+    "seq_rep_4": "repeats: share of repeated 4-token runs within a sample (Welleck et al. 2020). Lower = less looping.",
     "mean_surprisal_bits": "surprisal: average bits of surprise of the drawn tokens under the unshaped model. "
-                           "Higher = less expected words.",
+    "Higher = less expected words.",
     "mean_kept": "kept: average number of tokens left to draw from at each step.",
     "mean_length": "length: average tokens per sample.",
 }
@@ -42,18 +52,20 @@ def _fmt(value, digits: int = 2) -> str:
     return "–" if value is None else f"{value:.{digits}f}"
 
 
-def metrics_text(metrics: Optional[dict]) -> str:
+def metrics_text(metrics: dict | None) -> str:
     """Four short lines of a preset's metrics; '–' where a value is undefined."""
     if not metrics:
         return "metrics appear when the run ends"
     reasons = metrics.get("stop_reasons") or {}
     ended = ", ".join(f"{k} {v}" for k, v in sorted(reasons.items())) or "–"
     distinct = " / ".join(_fmt(metrics.get(f"distinct_{n}")) for n in (1, 2, 3))
-    return (f"distinct-1/2/3 {distinct}\n"
-            f"self-BLEU {_fmt(metrics.get('self_bleu'))} · repeats {_fmt(metrics.get('seq_rep_4'))}\n"
-            f"surprisal {_fmt(metrics.get('mean_surprisal_bits'), 1)} bits · kept "
-            f"{_fmt(metrics.get('mean_kept'), 1)}\n"
-            f"length {_fmt(metrics.get('mean_length'), 1)} · ended: {ended}")
+    return (
+        f"distinct-1/2/3 {distinct}\n"
+        f"self-BLEU {_fmt(metrics.get('self_bleu'))} · repeats {_fmt(metrics.get('seq_rep_4'))}\n"
+        f"surprisal {_fmt(metrics.get('mean_surprisal_bits'), 1)} bits · kept "
+        f"{_fmt(metrics.get('mean_kept'), 1)}\n"
+        f"length {_fmt(metrics.get('mean_length'), 1)} · ended: {ended}"
+    )
 
 
 class SampleView(QPlainTextEdit):
@@ -65,11 +77,11 @@ class SampleView(QPlainTextEdit):
 
     token_clicked = Signal(int)
 
-    def __init__(self, column: int, row: int, parent: Optional[QWidget] = None):
+    def __init__(self, column: int, row: int, parent: QWidget | None = None):
         super().__init__(parent)
         self.column, self.row = column, row
         self.starts: list[int] = []
-        self.marked: Optional[int] = None
+        self.marked: int | None = None
         self.setReadOnly(True)
         self.setAccessibleName(f"Preset {column + 1}, sample {row + 1}")
         self.setToolTip("Click a token to see the distribution it was drawn from")
@@ -92,7 +104,7 @@ class SampleView(QPlainTextEdit):
             self.append_token(text)
         self.mark_step(self.marked)
 
-    def step_at(self, point: QPoint) -> Optional[int]:
+    def step_at(self, point: QPoint) -> int | None:
         """The step of the token under ``point`` (viewport coordinates), or None."""
         if not self.starts:
             return None
@@ -120,7 +132,7 @@ class SampleView(QPlainTextEdit):
             if step is not None:
                 self.token_clicked.emit(step)
 
-    def mark_step(self, step: Optional[int]) -> None:
+    def mark_step(self, step: int | None) -> None:
         """Highlight the token of ``step`` (None: no highlight)."""
         self.marked = step
         selections = []
@@ -152,7 +164,7 @@ class SampleView(QPlainTextEdit):
 class ColumnHeader(QFrame):
     """A preset's name, colour, number, regenerate button and metrics."""
 
-    def __init__(self, column: int, name: str, parent: Optional[QWidget] = None):
+    def __init__(self, column: int, name: str, parent: QWidget | None = None):
         super().__init__(parent)
         colour = palette.preset_colour(column)
         self.column, self.name, self.colour = column, name, colour
@@ -182,10 +194,14 @@ class ColumnHeader(QFrame):
         """Mark the column as written with the editor's unsaved edits of the preset, or not."""
         self.draft = on
         mark = f" <i>{DRAFT_MARK}</i>" if on else ""
-        self.title.setText(f"<span style='color:{self.colour}'>■</span> "
-                           f"<b>{self.column + 1} · {html.escape(self.name)}</b>{mark}")
-        self.title.setToolTip(f"{self.name}: written with your unsaved edits of this preset; save them in the "
-                              "editor to keep these values" if on else self.name)
+        self.title.setText(
+            f"<span style='color:{self.colour}'>■</span> <b>{self.column + 1} · {html.escape(self.name)}</b>{mark}"
+        )
+        self.title.setToolTip(
+            f"{self.name}: written with your unsaved edits of this preset; save them in the editor to keep these values"
+            if on
+            else self.name
+        )
 
 
 class QtAuditionGrid(QScrollArea):
@@ -199,13 +215,13 @@ class QtAuditionGrid(QScrollArea):
     token_clicked = Signal(int, int, int)
     regenerate_requested = Signal(int)
 
-    def __init__(self, session: AuditionSession, parent: Optional[QWidget] = None):
+    def __init__(self, session: AuditionSession, parent: QWidget | None = None):
         super().__init__(parent)
         self.session = session
         self.headers: list[ColumnHeader] = []
         self.views: list[list[SampleView]] = []
         self.footers: list[list[QLabel]] = []
-        self.current: Optional[tuple[int, int]] = None
+        self.current: tuple[int, int] | None = None
         self.setWidgetResizable(True)
         self.setAccessibleName("Audition samples")
         self._host = QWidget()
@@ -213,9 +229,11 @@ class QtAuditionGrid(QScrollArea):
         self._grid = QGridLayout()
         self._grid.setAlignment(Qt.AlignTop)
         self.setWidget(self._host)
-        self._empty = QLabel("Tick presets in the list on the left, then press <b>Generate all</b> "
-                             "(Ctrl+Enter). Each sample row uses the same random draws for every preset, "
-                             "so differences across a row come from the presets alone.")
+        self._empty = QLabel(
+            "Tick presets in the list on the left, then press <b>Generate all</b> "
+            "(Ctrl+Enter). Each sample row uses the same random draws for every preset, "
+            "so differences across a row come from the presets alone."
+        )
         self._empty.setWordWrap(True)
         self._empty.setMargin(12)
         outer.addWidget(self._empty)
@@ -235,8 +253,11 @@ class QtAuditionGrid(QScrollArea):
 
     def _on_started(self, serial: int) -> None:
         rows = self.session.sample_count()
-        if len(self.headers) != len(self.session.presets) or (self.views and len(self.views[0]) != rows) \
-                or any(h.name != p.name for h, p in zip(self.headers, self.session.presets)):
+        if (
+            len(self.headers) != len(self.session.presets)
+            or (self.views and len(self.views[0]) != rows)
+            or any(h.name != p.name for h, p in zip(self.headers, self.session.presets, strict=False))
+        ):
             self._rebuild(rows)
         for column in self.session.columns:
             self.headers[column].metrics.setText(metrics_text(None))
@@ -308,7 +329,7 @@ class QtAuditionGrid(QScrollArea):
         if 0 <= column < len(self.headers):
             self.headers[column].set_draft(on)
 
-    def mark(self, column: int, row: int, step: Optional[int]) -> None:
+    def mark(self, column: int, row: int, step: int | None) -> None:
         """Highlight one token; clears the highlight elsewhere."""
         if self.current != (column, row):
             self.unmark()
@@ -325,11 +346,11 @@ class QtAuditionGrid(QScrollArea):
             old.mark_step(None)
         self.current = None
 
-    def _view(self, column: int, row: int) -> Optional[SampleView]:
+    def _view(self, column: int, row: int) -> SampleView | None:
         if 0 <= column < len(self.views) and 0 <= row < len(self.views[column]):
             return self.views[column][row]
         return None
 
-    def view(self, column: int, row: int) -> Optional[SampleView]:
+    def view(self, column: int, row: int) -> SampleView | None:
         """The text view of one sample, or None."""
         return self._view(column, row)

@@ -1,10 +1,18 @@
 """Small dialogs: the import preview and the choice after a save conflict."""
+
 from __future__ import annotations
 
-from typing import Optional
-
-from PySide6.QtWidgets import (QComboBox, QDialog, QDialogButtonBox, QLabel, QMessageBox, QTableWidget,
-                               QTableWidgetItem, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (
+    QComboBox,
+    QDialog,
+    QDialogButtonBox,
+    QLabel,
+    QMessageBox,
+    QTableWidget,
+    QTableWidgetItem,
+    QVBoxLayout,
+    QWidget,
+)
 
 #: What each import choice means, in the words the dialog shows.
 IMPORT_CHOICE_LABELS = {
@@ -19,8 +27,12 @@ CONFLICT_CHOICE_LABELS = {
     "take_theirs": "Use the library's version",
     "overwrite": "Replace it with my edits",
 }
-ACTION_LABELS = {"add": "new — will be added", "update": "same parameters, new notes — will be updated",
-                 "conflict": "same name, other parameters — choose", "unchanged": "already in the library"}
+ACTION_LABELS = {
+    "add": "new — will be added",
+    "update": "same parameters, new notes — will be updated",
+    "conflict": "same name, other parameters — choose",
+    "unchanged": "already in the library",
+}
 
 
 class ImportPreviewDialog(QDialog):
@@ -31,7 +43,7 @@ class ImportPreviewDialog(QDialog):
         source: the file name shown in the title.
     """
 
-    def __init__(self, plan, source: str, parent: Optional[QWidget] = None):
+    def __init__(self, plan, source: str, parent: QWidget | None = None):
         super().__init__(parent)
         self.setWindowTitle(f"Import {source}")
         self.plan = plan
@@ -68,11 +80,14 @@ class ImportPreviewDialog(QDialog):
         return {name: combo.currentData() for name, combo in self.combos.items()}
 
 
-def ask_conflict_choice(parent: QWidget, message: str) -> Optional[str]:
+def ask_conflict_choice(parent: QWidget, message: str) -> str | None:
     """Ask how to settle a save conflict; returns a core choice name or None for "not now"."""
     box = QMessageBox(QMessageBox.Warning, "Someone else changed this preset", message, parent=parent)
-    roles = {"keep_both": QMessageBox.AcceptRole, "take_theirs": QMessageBox.DestructiveRole,
-             "overwrite": QMessageBox.DestructiveRole}
+    roles = {
+        "keep_both": QMessageBox.AcceptRole,
+        "take_theirs": QMessageBox.DestructiveRole,
+        "overwrite": QMessageBox.DestructiveRole,
+    }
     buttons = {box.addButton(CONFLICT_CHOICE_LABELS[key], role): key for key, role in roles.items()}
     box.addButton("Not now", QMessageBox.RejectRole)
     box.exec()

@@ -4,19 +4,36 @@
 The differences themselves come from the core (``PresetLibrary.diff``); this
 module only lays them out.
 """
+
 from __future__ import annotations
 
-from typing import Any, Optional
+from typing import Any
 
 from PySide6.QtCore import Qt
+from PySide6.QtWidgets import (
+    QComboBox,
+    QDialog,
+    QDialogButtonBox,
+    QFormLayout,
+    QHeaderView,
+    QLabel,
+    QTableWidget,
+    QTableWidgetItem,
+    QVBoxLayout,
+    QWidget,
+)
 
 from ..core.errors import LibraryError
-from PySide6.QtWidgets import (QComboBox, QDialog, QDialogButtonBox, QFormLayout, QHeaderView, QLabel,
-                               QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
 
 #: Plain labels for the fields that are not sampling parameters (those keep their trade names).
-FIELD_LABELS = {"name": "Name", "description": "Description", "tags": "Tags", "notes": "Notes",
-                "stop": "stop", "order": "Stage order"}
+FIELD_LABELS = {
+    "name": "Name",
+    "description": "Description",
+    "tags": "Tags",
+    "notes": "Notes",
+    "stop": "stop",
+    "order": "Stage order",
+}
 EMPTY = "—"
 
 
@@ -43,7 +60,7 @@ class DifferenceTable(QTableWidget):
         name: the accessible name of the table.
     """
 
-    def __init__(self, name: str, parent: Optional[QWidget] = None):
+    def __init__(self, name: str, parent: QWidget | None = None):
         super().__init__(0, 3, parent)
         self.setAccessibleName(name)
         self.setEditTriggers(QTableWidget.NoEditTriggers)
@@ -69,8 +86,7 @@ class DifferenceTable(QTableWidget):
             self.setSpan(0, 0, 1, 3)
             return
         for row, (field, (a, b)) in enumerate(differences.items()):
-            for column, text in enumerate((FIELD_LABELS.get(field, field), value_text(a, field),
-                                              value_text(b, field))):
+            for column, text in enumerate((FIELD_LABELS.get(field, field), value_text(a, field), value_text(b, field))):
                 item = QTableWidgetItem(text)
                 item.setToolTip(text)
                 self.setItem(row, column, item)
@@ -92,7 +108,7 @@ class CompareDialog(QDialog):
         second_id: the preset on the right at first (default: the next one in the list).
     """
 
-    def __init__(self, library, first_id: str, second_id: Optional[str] = None, parent: Optional[QWidget] = None):
+    def __init__(self, library, first_id: str, second_id: str | None = None, parent: QWidget | None = None):
         super().__init__(parent)
         self.library = library
         self.setWindowTitle("Compare presets")
@@ -139,18 +155,22 @@ class CompareDialog(QDialog):
             return
         try:
             left, right = self.library.get(a), self.library.get(b)
-        except LibraryError:       # deleted since the dialog opened, e.g. by a colleague
+        except LibraryError:  # deleted since the dialog opened, e.g. by a colleague
             known = {r.id for r in self.library.records()}
             gone = self.first.currentText() if a not in known else self.second.currentText()
-            self.summary.setText(f"'{gone}' is no longer in the library (it was deleted). "
-                                 "Choose another preset to compare.")
+            self.summary.setText(
+                f"'{gone}' is no longer in the library (it was deleted). Choose another preset to compare."
+            )
             self.table.show_differences({}, "", "", "")
             return
         differences = self.library.diff(left, right)
-        differences.pop("name", None)       # the column titles already name them
+        differences.pop("name", None)  # the column titles already name them
         count = len(differences)
-        self.summary.setText("The same preset on both sides." if a == b else
-                             f"{count} field{'s' if count != 1 else ''} differ." if count else
-                             "These two presets have the same settings.")
+        self.summary.setText(
+            "The same preset on both sides."
+            if a == b
+            else f"{count} field{'s' if count != 1 else ''} differ."
+            if count
+            else "These two presets have the same settings."
+        )
         self.table.show_differences(differences, left.name, right.name, "No differences.")
-

@@ -10,10 +10,11 @@ colour. The token the inspected sample drew is shaded and arrowed.
 Every plot item is built once; :meth:`DistributionPlot.show_step` only stores
 the newest step and a ~30 Hz timer redraws with ``setOpts``/``setData``.
 """
+
 from __future__ import annotations
 
 import html
-from typing import Optional, Sequence
+from collections.abc import Sequence
 
 import numpy as np
 import pyqtgraph as pg
@@ -63,13 +64,13 @@ class DistributionPlot(QWidget):
         parent: the Qt parent.
     """
 
-    def __init__(self, top_n: int = 20, parent: Optional[QWidget] = None):
+    def __init__(self, top_n: int = 20, parent: QWidget | None = None):
         super().__init__(parent)
         self.top_n = top_n
-        self._pending: Optional[tuple[StepView, list[str]]] = None
-        self._drawn_text: Optional[str] = None
-        self.shown: Optional[StepView] = None
-        self.drawn_row: Optional[int] = None
+        self._pending: tuple[StepView, list[str]] | None = None
+        self._drawn_text: str | None = None
+        self.shown: StepView | None = None
+        self.drawn_row: int | None = None
         self.redraws = 0
         self._symbols = {stage: _letter_path(letter) for stage, letter in palette.STAGE_LETTERS.items()}
         self._build_plot()
@@ -96,7 +97,8 @@ class DistributionPlot(QWidget):
         self.plot_widget.setAccessibleName("Next-token distribution plot")
         self.plot_widget.setToolTip(
             "Top tokens by raw probability. Grey: the model as it is. Coloured: after each preset. "
-            "Dashed outline with a letter: the token was cut, the letter names the stage.")
+            "Dashed outline with a letter: the token was cut, the letter names the stage."
+        )
         item = self.plot_widget.getPlotItem()
         item.invertY(True)
         item.setMenuEnabled(False)
@@ -113,22 +115,31 @@ class DistributionPlot(QWidget):
         item.getAxis("left").setWidth(110)
         rows = np.arange(self.top_n, dtype=float)
         zeros = np.zeros(self.top_n)
-        self._highlight = pg.LinearRegionItem(values=(0, 1), orientation="horizontal", movable=False,
-                                              brush=pg.mkBrush(palette.DRAWN_HIGHLIGHT + "90"),
-                                              pen=pg.mkPen(None))
+        self._highlight = pg.LinearRegionItem(
+            values=(0, 1),
+            orientation="horizontal",
+            movable=False,
+            brush=pg.mkBrush(palette.DRAWN_HIGHLIGHT + "90"),
+            pen=pg.mkPen(None),
+        )
         self._highlight.setZValue(-10)
         item.addItem(self._highlight)
         colours = [palette.RAW_COLOUR] + [palette.preset_colour(i) for i in range(MAX_PRESETS)]
         self._bars, self._ghosts, self._cuts = [], [], []
         for series, colour in enumerate(colours):
-            bar = pg.BarGraphItem(x0=0, y=rows, height=0.1, width=zeros, brush=pg.mkBrush(colour),
-                                  pen=pg.mkPen(None))
+            bar = pg.BarGraphItem(x0=0, y=rows, height=0.1, width=zeros, brush=pg.mkBrush(colour), pen=pg.mkPen(None))
             item.addItem(bar)
             self._bars.append(bar)
             if series == 0:
                 continue
-            ghost = pg.BarGraphItem(x0=0, y=rows, height=0.1, width=zeros, brush=pg.mkBrush(None),
-                                    pen=pg.mkPen(colour, width=1.2, style=Qt.DashLine))
+            ghost = pg.BarGraphItem(
+                x0=0,
+                y=rows,
+                height=0.1,
+                width=zeros,
+                brush=pg.mkBrush(None),
+                pen=pg.mkPen(colour, width=1.2, style=Qt.DashLine),
+            )
             cut = pg.ScatterPlotItem(size=13, pen=pg.mkPen(colour), brush=pg.mkBrush(colour), pxMode=True)
             item.addItem(ghost)
             item.addItem(cut)
@@ -141,8 +152,7 @@ class DistributionPlot(QWidget):
         item.addItem(self._hint)
 
     # -- public -------------------------------------------------------------------
-    def show_step(self, view: Optional[StepView], preset_names: Sequence[str],
-                  drawn_text: Optional[str] = None) -> None:
+    def show_step(self, view: StepView | None, preset_names: Sequence[str], drawn_text: str | None = None) -> None:
         """Ask for ``view`` to be drawn; only the newest request is drawn (~30 per second at most).
 
         Args:
@@ -184,8 +194,10 @@ class DistributionPlot(QWidget):
         self.plot_widget.getPlotItem().getAxis("left").setTicks([[]])
         self.plot_widget.setXRange(0, 1, padding=0.02)
         self.plot_widget.setYRange(-0.5, self.top_n - 0.5, padding=0)
-        self._summary.setText("<i>Generate, then click a token in a sample to see the distribution "
-                              "it was drawn from.</i><br>" + html.escape(palette.stage_legend()))
+        self._summary.setText(
+            "<i>Generate, then click a token in a sample to see the distribution "
+            "it was drawn from.</i><br>" + html.escape(palette.stage_legend())
+        )
 
     # -- drawing ------------------------------------------------------------------
     def _draw(self, view: StepView, names: list[str]) -> None:
@@ -248,19 +260,22 @@ class DistributionPlot(QWidget):
         self._arrow.setData(x=[max(peak, 1e-6) * 1.03], y=[float(r)])
 
     def _summary_html(self, view: StepView, names: list[str]) -> str:
-        parts = [f"<b>Context:</b> {view.context_tokens} tokens · raw entropy "
-                 f"{_bits(view.raw_entropy_bits)} bits"]
+        parts = [f"<b>Context:</b> {view.context_tokens} tokens · raw entropy {_bits(view.raw_entropy_bits)} bits"]
         if view.drawn_id is not None:
             parts.append(self._drawn_html(view))
-        rows = ["<tr><th></th><th align='left'>preset</th><th>kept</th><th>entropy before → after</th>"
-                "<th>raw mass kept</th></tr>"]
+        rows = [
+            "<tr><th></th><th align='left'>preset</th><th>kept</th><th>entropy before → after</th>"
+            "<th>raw mass kept</th></tr>"
+        ]
         for index, step in enumerate(view.presets[:MAX_PRESETS]):
             name = names[index] if index < len(names) else step.name
             colour = palette.preset_colour(index)
             rows.append(
                 f"<tr><td style='color:{colour}'>■ {index + 1}</td><td>{html.escape(name)}</td>"
-                f"<td align='right'>{step.kept}</td><td align='right'>{_bits(step.raw_entropy_bits)} → {_bits(step.entropy_bits)} bits</td>"
-                f"<td align='right'>{step.kept_raw_mass:.2f}</td></tr>")
+                f"<td align='right'>{step.kept}</td>"
+                f"<td align='right'>{_bits(step.raw_entropy_bits)} → {_bits(step.entropy_bits)} bits</td>"
+                f"<td align='right'>{step.kept_raw_mass:.2f}</td></tr>"
+            )
         parts.append("<table cellspacing='6'>" + "".join(rows) + "</table>")
         parts.append("<small>Cut by: " + html.escape(palette.stage_legend()) + "</small>")
         return "<br>".join(parts[:-2]) + "".join(parts[-2:])
@@ -273,6 +288,8 @@ class DistributionPlot(QWidget):
         else:
             text = token_label(self._drawn_text) if self._drawn_text is not None else f"id {view.drawn_id}"
         where = "" if index is not None else " (outside the rows shown)"
-        return (f"<b>Drawn here:</b> <span style='background:{palette.DRAWN_HIGHLIGHT}'>"
-                f"{html.escape(text)}</span> — raw rank {rank}, raw p "
-                f"{view.raw_probs[view.drawn_id]:.3f}{where}")
+        return (
+            f"<b>Drawn here:</b> <span style='background:{palette.DRAWN_HIGHLIGHT}'>"
+            f"{html.escape(text)}</span> — raw rank {rank}, raw p "
+            f"{view.raw_probs[view.drawn_id]:.3f}{where}"
+        )

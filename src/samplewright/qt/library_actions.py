@@ -2,14 +2,13 @@
 while colleagues edit it, a preset's history, comparing two presets, the
 trash, and the user's own favourites. Bringing back a revision and restoring
 a deleted preset go through the undo stack."""
-from __future__ import annotations
 
-from typing import Optional
+from __future__ import annotations
 
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QDialog
 
-from ..core.records import PresetRecord
+from ..core.library.records import PresetRecord
 from .difference_view import CompareDialog
 from .library_commands import BringBackCommand, RestoreCommand
 from .library_dialogs import HistoryDialog, TrashDialog
@@ -24,7 +23,8 @@ class LibraryActions:
         self.library_watch.checked.connect(self._on_library_checked)
         self.library_watch.failed.connect(self._on_library_unreadable)
         self.library_watch.recovered.connect(
-            lambda: self.statusBar().showMessage("The library folder can be read again.", 8000))
+            lambda: self.statusBar().showMessage("The library folder can be read again.", 8000)
+        )
 
     def _on_library_checked(self, report, names_before: dict) -> None:
         if report:
@@ -62,14 +62,14 @@ class LibraryActions:
         dialog.open()
         return dialog
 
-    def show_history(self) -> Optional[HistoryDialog]:
+    def show_history(self) -> HistoryDialog | None:
         """Open the highlighted preset's history (Ctrl+H)."""
         record = self._current_record()
         if record is None:
             return None
         return self.open_dialog(HistoryDialog(self.library, record.id, self.bring_back_revision, self))
 
-    def compare_presets(self) -> Optional[CompareDialog]:
+    def compare_presets(self) -> CompareDialog | None:
         """Open the side-by-side comparison of the highlighted preset with another one."""
         record = self._current_record()
         if record is None:
@@ -90,15 +90,18 @@ class LibraryActions:
         command = BringBackCommand(self.library, earlier, self._report_library_error)
         self.undo_stack.push(command)
         if command.saved is not None:
-            self.statusBar().showMessage(f"Brought back revision {earlier.revision} of '{earlier.name}' as "
-                                         f"revision {command.saved.revision}. Undo with Ctrl+Z.", 8000)
+            self.statusBar().showMessage(
+                f"Brought back revision {earlier.revision} of '{earlier.name}' as "
+                f"revision {command.saved.revision}. Undo with Ctrl+Z.",
+                8000,
+            )
 
     def restore_deleted(self, trashed: PresetRecord) -> None:
         """Bring a deleted preset back from the trash and highlight it (Ctrl+Z deletes it again)."""
         command = RestoreCommand(self.library, trashed, self._report_library_error)
         self.undo_stack.push(command)
         if command.restored is not None:
-            if not self.editor.is_dirty():      # a highlight change would first ask about the edits
+            if not self.editor.is_dirty():  # a highlight change would first ask about the edits
                 self.library_list.select(command.restored.id)
             self.statusBar().showMessage(f"Restored '{command.restored.name}'. Undo with Ctrl+Z.", 8000)
 

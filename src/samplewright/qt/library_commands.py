@@ -1,21 +1,22 @@
 """Undoable library changes for the window's ``QUndoStack``.
 
-Every command acts through the core :class:`~samplewright.core.library.PresetLibrary`,
+Every command acts through the core :class:`~samplewright.core.library.library.PresetLibrary`,
 so each step is an ordinary save, delete or restore: undoing a change writes a
 new revision (or restores from the trash) and nothing is ever erased. A
 command that fails reports the library's message and marks itself obsolete
 instead of raising inside Qt.
 """
+
 from __future__ import annotations
 
-from typing import Callable, Optional
+from collections.abc import Callable
 
 from PySide6.QtGui import QUndoCommand
 
 from ..core.errors import LibraryError, SamplewrightError
-from ..core.library import SaveConflict
+from ..core.library.library import SaveConflict
+from ..core.library.records import PresetRecord
 from ..core.presets import Preset
-from ..core.records import PresetRecord
 
 
 class _LibraryCommand(QUndoCommand):
@@ -40,13 +41,13 @@ class AddPresetCommand(_LibraryCommand):
     def __init__(self, library, preset: Preset, report):
         super().__init__(library, f"add '{preset.name}'", report)
         self.preset = preset
-        self.record_id: Optional[str] = None
+        self.record_id: str | None = None
 
     def redo(self):
         def act():
-            record = (self.library.add(self.preset) if self.record_id is None
-                      else self.library.restore(self.record_id))
+            record = self.library.add(self.preset) if self.record_id is None else self.library.restore(self.record_id)
             self.record_id = record.id
+
         self._safely(act)
 
     def undo(self):
@@ -66,6 +67,7 @@ class DeletePresetCommand(_LibraryCommand):
     def undo(self):
         def act():
             self.record_id = self.library.restore(self.record_id).id
+
         self._safely(act)
 
 
@@ -82,6 +84,7 @@ class RenamePresetCommand(_LibraryCommand):
         def act():
             record = self.library.get(self.record_id)
             self.library.save(record.edited(record.preset.replace(name=name)))
+
         self._safely(act)
 
     def redo(self):
@@ -98,8 +101,8 @@ class BringBackCommand(_LibraryCommand):
         super().__init__(library, f"bring back revision {earlier.revision} of '{earlier.name}'", report)
         self.record_id = earlier.id
         self.earlier = earlier.preset
-        self.replaced: Optional[Preset] = None
-        self.saved: Optional[PresetRecord] = None
+        self.replaced: Preset | None = None
+        self.saved: PresetRecord | None = None
 
     def _save(self, preset: Preset) -> None:
         current = self.library.get(self.record_id)
@@ -110,9 +113,11 @@ class BringBackCommand(_LibraryCommand):
         except SaveConflict as conflict:
             # Someone saved in between: take in their version and let the user look again.
             self.library.resolve_conflict(conflict, "take_theirs")
-            raise LibraryError(f"'{current.name}' was changed by someone else meanwhile, so nothing was "
-                               "written. The history now shows their revision too; look again and bring "
-                               "back the revision you want.") from None
+            raise LibraryError(
+                f"'{current.name}' was changed by someone else meanwhile, so nothing was "
+                "written. The history now shows their revision too; look again and bring "
+                "back the revision you want."
+            ) from None
 
     def redo(self):
         self._safely(lambda: self._save(self.earlier))
@@ -127,12 +132,13 @@ class RestoreCommand(_LibraryCommand):
     def __init__(self, library, trashed: PresetRecord, report):
         super().__init__(library, f"restore '{trashed.name}'", report)
         self.record_id = trashed.id
-        self.restored: Optional[PresetRecord] = None
+        self.restored: PresetRecord | None = None
 
     def redo(self):
         def act():
             self.restored = self.library.restore(self.record_id)
             self.record_id = self.restored.id
+
         self._safely(act)
 
     def undo(self):

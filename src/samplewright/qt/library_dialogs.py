@@ -8,15 +8,26 @@ window's job (they go through its undo stack), so each dialog only calls the
 function it was given. Both follow the library while open, so a colleague's
 change shows up at once.
 """
+
 from __future__ import annotations
 
-from typing import Callable, Optional
+from collections.abc import Callable
 
 from PySide6.QtCore import QDateTime, Qt
-from PySide6.QtWidgets import (QDialog, QDialogButtonBox, QHBoxLayout, QHeaderView, QLabel, QPushButton,
-                               QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (
+    QDialog,
+    QDialogButtonBox,
+    QHBoxLayout,
+    QHeaderView,
+    QLabel,
+    QPushButton,
+    QTableWidget,
+    QTableWidgetItem,
+    QVBoxLayout,
+    QWidget,
+)
 
-from ..core.records import PresetRecord
+from ..core.library.records import PresetRecord
 from .difference_view import DifferenceTable
 
 
@@ -37,7 +48,7 @@ class RecordTable(QTableWidget):
         tip: the tooltip.
     """
 
-    def __init__(self, headers: list[str], name: str, tip: str, parent: Optional[QWidget] = None):
+    def __init__(self, headers: list[str], name: str, tip: str, parent: QWidget | None = None):
         super().__init__(0, len(headers), parent)
         self.records: list[PresetRecord] = []
         self.setHorizontalHeaderLabels(headers)
@@ -61,7 +72,7 @@ class RecordTable(QTableWidget):
         self.resizeRowsToContents()
         self.blockSignals(False)
 
-    def chosen(self) -> Optional[PresetRecord]:
+    def chosen(self) -> PresetRecord | None:
         """The record in the chosen row, if any."""
         rows = self.selectionModel().selectedRows()
         return self.records[rows[0].row()] if rows and rows[0].row() < len(self.records) else None
@@ -88,7 +99,7 @@ def captioned(caption: str, widget: QWidget) -> QVBoxLayout:
 class _FollowingDialog(QDialog):
     """A dialog that reloads when the library reports a change (subclasses define ``reload``)."""
 
-    def __init__(self, library, parent: Optional[QWidget] = None):
+    def __init__(self, library, parent: QWidget | None = None):
         super().__init__(parent)
         self.library = library
         for emitter in (library.added, library.changed, library.removed):
@@ -125,21 +136,25 @@ class HistoryDialog(_FollowingDialog):
     colleague) the list and the differences are read again.
     """
 
-    def __init__(self, library, record_id: str, bring_back: Callable[[PresetRecord], None],
-                 parent: Optional[QWidget] = None):
+    def __init__(
+        self, library, record_id: str, bring_back: Callable[[PresetRecord], None], parent: QWidget | None = None
+    ):
         super().__init__(library, parent)
         self.record_id = record_id
         self.bring_back = bring_back
         self.heading = QLabel()
         self.heading.setWordWrap(True)
         self.heading.setAccessibleName("Current revision")
-        self.revisions = RecordTable(["Revision", "Saved", "By"], "Earlier revisions",
-                                     "Earlier revisions of this preset, newest first")
+        self.revisions = RecordTable(
+            ["Revision", "Saved", "By"], "Earlier revisions", "Earlier revisions of this preset, newest first"
+        )
         self.differences = DifferenceTable("Differences from the current revision")
         self.differences.setToolTip("The fields in which the chosen revision differs from the current one")
         self.bring_back_button = QPushButton("&Bring back this revision")
-        self.bring_back_button.setToolTip("Save the chosen revision's settings as the newest revision "
-                                          "(the current one stays in the history; Ctrl+Z undoes it)")
+        self.bring_back_button.setToolTip(
+            "Save the chosen revision's settings as the newest revision "
+            "(the current one stays in the history; Ctrl+Z undoes it)"
+        )
         self.bring_back_button.setAccessibleName("Bring back this revision")
         buttons = QDialogButtonBox(QDialogButtonBox.Close)
         buttons.addButton(self.bring_back_button, QDialogButtonBox.ActionRole)
@@ -156,7 +171,7 @@ class HistoryDialog(_FollowingDialog):
         self.resize(860, 420)
         self.reload()
 
-    def current(self) -> Optional[PresetRecord]:
+    def current(self) -> PresetRecord | None:
         """The preset's current revision, or None when it has been deleted."""
         return next((r for r in self.library.records() if r.id == self.record_id), None)
 
@@ -166,14 +181,19 @@ class HistoryDialog(_FollowingDialog):
         current = self.current()
         self.setWindowTitle(f"History of '{current.name}'" if current else "Preset history")
         if current is None:
-            self.heading.setText("This preset is no longer in the library. Restore it from the trash "
-                                 "to see its history.")
+            self.heading.setText(
+                "This preset is no longer in the library. Restore it from the trash to see its history."
+            )
         else:
-            self.heading.setText(f"<b>{current.name}</b>: now at revision {current.revision}, saved "
-                                 f"{when_text(current.modified_at)} by {current.modified_by or 'someone'}. "
-                                 "Choose an earlier revision to see what it had.")
-        self.revisions.set_records(self.library.history(self.record_id) if current else [], lambda r: (
-            str(r.revision), when_text(r.modified_at), r.modified_by or "—"))
+            self.heading.setText(
+                f"<b>{current.name}</b>: now at revision {current.revision}, saved "
+                f"{when_text(current.modified_at)} by {current.modified_by or 'someone'}. "
+                "Choose an earlier revision to see what it had."
+            )
+        self.revisions.set_records(
+            self.library.history(self.record_id) if current else [],
+            lambda r: (str(r.revision), when_text(r.modified_at), r.modified_by or "—"),
+        )
         if not (kept and self.select_revision(kept.revision)):
             self.revisions.selectRow(0)
         self._show_chosen()
@@ -189,9 +209,12 @@ class HistoryDialog(_FollowingDialog):
             note = "No earlier revisions are kept yet." if current else ""
             self.differences.show_differences({}, "Earlier", "Current", note)
             return
-        self.differences.show_differences(self.library.diff(chosen, current), f"Revision {chosen.revision}",
-                                          f"Current (revision {current.revision})",
-                                          "Same settings as the current revision.")
+        self.differences.show_differences(
+            self.library.diff(chosen, current),
+            f"Revision {chosen.revision}",
+            f"Current (revision {current.revision})",
+            "Same settings as the current revision.",
+        )
 
     def _on_bring_back(self) -> None:
         chosen = self.revisions.chosen()
@@ -212,19 +235,23 @@ class TrashDialog(_FollowingDialog):
         restore: called with the chosen deleted :class:`PresetRecord`; it brings it back.
     """
 
-    def __init__(self, library, restore: Callable[[PresetRecord], None], parent: Optional[QWidget] = None):
+    def __init__(self, library, restore: Callable[[PresetRecord], None], parent: QWidget | None = None):
         super().__init__(library, parent)
         self.setWindowTitle("Deleted presets")
         self.restore = restore
         self.note = QLabel()
         self.note.setWordWrap(True)
         self.note.setAccessibleName("Trash summary")
-        self.table = RecordTable(["Preset", "Last saved", "By"], "Deleted presets",
-                                 "Presets deleted from this library; they can be brought back")
+        self.table = RecordTable(
+            ["Preset", "Last saved", "By"],
+            "Deleted presets",
+            "Presets deleted from this library; they can be brought back",
+        )
         self.restore_button = QPushButton("&Restore")
         self.restore_button.setAccessibleName("Restore the chosen preset")
-        self.restore_button.setToolTip("Put the chosen preset back into the library (a taken name gets "
-                                       "\"(restored)\" added)")
+        self.restore_button.setToolTip(
+            'Put the chosen preset back into the library (a taken name gets "(restored)" added)'
+        )
         buttons = QDialogButtonBox(QDialogButtonBox.Close)
         buttons.addButton(self.restore_button, QDialogButtonBox.ActionRole)
         buttons.rejected.connect(self.reject)
@@ -241,8 +268,9 @@ class TrashDialog(_FollowingDialog):
     def reload(self) -> None:
         """Read the trash again."""
         deleted = self.library.trash()
-        self.note.setText(f"{len(deleted)} deleted preset(s). Choose one and press Restore."
-                          if deleted else "The trash is empty.")
+        self.note.setText(
+            f"{len(deleted)} deleted preset(s). Choose one and press Restore." if deleted else "The trash is empty."
+        )
         self.table.set_records(deleted, lambda r: (r.name, when_text(r.modified_at), r.modified_by or "—"))
         self.table.selectRow(0)
         self._update_button()

@@ -3,7 +3,7 @@
 The user can point the window at another folder (a shared drive or a synced
 folder), go back to a recently used one, or return to their own library.
 Switching first settles unsaved edits, then opens the folder with the core
-:class:`~samplewright.core.library.PresetLibrary` and re-points the file watch,
+:class:`~samplewright.core.library.library.PresetLibrary` and re-points the file watch,
 the preset list and the editor at it. The choice is kept in the user's own
 state file (``UserState.last_library``; the recent folders in its view
 settings) and reopened at the next start. A remembered folder that cannot be
@@ -11,16 +11,16 @@ opened at start (an unplugged drive, no permission) falls back to the user's
 own library and says which folder failed and why; the choice itself stays
 remembered, so the folder opens again once it is back.
 """
+
 from __future__ import annotations
 
 import os
 from pathlib import Path
-from typing import Optional
 
 from PySide6.QtWidgets import QLabel, QMenu, QMessageBox, QSizePolicy, QVBoxLayout, QWidget
 
 from ..core.errors import LibraryError
-from ..core.library import PresetLibrary, default_library_dir, starter_presets
+from ..core.library.library import PresetLibrary, default_library_dir, starter_presets
 from . import palette
 
 #: The key of the recent library folders in ``UserState.view``.
@@ -60,7 +60,7 @@ class LibraryFolderActions:
     """Mixed into :class:`~samplewright.qt.main_window.MainWindow`."""
 
     #: Why the remembered library could not be opened at start, or None.
-    library_problem: Optional[str] = None
+    library_problem: str | None = None
 
     # -- start -------------------------------------------------------------------------------
     def _open_first_library(self, library_dir) -> PresetLibrary:
@@ -73,9 +73,11 @@ class LibraryFolderActions:
             try:
                 return PresetLibrary(last, create=False, seed=False)
             except LibraryError as error:
-                self.library_problem = (f"Your library folder could not be opened. {error}\n\nShowing your own "
-                                        f"library instead. When the folder is back, choose it again under File ▸ "
-                                        "Recent library folders.")
+                self.library_problem = (
+                    f"Your library folder could not be opened. {error}\n\nShowing your own "
+                    f"library instead. When the folder is back, choose it again under File ▸ "
+                    "Recent library folders."
+                )
         return PresetLibrary(default_library_dir(), create=True)
 
     def _library_box(self) -> QWidget:
@@ -144,8 +146,10 @@ class LibraryFolderActions:
         try:
             library = PresetLibrary(folder, create=own, seed=False)
         except LibraryError as error:
-            self.show_error("That library folder cannot be used", f"{error}\n\nThe window still shows the "
-                            f"library in {self.library.folder}.")
+            self.show_error(
+                "That library folder cannot be used",
+                f"{error}\n\nThe window still shows the library in {self.library.folder}.",
+            )
             return False
         if not self.settle_draft():
             return False
@@ -154,10 +158,10 @@ class LibraryFolderActions:
         self._point_at(library)
         self._remember_library(None if own else library.folder)
         count = len(library.records())
-        skipped = f"; {len(library.skipped)} file(s) there are not presets and were left alone" \
-            if library.skipped else ""
-        self.statusBar().showMessage(f"Now showing the library in {library.folder}: {count} preset(s){skipped}.",
-                                     10000)
+        skipped = (
+            f"; {len(library.skipped)} file(s) there are not presets and were left alone" if library.skipped else ""
+        )
+        self.statusBar().showMessage(f"Now showing the library in {library.folder}: {count} preset(s){skipped}.", 10000)
         return True
 
     def _fill_empty_library(self, library: PresetLibrary) -> bool:
@@ -176,8 +180,9 @@ class LibraryFolderActions:
     def ask_add_starters(self, folder: Path, other_files: int) -> str:
         """Ask whether a folder without presets gets the starter presets:
         "add", "empty" or "cancel" (tests replace this)."""
-        box = QMessageBox(QMessageBox.Question, "No presets here",
-                          "This folder has no presets. Add the starter presets?", parent=self)
+        box = QMessageBox(
+            QMessageBox.Question, "No presets here", "This folder has no presets. Add the starter presets?", parent=self
+        )
         detail = f"{folder}\n\nThe starter presets are examples to tune from; you can delete them later."
         if other_files:
             detail += f" The folder holds {other_files} other file(s); they are left as they are."
@@ -192,7 +197,7 @@ class LibraryFolderActions:
     def _point_at(self, library: PresetLibrary) -> None:
         """Re-point the file watch, the list and the editor at ``library`` (edits already settled)."""
         kept = [i for i in self.library_list.chosen if i in {r.id for r in library.records()}]
-        self.undo_stack.clear()           # its commands act on the previous library
+        self.undo_stack.clear()  # its commands act on the previous library
         self._load_into_editor(None)
         self.library = library
         self.library_watch.set_library(library)
@@ -203,7 +208,7 @@ class LibraryFolderActions:
         self.library_notice.hide()
         self._show_library_folder()
 
-    def _remember_library(self, folder: Optional[Path]) -> None:
+    def _remember_library(self, folder: Path | None) -> None:
         """Keep the choice for the next start (None: the user's own library) and in the recent list."""
         self.user_state.last_library = folder
         if folder is not None:

@@ -1,20 +1,32 @@
 """The preset list: search, tag filter, favourites, and undoable library changes.
 
-``QtLibraryList`` shows a :class:`~samplewright.core.library.PresetLibrary` and
+``QtLibraryList`` shows a :class:`~samplewright.core.library.library.PresetLibrary` and
 follows its ``added``/``changed``/``removed`` events. New, duplicate, rename
 and delete go through a ``QUndoStack`` (the commands are in
 ``library_commands.py``) so Ctrl+Z takes them back (a delete is undone by
 restoring the preset from the library's trash).
 """
+
 from __future__ import annotations
 
 import contextlib
-from typing import Callable, Iterator, Optional
+from collections.abc import Callable, Iterator
 
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QUndoStack
-from PySide6.QtWidgets import (QCheckBox, QComboBox, QHBoxLayout, QHeaderView, QLineEdit, QMenu, QToolButton,
-                               QTreeWidget, QTreeWidgetItem, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (
+    QCheckBox,
+    QComboBox,
+    QHBoxLayout,
+    QHeaderView,
+    QLineEdit,
+    QMenu,
+    QToolButton,
+    QTreeWidget,
+    QTreeWidgetItem,
+    QVBoxLayout,
+    QWidget,
+)
 
 from ..core.presets import Preset
 from .library_commands import AddPresetCommand, DeletePresetCommand, RenamePresetCommand
@@ -43,8 +55,9 @@ class QtLibraryList(QWidget):
     #: True while :meth:`refresh` announces the current preset (not a choice by the user).
     refreshing = False
 
-    def __init__(self, library, favourites, undo_stack: QUndoStack, report: Callable[[str], None],
-                 parent: Optional[QWidget] = None):
+    def __init__(
+        self, library, favourites, undo_stack: QUndoStack, report: Callable[[str], None], parent: QWidget | None = None
+    ):
         super().__init__(parent)
         self.library = library
         self.favourites = favourites
@@ -127,8 +140,9 @@ class QtLibraryList(QWidget):
             item.setCheckState(0, Qt.Checked if record.id in self.chosen else Qt.Unchecked)
             summary = record.preset.describe()
             tags = ", ".join(record.preset.tags)
-            item.setToolTip(0, "\n".join(x for x in (record.preset.description, summary,
-                                                      f"tags: {tags}" if tags else "") if x))
+            item.setToolTip(
+                0, "\n".join(x for x in (record.preset.description, summary, f"tags: {tags}" if tags else "") if x)
+            )
             item.setToolTip(1, "Favourite: click to change")
             self.tree.addTopLevelItem(item)
             if record.id == current:
@@ -212,7 +226,7 @@ class QtLibraryList(QWidget):
         if column == 1:
             self.toggle_favourite(preset_id(item))
 
-    def toggle_favourite(self, record_id: Optional[str] = None) -> None:
+    def toggle_favourite(self, record_id: str | None = None) -> None:
         """Mark or unmark a preset (default: the current one) as a favourite."""
         record_id = record_id or self.current_id()
         if record_id is None:
@@ -233,7 +247,7 @@ class QtLibraryList(QWidget):
         self.tree.blockSignals(False)
         self.chosen_changed.emit(list(self.chosen))
 
-    def current_id(self) -> Optional[str]:
+    def current_id(self) -> str | None:
         """The id of the highlighted preset, or None."""
         item = self.tree.currentItem()
         return preset_id(item) if item is not None else None
@@ -241,7 +255,7 @@ class QtLibraryList(QWidget):
     def select(self, record_id: str, quiet: bool = False) -> None:
         """Highlight the preset with this id (``quiet``: without emitting ``current_changed``)."""
         item = next((i for i in self._items() if preset_id(i) == record_id), None)
-        if item is not None:     # (a listener may rebuild the rows: touch no other item after this)
+        if item is not None:  # (a listener may rebuild the rows: touch no other item after this)
             self.tree.blockSignals(quiet)
             self.tree.setCurrentItem(item)
             self.tree.blockSignals(False)
@@ -255,13 +269,13 @@ class QtLibraryList(QWidget):
     def _show_context_menu(self, pos) -> None:
         item = self.tree.itemAt(pos)
         if item is not None and item is not self.tree.currentItem():
-            return      # the right-click did not move the highlight here (the user kept editing)
+            return  # the right-click did not move the highlight here (the user kept editing)
         menu = QMenu(self)
         for action in self._context_actions:
             menu.addSeparator() if action is None else menu.addAction(action)
         menu.exec(self.tree.viewport().mapToGlobal(pos))
 
-    def push_add(self, preset: Preset) -> Optional[str]:
+    def push_add(self, preset: Preset) -> str | None:
         """Add ``preset`` undoably and highlight it; returns its id (None on failure)."""
         command = AddPresetCommand(self.library, preset, self.report)
         self.undo_stack.push(command)

@@ -19,16 +19,18 @@ The window's own writes need no special handling: the library already holds
 what it wrote (and ``apply_snapshot`` keeps writes newer than the reading),
 so the re-read that follows them finds nothing new and reports an empty change.
 """
+
 from __future__ import annotations
 
 import contextlib
 import threading
-from typing import Callable, ContextManager, Optional
+from collections.abc import Callable
+from contextlib import AbstractContextManager as ContextManager
 
 from PySide6.QtCore import QFileSystemWatcher, QObject, QRunnable, QThreadPool, QTimer, Signal
 
 from ..core.errors import SamplewrightError
-from ..core.library import ChangeReport
+from ..core.library.library import ChangeReport
 from .workers import user_message
 
 #: Wait this long after the last file event before re-reading the folder.
@@ -52,7 +54,7 @@ def scans_running() -> int:
 class _Delivery(QObject):
     """Carries a finished reading from the worker thread to the watch's thread (a queued signal)."""
 
-    done = Signal(int, object, object)   # serial, FolderSnapshot or None, problem text or None
+    done = Signal(int, object, object)  # serial, FolderSnapshot or None, problem text or None
 
 
 class _Scan(QRunnable):
@@ -80,7 +82,7 @@ class _Scan(QRunnable):
 
 
 class LibraryWatch(QObject):
-    """Re-reads a :class:`~samplewright.core.library.PresetLibrary` when its folder changes.
+    """Re-reads a :class:`~samplewright.core.library.library.PresetLibrary` when its folder changes.
 
     The library then emits ``added``/``changed``/``removed`` for each
     difference, as after any rescan, so views following it update themselves.
@@ -104,12 +106,18 @@ class LibraryWatch(QObject):
     failed = Signal(str)
     recovered = Signal()
 
-    def __init__(self, library, settle_ms: int = SETTLE_MS, check_ms: int = CHECK_MS,
-                 parent: Optional[QObject] = None, batched: Callable[[], ContextManager] = contextlib.nullcontext):
+    def __init__(
+        self,
+        library,
+        settle_ms: int = SETTLE_MS,
+        check_ms: int = CHECK_MS,
+        parent: QObject | None = None,
+        batched: Callable[[], ContextManager] = contextlib.nullcontext,
+    ):
         super().__init__(parent)
         self.library = library
         self._batched = batched
-        self.problem: Optional[str] = None
+        self.problem: str | None = None
         self._check_ms = check_ms
         self._watcher = QFileSystemWatcher(self)
         self._settle = QTimer(self, singleShot=True, interval=settle_ms)
@@ -128,7 +136,7 @@ class LibraryWatch(QObject):
         self._periodic.start()
 
     def _on_event(self, _path: str) -> None:
-        self._settle.start()     # restarting the timer is the debounce
+        self._settle.start()  # restarting the timer is the debounce
 
     def request_check(self) -> None:
         """Re-read the folder on a worker thread; the result is applied here when it arrives.
@@ -144,11 +152,11 @@ class LibraryWatch(QObject):
         self._scanning, self._again = True, False
         self._pool.start(_Scan(self.library, self._serial, self._delivery))
 
-    def _on_scanned(self, serial: int, snapshot, problem: Optional[str]) -> None:
+    def _on_scanned(self, serial: int, snapshot, problem: str | None) -> None:
         self._scanning = False
         if self._stopped:
             return
-        if serial == self._serial:      # else the library was switched or re-read since it began
+        if serial == self._serial:  # else the library was switched or re-read since it began
             if problem is not None:
                 self._on_failure(problem)
             else:
@@ -156,10 +164,10 @@ class LibraryWatch(QObject):
         if self._again:
             self.request_check()
 
-    def check_now(self) -> Optional[ChangeReport]:
+    def check_now(self) -> ChangeReport | None:
         """Re-read the folder at once, on this thread; returns the report, or None when it could not be read."""
         self._settle.stop()
-        self._serial += 1       # a reading already under way is older than this one
+        self._serial += 1  # a reading already under way is older than this one
         try:
             snapshot = self.library.scan_folder()
         except SamplewrightError as error:
@@ -167,7 +175,7 @@ class LibraryWatch(QObject):
             return None
         return self._apply(snapshot)
 
-    def _apply(self, snapshot) -> Optional[ChangeReport]:
+    def _apply(self, snapshot) -> ChangeReport | None:
         names = {record.id: record.name for record in self.library.records()}
         try:
             with self._batched():
@@ -193,8 +201,9 @@ class LibraryWatch(QObject):
         """Watch the folder and its current preset files (a replaced file loses its watch)."""
         folder = self.library.folder
         wanted = {str(folder)} if folder.is_dir() else set()
-        wanted |= {str(folder / record.file_name) for record in self.library.records()
-                   if (folder / record.file_name).exists()}
+        wanted |= {
+            str(folder / record.file_name) for record in self.library.records() if (folder / record.file_name).exists()
+        }
         watched = set(self._watcher.files()) | set(self._watcher.directories())
         if watched - wanted:
             self._watcher.removePaths(sorted(watched - wanted))
@@ -208,7 +217,7 @@ class LibraryWatch(QObject):
     def set_library(self, library) -> None:
         """Follow another library from now on (the previous folder is no longer watched)."""
         self._settle.stop()
-        self._serial += 1       # a reading of the previous folder is dropped when it arrives
+        self._serial += 1  # a reading of the previous folder is dropped when it arrives
         self.library = library
         self.problem = None
         self._periodic.setInterval(self._check_ms)
@@ -235,13 +244,17 @@ def describe_changes(report: ChangeReport, library, names_before: dict[str, str]
         library: the library after the rescan (to look up new and changed presets).
         names_before: preset names by id from before the rescan.
     """
+
     def who(record_id: str) -> str:
         record = library.get(record_id)
         return f"'{record.name}'" + (f" ({record.modified_by})" if record.modified_by else "")
 
     parts = []
-    for verb, ids, name in (("added", report.added, who), ("changed", report.changed, who),
-                            ("removed", report.removed, lambda i: f"'{names_before.get(i, i)}'")):
+    for verb, ids, name in (
+        ("added", report.added, who),
+        ("changed", report.changed, who),
+        ("removed", report.removed, lambda i: f"'{names_before.get(i, i)}'"),
+    ):
         if ids:
             shown = [name(i) for i in ids[:NAMES_SHOWN]]
             more = f" and {len(ids) - NAMES_SHOWN} more" if len(ids) > NAMES_SHOWN else ""

@@ -5,23 +5,37 @@ The window only arranges views and forwards requests: model loading,
 generation and step views run on the engine thread (``workers.py``); the
 audition's samples live in a core :class:`AuditionSession`.
 """
+
 from __future__ import annotations
 
+from collections.abc import Callable
 from pathlib import Path
-from typing import Callable, Optional
 
 from PySide6.QtCore import QSettings, Qt
 from PySide6.QtGui import QAction, QKeySequence, QUndoStack
-from PySide6.QtWidgets import (QCheckBox, QFileDialog, QHBoxLayout, QInputDialog, QLabel, QMainWindow, QMenu,
-                               QMessageBox, QProgressBar, QPushButton, QSpinBox, QSplitter, QVBoxLayout,
-                               QWidget)
+from PySide6.QtWidgets import (
+    QCheckBox,
+    QFileDialog,
+    QHBoxLayout,
+    QInputDialog,
+    QLabel,
+    QMainWindow,
+    QMenu,
+    QMessageBox,
+    QProgressBar,
+    QPushButton,
+    QSpinBox,
+    QSplitter,
+    QVBoxLayout,
+    QWidget,
+)
 
-from ..core.model import DEFAULT_NAME
-from ..core.session import AuditionSession
-from ..core.user_state import UserState, default_config_dir
+from ..core.engine.model import DEFAULT_NAME
+from ..core.engine.session import AuditionSession
+from ..core.library.user_state import UserState, default_config_dir
+from . import palette
 from .audition_actions import AuditionActions
 from .audition_view import QtAuditionGrid
-from . import palette
 from .library_actions import LibraryActions
 from .library_dialogs import captioned
 from .library_folder import LibraryFolderActions
@@ -34,28 +48,34 @@ from .step_inspector import QtStepInspector
 from .window_state import WindowState
 from .workers import EngineThread, EngineWorker
 
-CAUTION = ("⚠ Generated text can be wrong, biased or offensive. A person must review it under your "
-           "team's own review policy before it is used anywhere.")
+CAUTION = (
+    "⚠ Generated text can be wrong, biased or offensive. A person must review it under your "
+    "team's own review policy before it is used anywhere."
+)
 SETTINGS_FILE = "window.ini"
 
 
 def _default_loader(source, progress):
-    from ..core.model import load_model
+    from ..core.engine.model import load_model
+
     return load_model(source, progress)
 
 
 def _default_engine(loaded):
-    from ..core.engine import Engine
+    from ..core.engine.engine import Engine
+
     return Engine(loaded)
 
 
 def _default_metrics(samples):
-    from ..core.metrics import preset_metrics
+    from ..core.sampling.metrics import preset_metrics
+
     return preset_metrics(samples)
 
 
-class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderActions, ModelActions, WindowState,
-                 QMainWindow):
+class MainWindow(
+    AuditionActions, PresetActions, LibraryActions, LibraryFolderActions, ModelActions, WindowState, QMainWindow
+):
     """The Samplewright workbench.
 
     Args:
@@ -68,9 +88,16 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
         load_on_start: start loading the model at once.
     """
 
-    def __init__(self, model_loader: Optional[Callable] = None, library_dir=None, config_dir=None,
-                 engine_factory: Optional[Callable] = None, model_source: Optional[str] = None,
-                 load_on_start: bool = True, parent: Optional[QWidget] = None):
+    def __init__(
+        self,
+        model_loader: Callable | None = None,
+        library_dir=None,
+        config_dir=None,
+        engine_factory: Callable | None = None,
+        model_source: str | None = None,
+        load_on_start: bool = True,
+        parent: QWidget | None = None,
+    ):
         super().__init__(parent)
         self.setWindowTitle("Samplewright — preset audition workbench")
         self.config_dir = Path(config_dir) if config_dir else default_config_dir()
@@ -80,10 +107,9 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
         self.undo_stack = QUndoStack(self)
         self.session = AuditionSession()
         self.model_info = None
-        self.last_error: Optional[str] = None
+        self.last_error: str | None = None
         self._closed = False
-        worker = EngineWorker(model_loader or _default_loader, engine_factory or _default_engine,
-                              _default_metrics)
+        worker = EngineWorker(model_loader or _default_loader, engine_factory or _default_engine, _default_metrics)
         self.engine = EngineThread(worker, self)
         self._build_views()
         self._init_library_watch()
@@ -146,8 +172,13 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
 
     def _audition_box(self) -> QWidget:
         self.samples_spin = _spin(1, 16, 4, "Samples per preset", "How many samples each preset writes (1–16)")
-        self.tokens_spin = _spin(1, 512, 48, "New tokens", "The longest continuation, in tokens; a preset's own "
-                                 "max_new_tokens can make it shorter")
+        self.tokens_spin = _spin(
+            1,
+            512,
+            48,
+            "New tokens",
+            "The longest continuation, in tokens; a preset's own max_new_tokens can make it shorter",
+        )
         self.seed_spin = _spin(0, 2**31 - 1, 1234, "Seed", "The random seed; the same seed gives the same samples")
         self.new_seed_box = QCheckBox("new seed each run")
         self.new_seed_box.setToolTip("Pick a fresh seed for every run instead of keeping this one")
@@ -158,8 +189,11 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
         self.progress.setTextVisible(True)
         self.progress.setFormat("%v / %m tokens")
         controls = QHBoxLayout()
-        for label, widget in (("Samples", self.samples_spin), ("New tokens", self.tokens_spin),
-                              ("Seed", self.seed_spin)):
+        for label, widget in (
+            ("Samples", self.samples_spin),
+            ("New tokens", self.tokens_spin),
+            ("Seed", self.seed_spin),
+        ):
             caption = QLabel(label)
             caption.setBuddy(widget)
             controls.addWidget(caption)
@@ -191,45 +225,93 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
         a = self._action
         self.actions = {
             "open": a("Open passage…", self.open_passage_dialog, QKeySequence.Open, "Open a .txt or .md passage"),
-            "import": a("Import settings file…", self.import_settings, "Ctrl+I",
-                        "Bring presets from a settings file, or a preset saved as a copy"),
-            "export": a("Export chosen presets…", self.export_chosen, "Ctrl+E",
-                        "Write the ticked presets to a settings file to share"),
-            "library_folder": a("Use library folder…", self.choose_library_folder, "Ctrl+Shift+O",
-                                "Show the presets in another folder, for example your team's shared folder"),
-            "own_library": a("Back to my own library", self.use_own_library, None,
-                             "Show the presets in your own library folder again"),
+            "import": a(
+                "Import settings file…",
+                self.import_settings,
+                "Ctrl+I",
+                "Bring presets from a settings file, or a preset saved as a copy",
+            ),
+            "export": a(
+                "Export chosen presets…",
+                self.export_chosen,
+                "Ctrl+E",
+                "Write the ticked presets to a settings file to share",
+            ),
+            "library_folder": a(
+                "Use library folder…",
+                self.choose_library_folder,
+                "Ctrl+Shift+O",
+                "Show the presets in another folder, for example your team's shared folder",
+            ),
+            "own_library": a(
+                "Back to my own library",
+                self.use_own_library,
+                None,
+                "Show the presets in your own library folder again",
+            ),
             "quit": a("Quit", self.close, QKeySequence.Quit),
-            "copy": a("Copy sample text", self.copy_current_sample, "Ctrl+Shift+C",
-                      "Copy the text of the sample being inspected"),
+            "copy": a(
+                "Copy sample text",
+                self.copy_current_sample,
+                "Ctrl+Shift+C",
+                "Copy the text of the sample being inspected",
+            ),
             "new": a("New preset", self.new_preset, QKeySequence.New, "Add a preset with neutral settings"),
             "duplicate": a("Duplicate preset", self.duplicate_preset, "Ctrl+D", "Copy the highlighted preset"),
             "rename": a("Rename preset…", self.rename_preset, "F2", "Give the highlighted preset a new name"),
-            "delete": a("Delete preset", self.delete_preset, QKeySequence.Delete,
-                        "Move the highlighted preset to the library's trash (undo with Ctrl+Z)"),
-            "favourite": a("Favourite ★", self.library_list.toggle_favourite, "Ctrl+B",
-                           "Mark or unmark the highlighted preset as a favourite"),
+            "delete": a(
+                "Delete preset",
+                self.delete_preset,
+                QKeySequence.Delete,
+                "Move the highlighted preset to the library's trash (undo with Ctrl+Z)",
+            ),
+            "favourite": a(
+                "Favourite ★",
+                self.library_list.toggle_favourite,
+                "Ctrl+B",
+                "Mark or unmark the highlighted preset as a favourite",
+            ),
             "save": a("Save preset", self.editor.save, QKeySequence.Save, "Save the edited preset to the library"),
-            "save_copy": a("Save a copy as file…", self.save_copy_as_file, QKeySequence.SaveAs,
-                           "Write the edited preset, unsaved edits included, to a file of your choice"),
-            "history": a("History…", self.show_history, "Ctrl+H",
-                         "Earlier revisions of the highlighted preset, what changed, and a way back"),
-            "compare": a("Compare with…", self.compare_presets, "Ctrl+Shift+D",
-                         "Show the highlighted preset and another one side by side, field by field"),
-            "trash": a("Deleted presets…", self.show_trash, "Ctrl+Shift+T",
-                       "List the presets deleted from this library and restore one"),
+            "save_copy": a(
+                "Save a copy as file…",
+                self.save_copy_as_file,
+                QKeySequence.SaveAs,
+                "Write the edited preset, unsaved edits included, to a file of your choice",
+            ),
+            "history": a(
+                "History…",
+                self.show_history,
+                "Ctrl+H",
+                "Earlier revisions of the highlighted preset, what changed, and a way back",
+            ),
+            "compare": a(
+                "Compare with…",
+                self.compare_presets,
+                "Ctrl+Shift+D",
+                "Show the highlighted preset and another one side by side, field by field",
+            ),
+            "trash": a(
+                "Deleted presets…",
+                self.show_trash,
+                "Ctrl+Shift+T",
+                "List the presets deleted from this library and restore one",
+            ),
             "rescan": a("Reload library", self.rescan_library, "F5", "Pick up presets others changed"),
             "generate": a("Generate all", self.generate_all, "Ctrl+Return", "Write samples for every ticked preset"),
-            "regenerate": a("New samples for this preset", self.regenerate_current, "Ctrl+R",
-                            "Write new samples for the inspected preset; the other columns stay"),
+            "regenerate": a(
+                "New samples for this preset",
+                self.regenerate_current,
+                "Ctrl+R",
+                "Write new samples for the inspected preset; the other columns stay",
+            ),
             "stop": a("Stop", self.stop_generation, "Esc", "Stop the run; samples so far are kept"),
             "prev_step": a("Previous step", lambda: self.inspector.move(-1), "Alt+Left"),
             "next_step": a("Next step", lambda: self.inspector.move(+1), "Alt+Right"),
-            "model_folder": a("Open model folder…", self.choose_model_folder, None,
-                              "Load a transformers model folder"),
+            "model_folder": a("Open model folder…", self.choose_model_folder, None, "Load a transformers model folder"),
             "model_gguf": a("Open GGUF file…", self.choose_model_file, None, "Load a .gguf model file"),
-            "model_default": a("Use the default model", lambda: self.load_model(None), None,
-                               f"Load the default model, {DEFAULT_NAME}"),
+            "model_default": a(
+                "Use the default model", lambda: self.load_model(None), None, f"Load the default model, {DEFAULT_NAME}"
+            ),
             "legend": a("What the letters mean", self.show_legend, "F1"),
         }
         # Delete only acts in the preset list, never on text being edited elsewhere in the window.
@@ -245,17 +327,44 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
         self.stop_button.setToolTip(self.actions["stop"].toolTip())
         for key in ("new", "duplicate", "rename", "delete"):
             self.library_list.add_button(self.actions[key]).setText(self.actions[key].text().split()[0])
-        self.library_list.set_context_actions([self.actions[k] if k else None for k in (
-            "history", "compare", None, "duplicate", "rename", "delete", "favourite")])
+        self.library_list.set_context_actions(
+            [
+                self.actions[k] if k else None
+                for k in ("history", "compare", None, "duplicate", "rename", "delete", "favourite")
+            ]
+        )
 
     def _build_menus(self) -> None:
         bar = self.menuBar()
         menus = {
-            "&File": ["open", "import", "export", None, "library_folder", self._build_recent_menu(), "own_library",
-                      None, "quit"],
+            "&File": [
+                "open",
+                "import",
+                "export",
+                None,
+                "library_folder",
+                self._build_recent_menu(),
+                "own_library",
+                None,
+                "quit",
+            ],
             "&Edit": [self.undo_action, self.redo_action, None, "copy"],
-            "&Presets": ["new", "duplicate", "rename", "delete", "favourite", None, "save", "save_copy", None,
-                         "history", "compare", "trash", None, "rescan"],
+            "&Presets": [
+                "new",
+                "duplicate",
+                "rename",
+                "delete",
+                "favourite",
+                None,
+                "save",
+                "save_copy",
+                None,
+                "history",
+                "compare",
+                "trash",
+                None,
+                "rescan",
+            ],
             "&Audition": ["generate", "regenerate", "stop", None, "prev_step", "next_step"],
             "&Model": ["model_folder", "model_gguf", "model_default"],
             "&Help": ["legend"],
@@ -275,7 +384,7 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
         self.stop_button.clicked.connect(self.stop_generation)
         self.library_list.current_changed.connect(self._on_current_preset_changed)
         self.editor.save_requested.connect(self.save_edited_preset)
-        self.editor.revert_button.clicked.connect(self._on_reverted)    # runs after the editor's own revert
+        self.editor.revert_button.clicked.connect(self._on_reverted)  # runs after the editor's own revert
         self.passage.passage_settled.connect(self.count_passage)
         self.passage.open_requested.connect(self.open_passage)
         worker = self.engine.worker
@@ -286,27 +395,27 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
         self._connect_audition()
 
     # -- messages and questions (tests replace these) -------------------------------------
-    def show_error(self, message: str, detail: Optional[str] = None) -> None:
+    def show_error(self, message: str, detail: str | None = None) -> None:
         """Show a problem in a message box (``detail``, when given, is the message and the first is the title)."""
         title, text = ("Samplewright", message) if detail is None else (message, detail)
         self.last_error = text
         QMessageBox.warning(self, title, text)
 
-    def ask_open_path(self, title: str, file_filter: str) -> Optional[str]:
+    def ask_open_path(self, title: str, file_filter: str) -> str | None:
         """Ask for a file to open; None when cancelled."""
         path, _ = QFileDialog.getOpenFileName(self, title, "", file_filter)
         return path or None
 
-    def ask_save_path(self, title: str, file_filter: str, suggested: str = "") -> Optional[str]:
+    def ask_save_path(self, title: str, file_filter: str, suggested: str = "") -> str | None:
         """Ask for a file to write; None when cancelled."""
         path, _ = QFileDialog.getSaveFileName(self, title, suggested, file_filter)
         return path or None
 
-    def ask_folder(self, title: str) -> Optional[str]:
+    def ask_folder(self, title: str) -> str | None:
         """Ask for a folder; None when cancelled."""
         return QFileDialog.getExistingDirectory(self, title) or None
 
-    def ask_text(self, title: str, label: str, text: str) -> Optional[str]:
+    def ask_text(self, title: str, label: str, text: str) -> str | None:
         """Ask for one line of text; None when cancelled."""
         value, ok = QInputDialog.getText(self, title, label, text=text)
         return value if ok else None
@@ -314,11 +423,18 @@ class MainWindow(AuditionActions, PresetActions, LibraryActions, LibraryFolderAc
     def show_legend(self) -> None:
         """Explain the plot's colours and letters."""
         from .palette import stage_legend
-        QMessageBox.information(self, "Reading the next-token view", (
-            "Grey bars: the model's own distribution. Coloured bars: the distribution after each preset "
-            "(numbered as in the audition columns).\n\nA dashed outline with a letter marks a token a preset "
-            "removed; the letter names the stage that removed it:\n" + stage_legend() +
-            "\n\nThe shaded row with ▶ is the token the inspected sample drew."))
+
+        QMessageBox.information(
+            self,
+            "Reading the next-token view",
+            (
+                "Grey bars: the model's own distribution. Coloured bars: the distribution after each preset "
+                "(numbered as in the audition columns).\n\nA dashed outline with a letter marks a token a preset "
+                "removed; the letter names the stage that removed it:\n"
+                + stage_legend()
+                + "\n\nThe shaded row with ▶ is the token the inspected sample drew."
+            ),
+        )
 
     def closeEvent(self, event) -> None:
         """Ask about unsaved edits, then cancel any run, stop the engine thread and keep the window's state."""

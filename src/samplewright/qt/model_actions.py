@@ -1,20 +1,19 @@
 """The window's model and passage behaviour: load or switch the model with
 progress shown, open passages, and show how long the passage is."""
-from __future__ import annotations
 
-from typing import Optional
+from __future__ import annotations
 
 
 class ModelActions:
     """Mixed into :class:`~samplewright.qt.main_window.MainWindow`."""
 
-    _model_serial: Optional[int] = None
-    _count_serial: Optional[int] = None
-    _pending_source: Optional[str] = None
-    _loaded_source: Optional[str] = None
+    _model_serial: int | None = None
+    _count_serial: int | None = None
+    _pending_source: str | None = None
+    _loaded_source: str | None = None
 
     # -- model -----------------------------------------------------------------------------
-    def load_model(self, source: Optional[str]) -> None:
+    def load_model(self, source: str | None) -> None:
         """Start loading a model on the engine thread (None = the default model); a load still
         running is cancelled first."""
         if self._model_serial is not None:
@@ -50,8 +49,9 @@ class ModelActions:
     def _on_model_ready(self, serial: int, info) -> None:
         if serial != self._model_serial:
             return
-        changed = self.model_info is not None and (self.model_info != info
-                                                    or self._loaded_source != self._pending_source)
+        changed = self.model_info is not None and (
+            self.model_info != info or self._loaded_source != self._pending_source
+        )
         self.model_info = info
         self._loaded_source = self._pending_source
         if changed:
@@ -60,16 +60,19 @@ class ModelActions:
             if had_samples:
                 self.statusBar().showMessage(
                     "The model changed, so the earlier samples were cleared: they were written by the old "
-                    "model. Press Generate all to write new ones.", 10000)
+                    "model. Press Generate all to write new ones.",
+                    10000,
+                )
         self.model_progress.hide()
-        self.model_label.setText(f"Model: {info.name} · {_count(info.n_parameters)} parameters · "
-                                 f"context {info.context_length:,} tokens")
+        self.model_label.setText(
+            f"Model: {info.name} · {_count(info.n_parameters)} parameters · context {info.context_length:,} tokens"
+        )
         self.model_label.setToolTip(f"{info.description}\n{info.source}")
         self.settings.setValue("model/source", self._pending_source or "")
         self._update_buttons()
         self.count_passage(self.passage.text())
 
-    def _saved_model_source(self) -> Optional[str]:
+    def _saved_model_source(self) -> str | None:
         return self.settings.value("model/source", "") or None
 
     def _on_job_failed(self, serial: int, kind: str, message: str) -> None:
@@ -94,7 +97,8 @@ class ModelActions:
 
     def open_passage(self, path: str) -> None:
         """Read a passage file into the passage editor."""
-        from ..core.passages import read_passage
+        from ..core.engine.passages import read_passage
+
         try:
             self.passage.set_text(read_passage(path), str(path))
         except Exception as error:  # PassageError and friends carry the reason

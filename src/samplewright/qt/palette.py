@@ -7,6 +7,7 @@ under the common forms of colour-vision deficiency. Colour is never the only
 cue: each preset column carries its number, and each stage that cuts a token
 is marked by its own letter.
 """
+
 from __future__ import annotations
 
 from ..core.presets import DEFAULT_ORDER
@@ -29,8 +30,12 @@ RAW_COLOUR = "#8C8C8C"
 #: Colours of the up-to-six auditioned presets, in column order. Yellow is left
 #: out: it is too pale on a white background for thin bars and text.
 PRESET_COLOURS = (
-    OKABE_ITO["blue"], OKABE_ITO["orange"], OKABE_ITO["bluish_green"],
-    OKABE_ITO["vermillion"], OKABE_ITO["reddish_purple"], OKABE_ITO["sky_blue"],
+    OKABE_ITO["blue"],
+    OKABE_ITO["orange"],
+    OKABE_ITO["bluish_green"],
+    OKABE_ITO["vermillion"],
+    OKABE_ITO["reddish_purple"],
+    OKABE_ITO["sky_blue"],
 )
 
 #: One letter per stage: the second cue for "which stage cut this token".
@@ -75,5 +80,7 @@ NOTICE_BACKGROUND, NOTICE_BORDER = "#FFF4CC", OKABE_ITO["orange"]
 
 def notice_style(object_name: str, padding: int = 3) -> str:
     """The style sheet of a pale notice label with this object name."""
-    return (f"#{object_name} {{ background: {NOTICE_BACKGROUND}; border: 1px solid {NOTICE_BORDER}; "
-            f"padding: {padding}px; }}")
+    return (
+        f"#{object_name} {{ background: {NOTICE_BACKGROUND}; border: 1px solid {NOTICE_BORDER}; "
+        f"padding: {padding}px; }}"
+    )

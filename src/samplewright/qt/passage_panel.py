@@ -3,15 +3,15 @@
 Shows how many tokens the passage has and, when it is longer than the
 model's context, shades the start that the model will not see.
 """
+
 from __future__ import annotations
 
+from collections.abc import Callable
 from pathlib import Path
-from typing import Callable, Optional
 
 from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtGui import QColor, QTextCharFormat, QTextCursor
-from PySide6.QtWidgets import (QHBoxLayout, QLabel, QMenu, QPlainTextEdit, QTextEdit, QToolButton,
-                               QVBoxLayout, QWidget)
+from PySide6.QtWidgets import QHBoxLayout, QLabel, QMenu, QPlainTextEdit, QTextEdit, QToolButton, QVBoxLayout, QWidget
 
 MAX_RECENT = 8
 COUNT_DELAY_MS = 400
@@ -29,14 +29,16 @@ class QtPassagePanel(QWidget):
     passage_settled = Signal(str)
     open_requested = Signal(str)
 
-    def __init__(self, parent: Optional[QWidget] = None):
+    def __init__(self, parent: QWidget | None = None):
         super().__init__(parent)
-        self.source: Optional[str] = None
+        self.source: str | None = None
         self.recent: list[str] = []
         self.editor = QPlainTextEdit()
         self.editor.setAccessibleName("Passage")
-        self.editor.setPlaceholderText("Type or paste the draft passage here, or open a .txt or .md file "
-                                       "(Ctrl+O). Each preset writes its continuation of this text.")
+        self.editor.setPlaceholderText(
+            "Type or paste the draft passage here, or open a .txt or .md file "
+            "(Ctrl+O). Each preset writes its continuation of this text."
+        )
         self.editor.setToolTip("The text every preset continues")
         self.title = QLabel("<b>Passage</b>")
         self.info = QLabel("")
@@ -45,8 +47,7 @@ class QtPassagePanel(QWidget):
         self.info.setTextInteractionFlags(Qt.TextSelectableByMouse)
         self.open_button = QToolButton()
         self.recent_button, self.recent_menu = self._menu_button("Recent", "Open a passage file used before")
-        self.examples_button, self.examples_menu = self._menu_button(
-            "Examples", "Fill in one of the example passages")
+        self.examples_button, self.examples_menu = self._menu_button("Examples", "Fill in one of the example passages")
         header = QHBoxLayout()
         header.addWidget(self.title)
         header.addWidget(self.info, 1)
@@ -63,7 +64,6 @@ class QtPassagePanel(QWidget):
         self._settle.timeout.connect(lambda: self.passage_settled.emit(self.text()))
         self.editor.textChanged.connect(self._on_text_changed)
 
-
     def _menu_button(self, text: str, tip: str) -> tuple[QToolButton, QMenu]:
         """A tool button that opens its own menu at once."""
         button, menu = QToolButton(), QMenu(self)
@@ -72,6 +72,7 @@ class QtPassagePanel(QWidget):
         button.setToolTip(tip)
         button.setMenu(menu)
         return button, menu
+
     def set_open_action(self, action) -> None:
         """Show the window's "open passage" action as this panel's button."""
         self.open_button.setDefaultAction(action)
@@ -80,7 +81,7 @@ class QtPassagePanel(QWidget):
         """The passage as typed."""
         return self.editor.toPlainText()
 
-    def set_text(self, text: str, source: Optional[str] = None) -> None:
+    def set_text(self, text: str, source: str | None = None) -> None:
         """Replace the passage; ``source`` is the file it came from (added to the recent list)."""
         self.source = source
         self.editor.setPlainText(text)
@@ -119,7 +120,7 @@ class QtPassagePanel(QWidget):
         self.info.setText(text)
         self.editor.setExtraSelections([])
 
-    def show_length(self, tokens: int, dropped: int, context: int, cut_at: Optional[int]) -> None:
+    def show_length(self, tokens: int, dropped: int, context: int, cut_at: int | None) -> None:
         """Show the token count, and shade the part left out when the passage is too long.
 
         Args:
@@ -129,8 +130,10 @@ class QtPassagePanel(QWidget):
             cut_at: character offset where the kept part starts, if known.
         """
         if dropped:
-            self.info.setText(f"{tokens + dropped:,} tokens — longer than the {context:,} a passage may use: "
-                              f"the first {dropped:,} (shaded) are left out.")
+            self.info.setText(
+                f"{tokens + dropped:,} tokens — longer than the {context:,} a passage may use: "
+                f"the first {dropped:,} (shaded) are left out."
+            )
         else:
             self.info.setText(f"{tokens:,} tokens (a passage may use up to {context:,})")
         selections = []
@@ -154,4 +157,4 @@ def qt_position(text: str, index: int) -> int:
     Qt counts UTF-16 code units, so a character outside the Basic Multilingual
     Plane (an emoji, say) takes two positions where Python counts one.
     """
-    return len(text[:max(0, index)].encode("utf-16-le")) // 2
+    return len(text[: max(0, index)].encode("utf-16-le")) // 2

@@ -1,19 +1,19 @@
 """The window's preset behaviour: add, duplicate, rename, delete (undoable),
 save edits (with the library's conflict check, and a copy as a file when the
 library cannot be written), never drop unsaved edits unasked, export and import."""
+
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Optional
 
 from PySide6.QtWidgets import QMessageBox
 
 from ..core.errors import SamplewrightError
-from ..core.importing import apply_import, preview_import
-from ..core.library import SaveConflict
+from ..core.library.importing import apply_import, preview_import
+from ..core.library.library import SaveConflict
+from ..core.library.records import PresetRecord
+from ..core.library.settings_file import export_preset_file, export_settings, read_importable
 from ..core.presets import Preset
-from ..core.records import PresetRecord
-from ..core.settings_file import export_preset_file, export_settings, read_importable
 from .dialogs import ImportPreviewDialog, ask_conflict_choice
 
 SETTINGS_FILTER = "Samplewright settings (*.json);;All files (*)"
@@ -29,9 +29,9 @@ class PresetActions:
     Unsaved edits are never dropped without asking (:meth:`settle_draft`).
     """
 
-    _edited_record: Optional[PresetRecord] = None
-    _saving = False       # our own save is under way: its change events are expected
-    _asking = False       # a question about unsaved edits is open
+    _edited_record: PresetRecord | None = None
+    _saving = False  # our own save is under way: its change events are expected
+    _asking = False  # a question about unsaved edits is open
 
     def _current_record(self):
         record_id = self.library_list.current_id()
@@ -44,14 +44,14 @@ class PresetActions:
             self.show_error(str(error))
             return None
 
-    def _record_or_none(self, record_id: Optional[str]) -> Optional[PresetRecord]:
+    def _record_or_none(self, record_id: str | None) -> PresetRecord | None:
         return next((r for r in self.library.records() if r.id == record_id), None) if record_id else None
 
-    def _load_into_editor(self, record: Optional[PresetRecord]) -> None:
+    def _load_into_editor(self, record: PresetRecord | None) -> None:
         self._edited_record = record
         self.editor.set_preset(record.preset if record else None)
 
-    def _on_current_preset_changed(self, record_id: Optional[str]) -> None:
+    def _on_current_preset_changed(self, record_id: str | None) -> None:
         if self._saving or self._asking:
             return
         loaded = self._edited_record
@@ -62,9 +62,11 @@ class PresetActions:
         if loaded is not None and self.editor.is_dirty():
             if self.library_list.refreshing:
                 # The list moved by itself: the edited preset left the library. Keep the edits.
-                self.editor.set_notice(f"'{loaded.name}' is no longer in the library (deleted by someone "
-                                       "else?). Your edits are kept here: save them to put it back, or "
-                                       "save a copy as a file (Ctrl+Shift+S).")
+                self.editor.set_notice(
+                    f"'{loaded.name}' is no longer in the library (deleted by someone "
+                    "else?). Your edits are kept here: save them to put it back, or "
+                    "save a copy as a file (Ctrl+Shift+S)."
+                )
                 return
             if not self.settle_draft():
                 self.library_list.select(loaded.id, quiet=True)
@@ -72,7 +74,7 @@ class PresetActions:
             record = self._record_or_none(record_id)
         self._load_into_editor(record)
 
-    def _follow_library(self, loaded: PresetRecord, record: Optional[PresetRecord]) -> None:
+    def _follow_library(self, loaded: PresetRecord, record: PresetRecord | None) -> None:
         """The edited preset's record may have changed in the library (a rename, a colleague's save)."""
         if record is None or record == loaded:
             return
@@ -80,8 +82,10 @@ class PresetActions:
             self._load_into_editor(record)
             return
         who = record.modified_by or "someone"
-        self.editor.set_notice(f"'{record.name}' was saved by {who} (revision {record.revision}) while you were "
-                               "editing it. Saving your edits will ask which version to keep.")
+        self.editor.set_notice(
+            f"'{record.name}' was saved by {who} (revision {record.revision}) while you were "
+            "editing it. Saving your edits will ask which version to keep."
+        )
 
     def _on_reverted(self) -> None:
         """After Revert, show the library's newest revision (a colleague may have saved meanwhile)."""
@@ -117,7 +121,7 @@ class PresetActions:
             self._load_into_editor(same)
         return done
 
-    def draft_of(self, record_id: str) -> tuple[Optional[Preset], Optional[str]]:
+    def draft_of(self, record_id: str) -> tuple[Preset | None, str | None]:
         """The editor's unsaved edits of a preset, for trying them before saving.
 
         Returns:
@@ -131,22 +135,24 @@ class PresetActions:
         problem = self.editor.draft_problem()
         return (None, problem) if problem is not None else (self.editor.edited(), None)
 
-    def ask_unsaved(self, name: str, problem: Optional[str]) -> str:
+    def ask_unsaved(self, name: str, problem: str | None) -> str:
         """Ask about unsaved edits: "save", "discard" or "cancel" (tests replace this).
 
         Args:
             name: the edited preset's name.
             problem: why the edits cannot be saved as they are, or None.
         """
-        box = QMessageBox(QMessageBox.Question, "Unsaved changes", f"'{name}' has changes that are not saved.",
-                          parent=self)
+        box = QMessageBox(
+            QMessageBox.Question, "Unsaved changes", f"'{name}' has changes that are not saved.", parent=self
+        )
         if problem is None:
             box.setInformativeText("Save them to the library, discard them, or cancel and keep editing.")
             box.setStandardButtons(QMessageBox.Save | QMessageBox.Discard | QMessageBox.Cancel)
             box.setDefaultButton(QMessageBox.Save)
         else:
-            box.setInformativeText(f"They cannot be saved as they are: {problem}\n\nDiscard them, or cancel "
-                                   "and correct the field.")
+            box.setInformativeText(
+                f"They cannot be saved as they are: {problem}\n\nDiscard them, or cancel and correct the field."
+            )
             box.setStandardButtons(QMessageBox.Discard | QMessageBox.Cancel)
             box.setDefaultButton(QMessageBox.Cancel)
         return {QMessageBox.Save: "save", QMessageBox.Discard: "discard"}.get(box.exec(), "cancel")
@@ -156,8 +162,9 @@ class PresetActions:
         if not self.settle_draft():
             return
         taken = {r.name for r in self.library.records()}
-        name = next(n for n in (f"New preset {i}" if i > 1 else "New preset" for i in range(1, 10_000))
-                    if n not in taken)
+        name = next(
+            n for n in (f"New preset {i}" if i > 1 else "New preset" for i in range(1, 10_000)) if n not in taken
+        )
         self.library_list.push_add(Preset(name, description="Neutral settings: the model as it is."))
 
     def duplicate_preset(self) -> None:
@@ -203,7 +210,7 @@ class PresetActions:
         self.library_list.select(saved.id)
         self.statusBar().showMessage(f"Saved '{saved.name}' (revision {saved.revision}).", 5000)
 
-    def _store_draft(self, preset: Preset) -> tuple[bool, Optional[PresetRecord]]:
+    def _store_draft(self, preset: Preset) -> tuple[bool, PresetRecord | None]:
         """Write the edited ``preset`` over the loaded record.
 
         Returns:
@@ -223,7 +230,7 @@ class PresetActions:
         finally:
             self._saving = False
 
-    def _settle_conflict(self, conflict: SaveConflict) -> tuple[bool, Optional[PresetRecord]]:
+    def _settle_conflict(self, conflict: SaveConflict) -> tuple[bool, PresetRecord | None]:
         choice = ask_conflict_choice(self, str(conflict))
         if choice is None:
             return False, None
@@ -235,8 +242,10 @@ class PresetActions:
 
     def _save_failed(self, name: str, message: str) -> None:
         self.last_error = message
-        text = (f"{message}\n\nYour edits to '{name}' are still in the editor. You can save a copy as a "
-                f"file now and bring it into the library later with File ▸ {self.actions['import'].text()}")
+        text = (
+            f"{message}\n\nYour edits to '{name}' are still in the editor. You can save a copy as a "
+            f"file now and bring it into the library later with File ▸ {self.actions['import'].text()}"
+        )
         if self.offer_copy("The preset was not saved", text):
             self.save_copy_as_file()
 
@@ -256,8 +265,9 @@ class PresetActions:
             return
         problem = self.editor.draft_problem()
         if problem is not None:
-            self.show_error("The copy was not written", f"{problem}. Correct the field first; a copy must be "
-                            "a valid preset.")
+            self.show_error(
+                "The copy was not written", f"{problem}. Correct the field first; a copy must be a valid preset."
+            )
             return
         preset = self.editor.edited()
         path = self.ask_save_path("Save a copy of the preset as a file", PRESET_FILTER, f"{preset.name}.json")
@@ -268,8 +278,7 @@ class PresetActions:
         except SamplewrightError as error:
             self.show_error("The copy was not written", str(error))
             return
-        self.statusBar().showMessage(f"Saved a copy of '{preset.name}' to {path}. Your edits are still open.",
-                                     10000)
+        self.statusBar().showMessage(f"Saved a copy of '{preset.name}' to {path}. Your edits are still open.", 10000)
 
     def export_chosen(self) -> None:
         """Write the ticked presets (or the highlighted one) to a settings file."""
@@ -288,7 +297,7 @@ class PresetActions:
             return
         self.statusBar().showMessage(f"Exported {len(presets)} preset(s) to {path}.", 8000)
 
-    def import_settings(self, path: Optional[str] = None) -> None:
+    def import_settings(self, path: str | None = None) -> None:
         """Read a settings file (or a preset file saved as a copy), show what importing would do,
         and import on confirmation."""
         path = path or self.ask_open_path("Import a settings file", SETTINGS_FILTER)
@@ -310,7 +319,7 @@ class PresetActions:
             return
         self.statusBar().showMessage(f"Imported {len(written)} preset(s) from {Path(path).name}.", 8000)
 
-    def confirm_import(self, plan, source: str) -> Optional[dict]:
+    def confirm_import(self, plan, source: str) -> dict | None:
         """Show the import preview; the chosen conflict actions, or None when cancelled."""
         dialog = ImportPreviewDialog(plan, source, self)
         return dialog.choices() if dialog.exec() else None

@@ -5,13 +5,25 @@ same check the core applies, so the editor and the library can never
 disagree. An invalid value shows the reason and the allowed range beside the
 field, and Save stays disabled until every field is valid.
 """
+
 from __future__ import annotations
 
-from typing import Any, Optional
+from typing import Any
 
 from PySide6.QtCore import Qt, Signal
-from PySide6.QtWidgets import (QAbstractItemView, QFormLayout, QHBoxLayout, QLabel, QLineEdit, QListWidget,
-                               QPlainTextEdit, QPushButton, QScrollArea, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (
+    QAbstractItemView,
+    QFormLayout,
+    QHBoxLayout,
+    QLabel,
+    QLineEdit,
+    QListWidget,
+    QPlainTextEdit,
+    QPushButton,
+    QScrollArea,
+    QVBoxLayout,
+    QWidget,
+)
 
 from ..core.presets import FIELDS, Preset, PresetError, validate_field
 from . import palette
@@ -19,8 +31,9 @@ from .difference_view import value_text
 
 #: The core's numeric parameters, in its order: a whole-number default marks a whole-number field,
 #: so a field added to the core appears here without an edit.
-NUMBER_FIELDS = tuple(f for f, spec in FIELDS.items() if isinstance(spec[1], (int, float))
-                      and not isinstance(spec[1], bool))
+NUMBER_FIELDS = tuple(
+    f for f, spec in FIELDS.items() if isinstance(spec[1], (int, float)) and not isinstance(spec[1], bool)
+)
 WHOLE_NUMBERS = tuple(f for f in NUMBER_FIELDS if isinstance(FIELDS[f][1], int))
 ERROR_STYLE = "color: #B00020;"
 HELP_STYLE = "color: #505050;"
@@ -50,8 +63,7 @@ def _number(field: str, text: str) -> Any:
         if field in WHOLE_NUMBERS:
             raise PresetError(field, f"'{text}': write whole numbers without separators; allowed: {allowed}")
         if "_" in text or "." in text or text.count(",") > 1:
-            raise PresetError(field, f"'{text}': use one decimal point or comma and no separators; "
-                                     f"allowed: {allowed}")
+            raise PresetError(field, f"'{text}': use one decimal point or comma and no separators; allowed: {allowed}")
     try:
         value: Any = float(text.replace(",", "."))
     except ValueError:
@@ -68,7 +80,7 @@ def field_text(field: str, value: Any) -> str:
     if field == "stop":
         return "\n".join(s.replace("\n", "\\n") for s in value)
     if isinstance(value, str):
-        return value                  # typed text is shown exactly as stored
+        return value  # typed text is shown exactly as stored
     return value_text(value, field)
 
 
@@ -83,9 +95,9 @@ class QtPresetEditor(QWidget):
     save_requested = Signal(object)
     validity_changed = Signal(bool)
 
-    def __init__(self, parent: Optional[QWidget] = None):
+    def __init__(self, parent: QWidget | None = None):
         super().__init__(parent)
-        self.original: Optional[Preset] = None
+        self.original: Preset | None = None
         self.errors: dict[str, str] = {}
         self.inputs: dict[str, QWidget] = {}
         self.error_labels: dict[str, QLabel] = {}
@@ -193,7 +205,7 @@ class QtPresetEditor(QWidget):
         self.order_list.setAccessibleName("Stage order")
 
     # -- model → widgets ------------------------------------------------------------
-    def set_preset(self, preset: Optional[Preset]) -> None:
+    def set_preset(self, preset: Preset | None) -> None:
         """Show ``preset`` for editing (None: nothing to edit)."""
         self.original = preset
         self.errors.clear()
@@ -207,7 +219,7 @@ class QtPresetEditor(QWidget):
                 editor.setPlainText(text)
             else:
                 editor.setText(text)
-                editor.setCursorPosition(0)   # show a long description from its start
+                editor.setCursorPosition(0)  # show a long description from its start
             editor.blockSignals(False)
             self.error_labels[field].hide()
         self.order_list.blockSignals(True)
@@ -216,8 +228,9 @@ class QtPresetEditor(QWidget):
             self.order_list.addItem(f"{palette.STAGE_LETTERS[stage]}  {stage}")
             self.order_list.item(self.order_list.count() - 1).setData(Qt.UserRole, stage)
         self.order_list.blockSignals(False)
-        self.title.setText(f"<b>Editing:</b> {preset.name}" if preset else
-                           "<i>Choose a preset in the list to edit it.</i>")
+        self.title.setText(
+            f"<b>Editing:</b> {preset.name}" if preset else "<i>Choose a preset in the list to edit it.</i>"
+        )
         self.set_notice("")
         self.setEnabled(preset is not None)
         self._update_state()
@@ -275,7 +288,7 @@ class QtPresetEditor(QWidget):
         except PresetError:
             return True
 
-    def draft_problem(self) -> Optional[str]:
+    def draft_problem(self) -> str | None:
         """Why the typed values cannot be saved, or None when they can."""
         if self.errors:
             return next(iter(self.errors.values()))
@@ -314,4 +327,3 @@ class QtPresetEditor(QWidget):
         """Save if allowed (the Ctrl+S shortcut calls this)."""
         if self.save_button.isEnabled():
             self._on_save_clicked()
-

@@ -7,14 +7,15 @@ a fresh temporary library and settings folder (the user's own are not
 touched). Writes ``1-ready.png`` (before a run), ``2-audition.png`` (after a
 run) and ``3-step.png`` (inspecting one step).
 """
+
 from __future__ import annotations
 
 import os
 import sys
 import tempfile
 import time
+from collections.abc import Callable
 from pathlib import Path
-from typing import Callable
 
 SIZE = (1400, 900)
 PREFERRED = ("Timetable notice — exact", "Customer reply — warm", "Newsletter — lively")

@@ -1,8 +1,7 @@
 """The step inspector: which sample and step is shown, a control to move through
 the sample, and the distribution plot for that step."""
-from __future__ import annotations
 
-from typing import Optional
+from __future__ import annotations
 
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import QHBoxLayout, QLabel, QSlider, QSpinBox, QVBoxLayout, QWidget
@@ -20,7 +19,7 @@ class QtStepInspector(QWidget):
 
     step_chosen = Signal(int)
 
-    def __init__(self, top_n: int = 20, parent: Optional[QWidget] = None):
+    def __init__(self, top_n: int = 20, parent: QWidget | None = None):
         super().__init__(parent)
         self.title = QLabel("<b>Next-token view</b>")
         self.which = QLabel("No sample chosen yet.")
@@ -49,8 +48,7 @@ class QtStepInspector(QWidget):
         self.slider.valueChanged.connect(self._on_slider)
         self.set_sample(None, None, 0)
 
-    def set_sample(self, column: Optional[int], name: Optional[str], row: Optional[int], steps: int = 0,
-                   step: int = 0) -> None:
+    def set_sample(self, column: int | None, name: str | None, row: int | None, steps: int = 0, step: int = 0) -> None:
         """Point the controls at one sample with ``steps`` tokens, at ``step``."""
         for widget in (self.spin, self.slider):
             widget.blockSignals(True)
@@ -63,8 +61,10 @@ class QtStepInspector(QWidget):
             self.which.setText("Click any token of any sample to see the distribution it was drawn from.")
         else:
             colour = palette.preset_colour(column)
-            self.which.setText(f"<span style='color:{colour}'>■</span> preset {column + 1} · {name} · "
-                               f"sample {row + 1}; the highlighted token is the one it drew.")
+            self.which.setText(
+                f"<span style='color:{colour}'>■</span> preset {column + 1} · {name} · "
+                f"sample {row + 1}; the highlighted token is the one it drew."
+            )
 
     def step(self) -> int:
         """The chosen step (0-based)."""

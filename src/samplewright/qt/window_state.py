@@ -1,6 +1,7 @@
 """The window's memory between sessions: layout, passage, audition settings and ticked presets,
 kept in ``window.ini``. A damaged or hand-edited file never stops the window: each unreadable
 value falls back to its default."""
+
 from __future__ import annotations
 
 import json
@@ -31,9 +32,11 @@ class WindowState:
         if text:
             self.passage.set_text(text, _setting_str(s, "passage/source") or None)
         self.fill_example_passage()
-        for key, spin, default in (("audition/samples", self.samples_spin, 4),
-                                   ("audition/new_tokens", self.tokens_spin, 48),
-                                   ("audition/seed", self.seed_spin, 1234)):
+        for key, spin, default in (
+            ("audition/samples", self.samples_spin, 4),
+            ("audition/new_tokens", self.tokens_spin, 48),
+            ("audition/seed", self.seed_spin, 1234),
+        ):
             spin.setValue(min(max(_setting_int(s, key, default), spin.minimum()), spin.maximum()))
         self.new_seed_box.setChecked(s.value("audition/new_seed", "false") == "true")
         chosen = _setting_json(s, "audition/chosen", None)
@@ -62,7 +65,8 @@ class WindowState:
     def fill_example_passage(self) -> None:
         """Offer the example passages and put the first one in the editor."""
         try:
-            from ..core.passages import demo_passages
+            from ..core.engine.passages import demo_passages
+
             examples = demo_passages()
         except ImportError:
             examples = {}

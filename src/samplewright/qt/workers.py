@@ -7,6 +7,7 @@ time in arrival order, so the model is never used by two threads at once.
 Cancelling sets a number the running job compares with its own serial before
 every token.
 """
+
 from __future__ import annotations
 
 import dataclasses
@@ -15,7 +16,8 @@ import sys
 import time
 import traceback
 import weakref
-from typing import Any, Callable, Optional
+from collections.abc import Callable
+from typing import Any
 
 from PySide6.QtCore import QObject, QThread, Signal, Slot
 
@@ -24,7 +26,7 @@ from ..core.errors import SamplewrightError
 #: Token events are sent to the window in batches at most this often (seconds).
 BATCH_SECONDS = 0.02
 
-_THREADS: "weakref.WeakSet[QThread]" = weakref.WeakSet()
+_THREADS: weakref.WeakSet[QThread] = weakref.WeakSet()
 
 
 def running_threads() -> list[QThread]:
@@ -51,7 +53,7 @@ class StepQuery:
     passage: str
     presets: list
     sample_ids: tuple
-    drawn_id: Optional[int]
+    drawn_id: int | None
     top: int = 20
 
 
@@ -63,8 +65,10 @@ def user_message(error: BaseException) -> str:
     """A message fit for a message box: the error's own text for ours, a plain summary otherwise."""
     if isinstance(error, SamplewrightError):
         return str(error)
-    return (f"Something unexpected went wrong ({type(error).__name__}: {error}). "
-            "Try again; if it keeps happening, restart Samplewright and report the steps that led here.")
+    return (
+        f"Something unexpected went wrong ({type(error).__name__}: {error}). "
+        "Try again; if it keeps happening, restart Samplewright and report the steps that led here."
+    )
 
 
 def leave_a_core_for_the_window() -> None:
@@ -88,13 +92,13 @@ class EngineWorker(QObject):
         metrics: ``metrics(samples) -> dict`` for one preset's samples.
     """
 
-    load_progress = Signal(int, str, object)      # serial, message, fraction or None
-    model_ready = Signal(int, object)             # serial, ModelInfo
-    tokens_ready = Signal(int, object)            # serial, list[TokenEvent]
+    load_progress = Signal(int, str, object)  # serial, message, fraction or None
+    model_ready = Signal(int, object)  # serial, ModelInfo
+    tokens_ready = Signal(int, object)  # serial, list[TokenEvent]
     audition_ready = Signal(int, object, object)  # serial, AuditionResult, list[metrics dict]
-    step_ready = Signal(int, object)              # serial, StepView
-    passage_counted = Signal(int, object)         # serial, PassageTokens
-    failed = Signal(int, str, str)                # serial, job kind, message
+    step_ready = Signal(int, object)  # serial, StepView
+    passage_counted = Signal(int, object)  # serial, PassageTokens
+    failed = Signal(int, str, str)  # serial, job kind, message
 
     def __init__(self, model_loader: Callable, engine_factory: Callable, metrics: Callable):
         super().__init__()
@@ -123,7 +127,7 @@ class EngineWorker(QObject):
 
     def _guard(self, serial: int, kind: str, job: Callable[[], Any]) -> None:
         try:
-            self._check(serial)     # a job cancelled while queued (e.g. on close) never starts
+            self._check(serial)  # a job cancelled while queued (e.g. on close) never starts
             job()
         except Cancelled:
             self.failed.emit(serial, kind, "")
@@ -133,9 +137,10 @@ class EngineWorker(QObject):
             self.failed.emit(serial, kind, user_message(error))
 
     @Slot(int, object)
-    def load_model(self, serial: int, source: Optional[str]) -> None:
+    def load_model(self, serial: int, source: str | None) -> None:
         """Load a model (``None`` = the default) and make it the engine's."""
-        def progress(message: str, fraction: Optional[float] = None) -> None:
+
+        def progress(message: str, fraction: float | None = None) -> None:
             self._check(serial)
             self.load_progress.emit(serial, str(message), fraction)
 
@@ -147,14 +152,24 @@ class EngineWorker(QObject):
             # Warm up now: the first metrics call imports sacrebleu, whose native modules
             # hold the interpreter lock while they load and would stall the window mid-audition.
             self._metrics([])
-            self.model_ready.emit(serial, ModelInfo(
-                str(loaded.name), str(loaded.source), int(loaded.n_parameters), int(loaded.context_length),
-                int(loaded.vocab_size), str(loaded.describe())))
+            self.model_ready.emit(
+                serial,
+                ModelInfo(
+                    str(loaded.name),
+                    str(loaded.source),
+                    int(loaded.n_parameters),
+                    int(loaded.context_length),
+                    int(loaded.vocab_size),
+                    str(loaded.describe()),
+                ),
+            )
+
         self._guard(serial, "load", job)
 
     @Slot(int, object)
     def run_audition(self, serial: int, request) -> None:
         """Generate ``request``; token events go out in batches, then the result and metrics."""
+
         def job():
             engine = self._need_engine()
             batch: list = []
@@ -168,34 +183,41 @@ class EngineWorker(QObject):
                     batch.clear()
                     last[0] = now
 
-            result = engine.audition(request, on_token=on_token,
-                                     should_stop=lambda: self.is_cancelled(serial))
+            result = engine.audition(request, on_token=on_token, should_stop=lambda: self.is_cancelled(serial))
             if batch:
                 self.tokens_ready.emit(serial, list(batch))
             metrics = [self._metrics(samples) for samples in result.samples]
             self.audition_ready.emit(serial, result, metrics)
+
         self._guard(serial, "audition", job)
 
     @Slot(int, object)
     def compute_step(self, serial: int, query: StepQuery) -> None:
         """The distribution at one step of one sample, for every auditioned preset."""
+
         def job():
-            view = self._need_engine().step(query.passage, query.presets, sample_ids=query.sample_ids,
-                                            top=query.top, drawn_id=query.drawn_id)
+            view = self._need_engine().step(
+                query.passage, query.presets, sample_ids=query.sample_ids, top=query.top, drawn_id=query.drawn_id
+            )
             self.step_ready.emit(serial, view)
+
         self._guard(serial, "step", job)
 
     @Slot(int, str)
     def count_passage(self, serial: int, text: str) -> None:
         """Tokenise the passage to report its length and where it is cut."""
+
         def job():
             self.passage_counted.emit(serial, self._need_engine().encode_passage(text))
+
         self._guard(serial, "count", job)
 
     def _need_engine(self):
         if self._engine is None:
-            raise SamplewrightError("No model is loaded yet. Wait for the model to finish loading, "
-                                    "or choose one in the Model menu (Open model folder… or Open GGUF file…).")
+            raise SamplewrightError(
+                "No model is loaded yet. Wait for the model to finish loading, "
+                "or choose one in the Model menu (Open model folder… or Open GGUF file…)."
+            )
         return self._engine
 
 
@@ -212,7 +234,7 @@ class EngineThread(QObject):
     _step = Signal(int, object)
     _count = Signal(int, str)
 
-    def __init__(self, worker: EngineWorker, parent: Optional[QObject] = None):
+    def __init__(self, worker: EngineWorker, parent: QObject | None = None):
         super().__init__(parent)
         self.worker = worker
         self.serial = 0
@@ -231,7 +253,7 @@ class EngineThread(QObject):
         self.serial += 1
         return self.serial
 
-    def load_model(self, source: Optional[str]) -> int:
+    def load_model(self, source: str | None) -> int:
         """Queue a model load; returns its serial."""
         serial = self.next_serial()
         self._load.emit(serial, source)

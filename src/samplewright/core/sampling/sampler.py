@@ -13,6 +13,7 @@ every preset shares one random stream and two presets differ only where
 their distributions differ ("common random numbers", common practice in
 simulation).
 """
+
 from __future__ import annotations
 
 import numpy as np
@@ -20,7 +21,7 @@ import torch
 
 #: Largest float64 below 1 and smallest positive normal float64: the noise's
 #: uniforms stay strictly inside (0, 1), so no token gets infinite noise.
-U_MAX = 1.0 - 2.0 ** -53
+U_MAX = 1.0 - 2.0**-53
 U_MIN = float(np.finfo(np.float64).tiny)
 
 

@@ -3,8 +3,8 @@
 The passage is encoded once and run through the model once; its key/value
 cache (and the next-token logits after it) are kept for the next call with
 the same passage, and copied for every row of an audition. The batched
-generation itself lives in :mod:`samplewright.core.batch`; every preset's
-meaning comes from :func:`samplewright.core.chain.run_chain`.
+generation itself lives in :mod:`samplewright.core.engine.batch`; every preset's
+meaning comes from :func:`samplewright.core.sampling.chain.run_chain`.
 
 Passage window: the engine keeps the last ``passage_limit`` tokens of a
 passage, ``min(max_passage_tokens, context_length - room)`` where ``room`` is
@@ -13,19 +13,22 @@ models with a short one. ``max_passage_tokens`` (default 1024, about 750
 words) bounds memory: every row of an audition holds its own copy of the
 passage's key/value cache.
 """
+
 from __future__ import annotations
 
 import copy
 import dataclasses
-from typing import Any, Callable, Optional, Sequence
+from collections.abc import Callable, Sequence
+from typing import Any
 
 import torch
 
-from . import batch, inspection
-from .errors import PassageError, RequestError
+from ..errors import PassageError, RequestError
+from ..presets import Preset
+from ..results import AuditionRequest, AuditionResult, StepView, TokenEvent
+from ..sampling import inspection
+from . import batch
 from .model import LoadedModel
-from .presets import Preset
-from .results import AuditionRequest, AuditionResult, StepView, TokenEvent
 
 #: Tokens of context kept free for the sample (the largest max_new_tokens).
 GENERATION_ROOM = 512
@@ -37,10 +40,10 @@ MAX_PASSAGE_TOKENS = 1024
 class PassageTokens:
     """A passage as the model sees it."""
 
-    ids: list[int]            # the kept token ids (special prefix tokens included)
-    dropped: int              # tokens cut from the start to fit the passage window
-    limit: int                # the passage window in tokens
-    cut_at: Optional[int]     # character offset where the kept part starts, when tokens were dropped
+    ids: list[int]  # the kept token ids (special prefix tokens included)
+    dropped: int  # tokens cut from the start to fit the passage window
+    limit: int  # the passage window in tokens
+    cut_at: int | None  # character offset where the kept part starts, when tokens were dropped
 
 
 @dataclasses.dataclass(frozen=True)
@@ -48,8 +51,8 @@ class PassageState:
     """The passage's forward pass: kept for reuse, never modified."""
 
     ids: tuple[int, ...]
-    cache: Any                # the model's key/value cache for one row
-    logits: torch.Tensor      # (vocab,) float32 next-token logits after the passage
+    cache: Any  # the model's key/value cache for one row
+    logits: torch.Tensor  # (vocab,) float32 next-token logits after the passage
 
 
 def passage_limit(context_length: int, max_passage_tokens: int = MAX_PASSAGE_TOKENS) -> int:
@@ -67,7 +70,7 @@ class Engine:
     def __init__(self, loaded: LoadedModel, max_passage_tokens: int = MAX_PASSAGE_TOKENS):
         self.loaded = loaded
         self.passage_limit = passage_limit(loaded.context_length, max_passage_tokens)
-        self._state: Optional[PassageState] = None
+        self._state: PassageState | None = None
 
     # -- passages -----------------------------------------------------------
 
@@ -103,7 +106,7 @@ class Engine:
         """The forward pass of ``ids``, computed once and reused while the passage stays the same."""
         key = tuple(int(i) for i in ids)
         if self._state is None or self._state.ids != key:
-            self._state = None   # free the old cache before building the new one
+            self._state = None  # free the old cache before building the new one
             with torch.inference_mode():
                 logits, cache = self.forward(torch.tensor([key], dtype=torch.long), None)
             self._state = PassageState(key, cache, logits[0])
@@ -139,8 +142,12 @@ class Engine:
 
     # -- the two jobs ---------------------------------------------------------
 
-    def audition(self, request: AuditionRequest, on_token: Optional[Callable[[TokenEvent], None]] = None,
-                 should_stop: Optional[Callable[[], bool]] = None) -> AuditionResult:
+    def audition(
+        self,
+        request: AuditionRequest,
+        on_token: Callable[[TokenEvent], None] | None = None,
+        should_stop: Callable[[], bool] | None = None,
+    ) -> AuditionResult:
         """Generate ``request.samples`` samples of every preset, all in one batch.
 
         Args:
@@ -158,8 +165,14 @@ class Engine:
         with torch.inference_mode():
             return batch.run_audition(self, request, on_token, should_stop)
 
-    def step(self, passage: str, presets: list[Preset], sample_ids: Sequence[int] = (), top: int = 20,
-             drawn_id: Optional[int] = None) -> StepView:
+    def step(
+        self,
+        passage: str,
+        presets: list[Preset],
+        sample_ids: Sequence[int] = (),
+        top: int = 20,
+        drawn_id: int | None = None,
+    ) -> StepView:
         """The next-token distribution after the passage (and ``sample_ids``), raw and per preset.
 
         Args:
@@ -182,12 +195,22 @@ class Engine:
             raise RequestError(f"Sample token ids must lie in 0..{self.loaded.vocab_size - 1}.")
         history = tokens.ids + sample_ids
         if len(history) > self.loaded.context_length:
-            raise RequestError(f"The passage and the text after it come to {len(history)} tokens, more than "
-                               f"the model's context of {self.loaded.context_length}: shorten one of them.")
+            raise RequestError(
+                f"The passage and the text after it come to {len(history)} tokens, more than "
+                f"the model's context of {self.loaded.context_length}: shorten one of them."
+            )
         with torch.inference_mode():
             logits = self._next_logits(tokens.ids, sample_ids)
-            return inspection.step_view(logits, presets, self.token_text, history=history, generated=sample_ids,
-                                        top=top, drawn_id=drawn_id, context_tokens=len(history))
+            return inspection.step_view(
+                logits,
+                presets,
+                self.token_text,
+                history=history,
+                generated=sample_ids,
+                top=top,
+                drawn_id=drawn_id,
+                context_tokens=len(history),
+            )
 
     def _next_logits(self, passage_ids: list[int], sample_ids: list[int]) -> torch.Tensor:
         state = self.passage_state(passage_ids)
@@ -201,6 +224,6 @@ def _special_prefix(full: list[int], plain: list[int]) -> list[int]:
     """Special tokens the tokenizer puts before the text (e.g. BOS); trailing
     ones (an EOS) are left out, since the model continues the passage."""
     for head in range(min(4, len(full) - len(plain)) + 1):
-        if full[head:head + len(plain)] == plain:
+        if full[head : head + len(plain)] == plain:
             return full[:head]
     return []

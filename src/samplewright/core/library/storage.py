@@ -14,6 +14,7 @@
 
 Nothing here imports Qt or torch.
 """
+
 from __future__ import annotations
 
 import contextlib
@@ -23,13 +24,14 @@ import json
 import os
 import socket
 import tempfile
+from collections.abc import Iterator
 from pathlib import Path
-from typing import Any, Iterator
+from typing import Any
 
 import filelock
 
-from .errors import LibraryError
-from .presets import now_iso
+from ..errors import LibraryError
+from ..presets import now_iso
 
 LOCK_NAME = ".samplewright.lock"
 OWNER_NOTE_NAME = ".samplewright.lock.owner"
@@ -101,8 +103,7 @@ def parse_json(data: bytes) -> Any:
     except UnicodeDecodeError:
         raise BadContent("not UTF-8 text") from None
     try:
-        return json.loads(text, parse_constant=_reject_constant, parse_int=_bounded_int,
-                          object_pairs_hook=_unique_keys)
+        return json.loads(text, parse_constant=_reject_constant, parse_int=_bounded_int, object_pairs_hook=_unique_keys)
     except json.JSONDecodeError as exc:
         raise BadContent(f"not valid JSON ({exc.msg} at line {exc.lineno}, column {exc.colno})") from None
     except RecursionError:
@@ -180,8 +181,9 @@ def move(source: Path, target: Path) -> None:
         fsync_folder(Path(source).parent)
 
 
-def explain_os_error(exc: OSError, where: Path, action: str,
-                     outcome: str = "Nothing in the library was changed") -> LibraryError:
+def explain_os_error(
+    exc: OSError, where: Path, action: str, outcome: str = "Nothing in the library was changed"
+) -> LibraryError:
     """A :class:`LibraryError` for a failed file operation, saying what to do.
 
     Args:
@@ -210,7 +212,8 @@ def folder_missing_error(folder: Path) -> LibraryError:
     """The error for a library folder that does not exist (any more)."""
     return LibraryError(
         f"The library folder {folder} is not there (an unplugged drive or a moved folder?). "
-        "Reconnect the drive or choose the library folder again; nothing was read or written.")
+        "Reconnect the drive or choose the library folder again; nothing was read or written."
+    )
 
 
 def _owner_note(user: str) -> dict[str, Any]:
@@ -221,8 +224,10 @@ def describe_holder(folder: Path) -> str:
     """Who holds the lock of ``folder``, from its owner note, in words."""
     try:
         note = parse_json(read_limited(Path(folder) / OWNER_NOTE_NAME, 4096))
-        return (f"{str(note['user'])[:60]} on {str(note['host'])[:60]} (process {int(note['pid'])}) "
-                f"since {str(note['since'])[:32]}")
+        return (
+            f"{str(note['user'])[:60]} on {str(note['host'])[:60]} (process {int(note['pid'])}) "
+            f"since {str(note['since'])[:32]}"
+        )
     except (OSError, BadContent, KeyError, TypeError, ValueError):
         return f"another program (it holds {Path(folder) / LOCK_NAME})"
 
@@ -250,7 +255,8 @@ def hold_lock(folder: Path, timeout: float, user: str) -> Iterator[None]:
             raise explain_os_error(denied, folder, "lock the library for writing") from None
         raise LibraryError(
             f"The library {folder} is busy: {describe_holder(folder)} is saving to it. "
-            f"Try again in a moment; your changes are still open.") from None
+            f"Try again in a moment; your changes are still open."
+        ) from None
     except OSError as exc:
         raise explain_os_error(exc, folder, "lock the library for writing") from exc
     try:

@@ -9,16 +9,17 @@ order, after which its probability is zero; stages only ever remove tokens
 (``-inf`` stays ``-inf``, and the top token is never removed, so a tiny
 probability cannot come back), so that stage is the one that cut it.
 """
+
 from __future__ import annotations
 
-from typing import Callable, Mapping, Optional, Sequence, Union
+from collections.abc import Callable, Mapping, Sequence
 
 import numpy as np
 
-from .presets import Preset
-from .results import PresetStep, StepView, TokenRow
+from ..presets import Preset
+from ..results import PresetStep, StepView, TokenRow
 
-TokenTexts = Union[Callable[[int], str], Sequence[str]]
+TokenTexts = Callable[[int], str] | Sequence[str]
 
 
 def entropy_bits(probs) -> np.ndarray | float:
@@ -32,7 +33,7 @@ def entropy_bits(probs) -> np.ndarray | float:
     """
     probs = np.asarray(probs, dtype=np.float64)
     logs = np.log2(probs, out=np.zeros_like(probs), where=probs > 0)
-    out = 0.0 - (probs * logs).sum(axis=-1)   # 0.0 - x, unlike -x, never gives -0.0
+    out = 0.0 - (probs * logs).sum(axis=-1)  # 0.0 - x, unlike -x, never gives -0.0
     return float(out) if out.ndim == 0 else out
 
 
@@ -46,10 +47,10 @@ def softmax(logits) -> np.ndarray:
 def top_ids(probs, n: int) -> list[int]:
     """The ``n`` most probable token ids, most probable first (ties: lower id first)."""
     probs = np.asarray(probs, dtype=np.float64)
-    return [int(i) for i in np.argsort(-probs, kind="stable")[:max(0, n)]]
+    return [int(i) for i in np.argsort(-probs, kind="stable")[: max(0, n)]]
 
 
-def cut_by(after_stage: Mapping[str, np.ndarray], order: Sequence[str], ids: Sequence[int]) -> list[Optional[str]]:
+def cut_by(after_stage: Mapping[str, np.ndarray], order: Sequence[str], ids: Sequence[int]) -> list[str | None]:
     """For each id, the first stage in ``order`` after which it is removed.
 
     Args:
@@ -60,18 +61,25 @@ def cut_by(after_stage: Mapping[str, np.ndarray], order: Sequence[str], ids: Seq
     Returns:
         One stage name per id, or None for an id that survives every stage.
     """
-    ids = np.asarray(ids, dtype=np.int64)
-    found: list[Optional[str]] = [None] * len(ids)
+    id_array = np.asarray(ids, dtype=np.int64)
+    found: list[str | None] = [None] * len(id_array)
     for name in order:
-        removed = softmax(after_stage[name])[ids] == 0
+        removed = softmax(after_stage[name])[id_array] == 0
         for i in np.flatnonzero(removed):
             if found[i] is None:
                 found[i] = name
     return found
 
 
-def preset_step(name: str, order: Sequence[str], raw_probs: np.ndarray, probs: np.ndarray,
-                after_stage: Mapping[str, np.ndarray], ids: Sequence[int], texts: Sequence[str]) -> PresetStep:
+def preset_step(
+    name: str,
+    order: Sequence[str],
+    raw_probs: np.ndarray,
+    probs: np.ndarray,
+    after_stage: Mapping[str, np.ndarray],
+    ids: Sequence[int],
+    texts: Sequence[str],
+) -> PresetStep:
     """Summarise how one preset reshaped the raw distribution at one step.
 
     Args:
@@ -88,15 +96,31 @@ def preset_step(name: str, order: Sequence[str], raw_probs: np.ndarray, probs: n
     """
     kept = probs > 0
     cuts = cut_by(after_stage, order, ids)
-    rows = [TokenRow(id=int(i), text=t, raw_p=float(raw_probs[i]), p=float(probs[i]), cut_by=c)
-            for i, t, c in zip(ids, texts, cuts)]
-    return PresetStep(name=name, probs=probs, kept=int(kept.sum()), kept_raw_mass=float(raw_probs[kept].sum()),
-                      entropy_bits=entropy_bits(probs), raw_entropy_bits=entropy_bits(raw_probs), top=rows)
+    rows = [
+        TokenRow(id=int(i), text=t, raw_p=float(raw_probs[i]), p=float(probs[i]), cut_by=c)
+        for i, t, c in zip(ids, texts, cuts, strict=False)
+    ]
+    return PresetStep(
+        name=name,
+        probs=probs,
+        kept=int(kept.sum()),
+        kept_raw_mass=float(raw_probs[kept].sum()),
+        entropy_bits=float(entropy_bits(probs)),
+        raw_entropy_bits=float(entropy_bits(raw_probs)),
+        top=rows,
+    )
 
 
-def step_view(logits, presets: Sequence[Preset], texts: TokenTexts, history: Sequence[int] = (),
-              generated: Sequence[int] = (), top: int = 20, drawn_id: Optional[int] = None,
-              context_tokens: int = 0) -> StepView:
+def step_view(
+    logits,
+    presets: Sequence[Preset],
+    texts: TokenTexts,
+    history: Sequence[int] = (),
+    generated: Sequence[int] = (),
+    top: int = 20,
+    drawn_id: int | None = None,
+    context_tokens: int = 0,
+) -> StepView:
     """The next-token distribution at one step, raw and as each preset shapes it.
 
     Args:
@@ -127,12 +151,29 @@ def step_view(logits, presets: Sequence[Preset], texts: TokenTexts, history: Seq
     steps = []
     if presets:
         rows = len(presets)
-        hist = RowHistory.build([list(history)] * rows, [list(generated)] * rows,
-                                [p.no_repeat_ngram_size for p in presets], row.shape[-1])
+        hist = RowHistory.build(
+            [list(history)] * rows, [list(generated)] * rows, [p.no_repeat_ngram_size for p in presets], row.shape[-1]
+        )
         out = run_chain(row.expand(rows, -1), RowParams.from_presets(presets), hist, keep_stages=True)
         probs = torch.softmax(out.logits, dim=-1).numpy()
-        steps = [preset_step(preset.name, preset.order, raw, probs[r],
-                             {name: stage[r].numpy() for name, stage in out.after_stage.items()}, ids, names)
-                 for r, preset in enumerate(presets)]
-    return StepView(raw_probs=raw, raw_entropy_bits=entropy_bits(raw), top_ids=ids, top_texts=names,
-                    presets=steps, context_tokens=context_tokens, drawn_id=drawn_id)
+        steps = [
+            preset_step(
+                preset.name,
+                preset.order,
+                raw,
+                probs[r],
+                {name: stage[r].numpy() for name, stage in (out.after_stage or {}).items()},
+                ids,
+                names,
+            )
+            for r, preset in enumerate(presets)
+        ]
+    return StepView(
+        raw_probs=raw,
+        raw_entropy_bits=float(entropy_bits(raw)),
+        top_ids=ids,
+        top_texts=names,
+        presets=steps,
+        context_tokens=context_tokens,
+        drawn_id=drawn_id,
+    )

@@ -10,6 +10,7 @@ A library file is a JSON object (sorted keys, indent 2) named ``<id>.json``::
 :func:`decode_record` checks every part and names the first problem, so the
 library can list a bad file as skipped without touching it.
 """
+
 from __future__ import annotations
 
 import contextlib
@@ -19,7 +20,7 @@ import uuid
 from pathlib import Path
 from typing import Any
 
-from .presets import Preset, PresetError
+from ..presets import Preset, PresetError
 from .storage import BadContent, atomic_write, dump_json, parse_json, read_limited
 
 RECORD_FORMAT = "samplewright-preset"
@@ -65,15 +66,21 @@ class PresetRecord:
         """The file name this record is stored under."""
         return record_file_name(self.id)
 
-    def edited(self, preset: Preset) -> "PresetRecord":
+    def edited(self, preset: Preset) -> PresetRecord:
         """The same record (id, revision) holding an edited preset, ready for ``library.save``."""
         return dataclasses.replace(self, preset=preset)
 
     def to_json(self) -> dict[str, Any]:
         """The record as plain JSON types, as written to its file."""
-        return {"format": RECORD_FORMAT, "format_version": RECORD_VERSION, "id": self.id,
-                "revision": self.revision, "modified_at": self.modified_at,
-                "modified_by": self.modified_by, "preset": self.preset.to_dict()}
+        return {
+            "format": RECORD_FORMAT,
+            "format_version": RECORD_VERSION,
+            "id": self.id,
+            "revision": self.revision,
+            "modified_at": self.modified_at,
+            "modified_by": self.modified_by,
+            "preset": self.preset.to_dict(),
+        }
 
 
 def record_file_name(record_id: str) -> str:
@@ -134,7 +141,7 @@ def _record_from(obj: dict[str, Any]) -> PresetRecord:
     if not all(isinstance(value, str) and len(value) <= 200 for value in texts.values()):
         raise BadContent("modified_at and modified_by must be short text")
     try:
-        preset = Preset.from_dict(obj.get("preset"))
+        preset = Preset.from_dict(obj.get("preset") or {})
     except PresetError as exc:
         raise BadContent(f"invalid preset: {exc}") from None
     return PresetRecord(record_id, revision, preset, texts["modified_at"], texts["modified_by"])

@@ -3,31 +3,33 @@
 Each row is one (preset, sample index). All rows start from the same copy of
 the passage's key/value cache and advance one token per step in lockstep, so
 no padding is needed. A row applies its own preset through per-row parameter
-tensors (:class:`~samplewright.core.chain.RowParams`) and draws with the
+tensors (:class:`~samplewright.core.sampling.chain.RowParams`) and draws with the
 coupled Gumbel-max sampler. A row that ends (length, EOS, stop string) leaves
 the batch at once: its cache rows, parameters and history are dropped, so it
 costs nothing afterwards.
 """
+
 from __future__ import annotations
 
 import dataclasses
 import time
-from typing import Callable, Optional
+from collections.abc import Callable
 
+import numpy as np
 import torch
 
-from . import sampler
-from .chain import RowHistory, RowParams, run_chain
-from .errors import RequestError
-from .inspection import entropy_bits
-from .presets import Preset
-from .results import AuditionRequest, AuditionResult, Sample, TokenEvent, TokenStep
+from ..errors import RequestError
+from ..presets import Preset
+from ..results import AuditionRequest, AuditionResult, Sample, TokenEvent, TokenStep
+from ..sampling import sampler
+from ..sampling.chain import RowHistory, RowParams, run_chain
+from ..sampling.inspection import entropy_bits
 
 
 @dataclasses.dataclass
 class _Row:
     preset: Preset
-    limit: int            # tokens this row may write
+    limit: int  # tokens this row may write
     sample: Sample
 
     @property
@@ -40,10 +42,10 @@ class _Tally:
     plus the budget still open, so it shrinks when a row ends early and
     ``done == total`` at the end."""
 
-    def __init__(self, on_token: Optional[Callable[[TokenEvent], None]], budget: int):
+    def __init__(self, on_token: Callable[[TokenEvent], None] | None, budget: int):
         self.on_token, self.done, self.left = on_token, 0, budget
 
-    def token(self, row: _Row, step: int, token: TokenStep, reason: Optional[str]) -> None:
+    def token(self, row: _Row, step: int, token: TokenStep, reason: str | None) -> None:
         self.done += 1
         self.left -= 1
         self._emit(row, step, token, reason)
@@ -51,13 +53,22 @@ class _Tally:
     def end(self, row: _Row, step: int, reason: str) -> None:
         self._emit(row, step, None, reason)
 
-    def _emit(self, row: _Row, step: int, token: Optional[TokenStep], reason: Optional[str]) -> None:
+    def _emit(self, row: _Row, step: int, token: TokenStep | None, reason: str | None) -> None:
         if reason is not None:
             row.sample.stop_reason = reason
             self.left -= row.limit - len(row.sample.tokens)
         if self.on_token is not None:
-            self.on_token(TokenEvent(row.sample.preset_index, row.sample.sample_index, step, token, reason,
-                                     self.done, self.done + self.left))
+            self.on_token(
+                TokenEvent(
+                    row.sample.preset_index,
+                    row.sample.sample_index,
+                    step,
+                    token,
+                    reason,
+                    self.done,
+                    self.done + self.left,
+                )
+            )
 
 
 def check_request(request: AuditionRequest) -> None:
@@ -78,16 +89,27 @@ def run_audition(engine, request: AuditionRequest, on_token=None, should_stop=No
     start = time.perf_counter()
     passage = engine.encode_passage(request.passage)
     space = engine.loaded.context_length - len(passage.ids)
-    rows = [_Row(preset, min(request.max_new_tokens, preset.max_new_tokens, space), Sample(p, s))
-            for p, preset in enumerate(request.presets) for s in range(request.samples)]
+    rows = [
+        _Row(preset, min(request.max_new_tokens, preset.max_new_tokens, space), Sample(p, s))
+        for p, preset in enumerate(request.presets)
+        for s in range(request.samples)
+    ]
     tally = _Tally(on_token, sum(row.limit for row in rows))
     cancelled = _Batch(engine, passage.ids, rows, int(request.seed)).run(tally, should_stop)
     for row in rows:
         row.sample.text = _cut_at_stop(engine.decode(row.ids), row.preset.stop)[0]
-    samples = [[row.sample for row in rows[p * request.samples:(p + 1) * request.samples]]
-               for p in range(len(request.presets))]
-    return AuditionResult(request=request, passage_ids=list(passage.ids), passage_dropped=passage.dropped,
-                          samples=samples, cancelled=cancelled, seconds=time.perf_counter() - start)
+    samples = [
+        [row.sample for row in rows[p * request.samples : (p + 1) * request.samples]]
+        for p in range(len(request.presets))
+    ]
+    return AuditionResult(
+        request=request,
+        passage_ids=list(passage.ids),
+        passage_dropped=passage.dropped,
+        samples=samples,
+        cancelled=cancelled,
+        seconds=time.perf_counter() - start,
+    )
 
 
 class NgramBans:
@@ -99,7 +121,8 @@ class NgramBans:
     """
 
     def __init__(self, ids, n: int):
-        self.n, self.length, self.tail = n, 0, []
+        self.n, self.length = n, 0
+        self.tail: list[int] = []
         self.follow: dict[tuple[int, ...], set[int]] = {}
         for token in ids:
             self.push(int(token))
@@ -111,7 +134,7 @@ class NgramBans:
             return
         if self.length >= self.n:
             self.follow.setdefault(tuple(self.tail), set()).add(token)
-        self.tail = (self.tail + [token])[-(self.n - 1):] if self.n > 1 else []
+        self.tail = (self.tail + [token])[-(self.n - 1) :] if self.n > 1 else []
 
     def banned(self) -> set[int]:
         """The tokens that would repeat an n-gram already in the list."""
@@ -133,7 +156,7 @@ def _stop_window(stops) -> int:
 def _cut_at_stop(text: str, stops) -> tuple[str, bool]:
     """``text`` cut before the earliest stop string, and whether one was found."""
     found = [text.find(s) for s in stops if s in text]
-    return (text[:min(found)], True) if found else (text, False)
+    return (text[: min(found)], True) if found else (text, False)
 
 
 @dataclasses.dataclass
@@ -160,8 +183,9 @@ class _Batch:
         self.cache = engine.copy_cache(state, len(rows))
         presets = [row.preset for row in rows]
         self.params = RowParams.from_presets(presets)
-        self.history = RowHistory.build([passage_ids] * len(rows), [[]] * len(rows),
-                                        [p.no_repeat_ngram_size for p in presets], self.vocab)
+        self.history = RowHistory.build(
+            [passage_ids] * len(rows), [[]] * len(rows), [p.no_repeat_ngram_size for p in presets], self.vocab
+        )
         passage_bans = {n: NgramBans(passage_ids, n) for n in {p.no_repeat_ngram_size for p in presets} if n}
         self.ngrams = [_copy_bans(passage_bans.get(p.no_repeat_ngram_size)) for p in presets]
 
@@ -198,16 +222,22 @@ class _Batch:
         log_probs = torch.log_softmax(final, dim=-1)
         raw_log_probs = torch.log_softmax(self.logits.to(torch.float64), dim=-1)
         # One noise vector per sample index: every preset's sample i shares it.
-        noises = {i: sampler.noise(self.seed, i, step, self.vocab)
-                  for i in sorted({row.sample.sample_index for row in self.rows})}
+        noises = {
+            i: sampler.noise(self.seed, i, step, self.vocab)
+            for i in sorted({row.sample.sample_index for row in self.rows})
+        }
         gumbels = torch.stack([noises[row.sample.sample_index] for row in self.rows])
         ids = sampler.draw(log_probs, gumbels)
         probs, raw_probs = log_probs.exp(), raw_log_probs.exp()
         pick = ids.unsqueeze(-1)
-        return _Drawn(ids=ids, raw_p=raw_probs.gather(-1, pick).squeeze(-1).tolist(),
-                      p=probs.gather(-1, pick).squeeze(-1).tolist(), kept=(probs > 0).sum(-1).tolist(),
-                      raw_entropy=entropy_bits(raw_probs.numpy()).tolist(),
-                      entropy=entropy_bits(probs.numpy()).tolist())
+        return _Drawn(
+            ids=ids,
+            raw_p=raw_probs.gather(-1, pick).squeeze(-1).tolist(),
+            p=probs.gather(-1, pick).squeeze(-1).tolist(),
+            kept=(probs > 0).sum(-1).tolist(),
+            raw_entropy=np.atleast_1d(entropy_bits(raw_probs.numpy())).tolist(),
+            entropy=np.atleast_1d(entropy_bits(probs.numpy())).tolist(),
+        )
 
     def _record(self, row: _Row, i: int, drawn: _Drawn, step: int, tally: _Tally) -> bool:
         """Add row ``i``'s token to its sample; True when the row has ended."""
@@ -215,12 +245,19 @@ class _Batch:
         if token_id in self.eos:
             tally.end(row, step, "eos")
             return True
-        token = TokenStep(token_id, self.engine.token_text(token_id), drawn.raw_p[i], drawn.p[i],
-                          drawn.kept[i], drawn.raw_entropy[i], drawn.entropy[i])
+        token = TokenStep(
+            token_id,
+            self.engine.token_text(token_id),
+            drawn.raw_p[i],
+            drawn.p[i],
+            drawn.kept[i],
+            drawn.raw_entropy[i],
+            drawn.entropy[i],
+        )
         row.sample.tokens.append(token)
         reason = None
         stops = row.preset.stop
-        if stops and _cut_at_stop(self.engine.decode(row.ids[-_stop_window(stops):]), stops)[1]:
+        if stops and _cut_at_stop(self.engine.decode(row.ids[-_stop_window(stops) :]), stops)[1]:
             reason = "stop"
         elif len(row.sample.tokens) >= row.limit:
             reason = "length"
@@ -255,7 +292,7 @@ class _Batch:
                     self.history.banned[r, sorted(banned)] = True
 
 
-def _copy_bans(bans: Optional[NgramBans]) -> Optional[NgramBans]:
+def _copy_bans(bans: NgramBans | None) -> NgramBans | None:
     """A row's own copy of the passage's n-gram index (None when the rule is off)."""
     if bans is None:
         return None

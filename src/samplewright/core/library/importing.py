@@ -12,14 +12,16 @@ before stay written (each is a normal revision, the replaced version is in its
 history), the rest are not written. Running the same import again finds the
 written ones unchanged and carries on with the rest.
 """
+
 from __future__ import annotations
 
 import dataclasses
-from typing import Any, Mapping
+from collections.abc import Mapping
+from typing import Any
 
-from .errors import LibraryError
+from ..errors import LibraryError
+from ..presets import PARAMETERS, Preset
 from .library import PresetLibrary
-from .presets import PARAMETERS, Preset
 from .records import PresetRecord
 from .settings_file import SettingsDocument
 
@@ -78,8 +80,17 @@ class ImportPlan:
 
     def to_json(self) -> dict[str, Any]:
         """The plan as plain JSON types: ``{"items": [{"name", "action", "id", "differences"}]}``."""
-        return {"items": [{"name": i.name, "action": i.action, "id": i.existing.id if i.existing else None,
-                           "differences": {k: list(v) for k, v in i.differences.items()}} for i in self.items]}
+        return {
+            "items": [
+                {
+                    "name": i.name,
+                    "action": i.action,
+                    "id": i.existing.id if i.existing else None,
+                    "differences": {k: list(v) for k, v in i.differences.items()},
+                }
+                for i in self.items
+            ]
+        }
 
 
 def _short(value: Any) -> str:
@@ -120,17 +131,22 @@ def _choices_for(plan: ImportPlan, choices: str | Mapping[str, str] | None) -> d
     for item in plan.conflicts:
         choice = choices if isinstance(choices, str) or choices is None else choices.get(item.name)
         if choice is None:
-            raise LibraryError(f"'{item.name}' is in the library with other parameters; choose one of "
-                               f"{', '.join(IMPORT_CHOICES)} for it. Nothing was imported.")
+            raise LibraryError(
+                f"'{item.name}' is in the library with other parameters; choose one of "
+                f"{', '.join(IMPORT_CHOICES)} for it. Nothing was imported."
+            )
         if choice not in IMPORT_CHOICES:
-            raise LibraryError(f"Unknown choice {choice!r} for '{item.name}'; use one of "
-                               f"{', '.join(IMPORT_CHOICES)}. Nothing was imported.")
+            raise LibraryError(
+                f"Unknown choice {choice!r} for '{item.name}'; use one of "
+                f"{', '.join(IMPORT_CHOICES)}. Nothing was imported."
+            )
         wanted[item.name] = choice
     return wanted
 
 
-def apply_import(plan: ImportPlan, library: PresetLibrary,
-                 choices: str | Mapping[str, str] | None = None) -> tuple[PresetRecord, ...]:
+def apply_import(
+    plan: ImportPlan, library: PresetLibrary, choices: str | Mapping[str, str] | None = None
+) -> tuple[PresetRecord, ...]:
     """Write a previewed import into the library.
 
     Args:
@@ -152,11 +168,14 @@ def apply_import(plan: ImportPlan, library: PresetLibrary,
         try:
             record = _apply_item(item, wanted.get(item.name), library)
         except LibraryError as exc:
-            rest = [i.name for i in plan.items[plan.items.index(item):] if i.action != "unchanged"]
+            rest = [i.name for i in plan.items[plan.items.index(item) :] if i.action != "unchanged"]
             done = ", ".join(f"'{r.name}'" for r in written) or "none"
-            raise ImportStopped(f"The import stopped at '{item.name}': {exc} Written before it: {done}. "
-                                f"Not written: {', '.join(repr(n) for n in rest)}. Importing the file again "
-                                "carries on where it stopped.", tuple(written)) from exc
+            raise ImportStopped(
+                f"The import stopped at '{item.name}': {exc} Written before it: {done}. "
+                f"Not written: {', '.join(repr(n) for n in rest)}. Importing the file again "
+                "carries on where it stopped.",
+                tuple(written),
+            ) from exc
         if record is not None:
             written.append(record)
     return tuple(written)
@@ -165,12 +184,13 @@ def apply_import(plan: ImportPlan, library: PresetLibrary,
 def _apply_item(item: ImportItem, choice: str | None, library: PresetLibrary) -> PresetRecord | None:
     if item.action == "add":
         return library.add(item.incoming)
-    if item.action == "update":
+    existing = item.existing
+    if item.action == "update" and existing is not None:
         texts = {field: getattr(item.incoming, field) for field in _TEXT_FIELDS}
-        return library.save(item.existing.edited(item.existing.preset.replace(**texts)))
+        return library.save(existing.edited(existing.preset.replace(**texts)))
     if item.action == "conflict" and choice == "keep_both":
         return library.add(item.incoming.replace(name=library.unused_name(item.name, "copy")))
-    if item.action == "conflict" and choice == "overwrite":
-        incoming = item.incoming.replace(created=item.existing.preset.created)
-        return library.save(item.existing.edited(incoming))
+    if item.action == "conflict" and choice == "overwrite" and existing is not None:
+        incoming = item.incoming.replace(created=existing.preset.created)
+        return library.save(existing.edited(incoming))
     return None

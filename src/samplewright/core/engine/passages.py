@@ -4,12 +4,13 @@ The demo passages (``samplewright/resources/passages/*.txt``) are invented
 drafts of a small harbour-town ferry company's communications team. Each
 stops mid-sentence so there is something natural to continue.
 """
+
 from __future__ import annotations
 
 from importlib import resources
 from pathlib import Path
 
-from .errors import PassageError
+from ..errors import PassageError
 
 
 def _clean(text: str) -> str:
@@ -42,8 +43,10 @@ def read_passage(path) -> str:
     try:
         text = data.decode("utf-8-sig")
     except UnicodeDecodeError as error:
-        raise PassageError(f"The passage file {path} is not UTF-8 text (bad byte at position {error.start}): "
-                           "save it as UTF-8 and open it again.") from None
+        raise PassageError(
+            f"The passage file {path} is not UTF-8 text (bad byte at position {error.start}): "
+            "save it as UTF-8 and open it again."
+        ) from None
     text = _clean(text)
     if not text.strip():
         raise PassageError(f"The passage file {path} is empty: write or paste a draft to continue.")

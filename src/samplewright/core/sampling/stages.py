@@ -29,9 +29,10 @@ References:
     Frequency / presence penalties: no paper; the additive form is a common
         hosted-API convention.
 """
+
 from __future__ import annotations
 
-from typing import Sequence
+from collections.abc import Sequence
 
 import torch
 
@@ -163,8 +164,9 @@ def repetition_penalty(logits: torch.Tensor, penalty: torch.Tensor, seen: torch.
     return torch.where(seen, scaled, logits)
 
 
-def frequency_presence(logits: torch.Tensor, frequency: torch.Tensor, presence: torch.Tensor,
-                       counts: torch.Tensor) -> torch.Tensor:
+def frequency_presence(
+    logits: torch.Tensor, frequency: torch.Tensor, presence: torch.Tensor, counts: torch.Tensor
+) -> torch.Tensor:
     """Subtract ``count × frequency + [count > 0] × presence`` from each logit,
     where ``counts`` (rows × vocab) counts the generated tokens only."""
     counts = counts.to(torch.float64)
@@ -178,8 +180,8 @@ def banned_ngram_tokens(history: Sequence[int], n: int) -> set[int]:
     history = list(history)
     if n == 1:
         return set(history)
-    tail = history[len(history) - n + 1:]
-    return {history[s + n - 1] for s in range(len(history) - n + 1) if history[s:s + n - 1] == tail}
+    tail = history[len(history) - n + 1 :]
+    return {history[s + n - 1] for s in range(len(history) - n + 1) if history[s : s + n - 1] == tail}
 
 
 def no_repeat_ngram(logits: torch.Tensor, banned: torch.Tensor) -> torch.Tensor:

@@ -8,16 +8,17 @@ batched sampling calls the same ``run_chain``, so the two cannot drift apart.
 The default order is transformers' (``generate()`` builds repetition penalty
 and no-repeat n-gram first, then temperature, top-k, top-p, min-p, typical).
 """
+
 from __future__ import annotations
 
 import dataclasses
-from typing import Iterable, Sequence
+from collections.abc import Iterable, Sequence
 
 import numpy as np
 import torch
 
+from ..presets import Preset
 from . import stages
-from .presets import Preset
 
 PENALTY_PARTS = ("repetition", "frequency_presence", "no_repeat_ngram")
 
@@ -38,18 +39,26 @@ class RowParams:
     orders: list[tuple[str, ...]]
 
     @classmethod
-    def from_presets(cls, presets: Sequence[Preset]) -> "RowParams":
+    def from_presets(cls, presets: Sequence[Preset]) -> RowParams:
         """Stack the parameters of ``presets``, one row each."""
+
         def col(name, dtype=torch.float64):
             return torch.tensor([getattr(p, name) for p in presets], dtype=dtype)
-        return cls(
-            temperature=col("temperature"), top_k=col("top_k", torch.long), top_p=col("top_p"),
-            min_p=col("min_p"), typical_p=col("typical_p"), repetition_penalty=col("repetition_penalty"),
-            frequency_penalty=col("frequency_penalty"), presence_penalty=col("presence_penalty"),
-            no_repeat_ngram_size=[p.no_repeat_ngram_size for p in presets],
-            orders=[tuple(p.order) for p in presets])
 
-    def select(self, rows: Sequence[int]) -> "RowParams":
+        return cls(
+            temperature=col("temperature"),
+            top_k=col("top_k", torch.long),
+            top_p=col("top_p"),
+            min_p=col("min_p"),
+            typical_p=col("typical_p"),
+            repetition_penalty=col("repetition_penalty"),
+            frequency_penalty=col("frequency_penalty"),
+            presence_penalty=col("presence_penalty"),
+            no_repeat_ngram_size=[p.no_repeat_ngram_size for p in presets],
+            orders=[tuple(p.order) for p in presets],
+        )
+
+    def select(self, rows: Sequence[int]) -> RowParams:
         """The parameters of the given rows only."""
         index = torch.as_tensor(list(rows), dtype=torch.long)
         out = {f.name: getattr(self, f.name) for f in dataclasses.fields(self)}
@@ -72,8 +81,13 @@ class RowHistory:
     banned: torch.Tensor
 
     @classmethod
-    def build(cls, histories: Sequence[Sequence[int]], generated: Sequence[Sequence[int]],
-              ngram_sizes: Sequence[int], vocab: int) -> "RowHistory":
+    def build(
+        cls,
+        histories: Sequence[Sequence[int]],
+        generated: Sequence[Sequence[int]],
+        ngram_sizes: Sequence[int],
+        vocab: int,
+    ) -> RowHistory:
         """Build the tensors from token-id lists, one list per row."""
         rows = len(histories)
         seen = torch.zeros(rows, vocab, dtype=torch.bool)
@@ -91,7 +105,7 @@ class RowHistory:
                 banned[r, sorted(ban)] = True
         return cls(seen, counts, banned)
 
-    def select(self, rows: Sequence[int]) -> "RowHistory":
+    def select(self, rows: Sequence[int]) -> RowHistory:
         """The history of the given rows only."""
         index = torch.as_tensor(list(rows), dtype=torch.long)
         return RowHistory(self.seen[index], self.counts[index], self.banned[index])
@@ -126,10 +140,19 @@ def _is_neutral(name: str, params: RowParams, history: RowHistory) -> bool:
     """True when every row's parameters leave this stage a no-op, so the batch
     can skip it (the sorts in top-k, top-p and typical are the chain's cost)."""
     if name == "penalties":
-        return (bool((params.repetition_penalty == 1).all()) and bool((params.frequency_penalty == 0).all())
-                and bool((params.presence_penalty == 0).all()) and not bool(history.banned.any()))
-    neutral = {"temperature": (params.temperature, 1), "top_k": (params.top_k, 0), "top_p": (params.top_p, 1),
-               "min_p": (params.min_p, 0), "typical_p": (params.typical_p, 1)}
+        return (
+            bool((params.repetition_penalty == 1).all())
+            and bool((params.frequency_penalty == 0).all())
+            and bool((params.presence_penalty == 0).all())
+            and not bool(history.banned.any())
+        )
+    neutral = {
+        "temperature": (params.temperature, 1),
+        "top_k": (params.top_k, 0),
+        "top_p": (params.top_p, 1),
+        "min_p": (params.min_p, 0),
+        "typical_p": (params.typical_p, 1),
+    }
     values, off = neutral[name]
     return bool((values == off).all())
 
@@ -167,8 +190,7 @@ class ChainOutput:
     after_stage: dict[str, torch.Tensor] | None = None
 
 
-def run_chain(logits: torch.Tensor, params: RowParams, history: RowHistory,
-              keep_stages: bool = False) -> ChainOutput:
+def run_chain(logits: torch.Tensor, params: RowParams, history: RowHistory, keep_stages: bool = False) -> ChainOutput:
     """Apply each row's preset chain to ``logits`` (rows × vocab).
 
     Returns new float64 logits with ``-inf`` for removed tokens; the input is
@@ -187,13 +209,13 @@ def run_chain(logits: torch.Tensor, params: RowParams, history: RowHistory,
         part = _run_group(logits[index], params.select(rows), history.select(rows), order, keep_stages)
         final[index] = part.logits
         if after is not None:
-            for name, value in part.after_stage.items():
+            for name, value in (part.after_stage or {}).items():
                 after[name][index] = value
     return ChainOutput(final, after)
 
 
 def _run_group(logits, params, history, order, keep_stages) -> ChainOutput:
-    after = {} if keep_stages else None
+    after: dict[str, torch.Tensor] | None = {} if keep_stages else None
     current = logits
     for name in order:
         if not _is_neutral(name, params, history):

@@ -4,6 +4,7 @@ It lives in the user's own config folder (``$SAMPLEWRIGHT_CONFIG_DIR`` or
 platformdirs' user config folder) as ``state.json``. Favourites are preset ids,
 so they survive renames and work in any library.
 """
+
 from __future__ import annotations
 
 import os
@@ -12,7 +13,7 @@ from typing import Any
 
 import platformdirs
 
-from .errors import LibraryError
+from ..errors import LibraryError
 from .storage import BadContent, atomic_write, dump_json, explain_os_error, parse_json, read_limited
 
 STATE_FILE = "state.json"
@@ -75,14 +76,18 @@ class UserState:
         Raises:
             LibraryError: when the config folder cannot be written.
         """
-        data = {"favourites": sorted(self.favourites), "view": self.view,
-                "last_library": str(self.last_library) if self.last_library else None}
+        data = {
+            "favourites": sorted(self.favourites),
+            "view": self.view,
+            "last_library": str(self.last_library) if self.last_library else None,
+        }
         try:
             self.path.parent.mkdir(parents=True, exist_ok=True)
             atomic_write(self.path, dump_json(data))
         except OSError as exc:
-            raise explain_os_error(exc, self.path.parent, "save your settings",
-                                   "Your favourites were not saved") from exc
+            raise explain_os_error(
+                exc, self.path.parent, "save your settings", "Your favourites were not saved"
+            ) from exc
         except (TypeError, ValueError) as exc:  # a view value that is not plain JSON
             raise LibraryError(f"Could not save your settings: a view setting is not plain data ({exc}).") from exc
 

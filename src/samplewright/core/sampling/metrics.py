@@ -20,19 +20,28 @@ References:
     Surprisal: Shannon (1948). Mean of -log2 p_raw(token) over generated
         tokens, under the unshaped model at temperature 1.
 """
+
 from __future__ import annotations
 
 import math
 from collections import Counter
-from typing import Iterable, Optional, Sequence
+from collections.abc import Iterable, Sequence
 
 import numpy as np
 
+from ..results import STOP_REASONS, Sample
 from . import inspection
-from .results import STOP_REASONS, Sample
 
-METRIC_KEYS = ("distinct_1", "distinct_2", "distinct_3", "self_bleu", "seq_rep_4",
-               "mean_surprisal_bits", "mean_kept", "mean_length")
+METRIC_KEYS = (
+    "distinct_1",
+    "distinct_2",
+    "distinct_3",
+    "self_bleu",
+    "seq_rep_4",
+    "mean_surprisal_bits",
+    "mean_kept",
+    "mean_length",
+)
 
 
 def entropy_bits(probs) -> float:
@@ -46,10 +55,10 @@ def entropy_bits(probs) -> float:
 
 
 def _ngrams(items: Sequence, n: int) -> list[tuple]:
-    return [tuple(items[i:i + n]) for i in range(len(items) - n + 1)]
+    return [tuple(items[i : i + n]) for i in range(len(items) - n + 1)]
 
 
-def distinct_n(texts: Iterable[str], n: int) -> Optional[float]:
+def distinct_n(texts: Iterable[str], n: int) -> float | None:
     """Distinct n-grams / all n-grams over lowercased whitespace words, pooled
     over ``texts``; ``None`` when there is no n-gram at all."""
     grams: list[tuple] = []
@@ -60,7 +69,7 @@ def distinct_n(texts: Iterable[str], n: int) -> Optional[float]:
     return len(set(grams)) / len(grams)
 
 
-def self_bleu(texts: Sequence[str]) -> Optional[float]:
+def self_bleu(texts: Sequence[str]) -> float | None:
     """Mean sentence BLEU-4 (sacrebleu) of each text against all the others,
     scaled to 0–1; ``None`` with fewer than two texts."""
     import sacrebleu
@@ -68,11 +77,11 @@ def self_bleu(texts: Sequence[str]) -> Optional[float]:
     texts = list(texts)
     if len(texts) < 2:
         return None
-    scores = [sacrebleu.sentence_bleu(hyp, texts[:i] + texts[i + 1:]).score for i, hyp in enumerate(texts)]
+    scores = [sacrebleu.sentence_bleu(hyp, texts[:i] + texts[i + 1 :]).score for i, hyp in enumerate(texts)]
     return float(np.mean(scores)) / 100.0
 
 
-def seq_rep_n(token_lists: Iterable[Sequence[int]], n: int = 4) -> Optional[float]:
+def seq_rep_n(token_lists: Iterable[Sequence[int]], n: int = 4) -> float | None:
     """Mean over sequences of 1 - unique n-grams / n-grams; sequences shorter
     than n are skipped; ``None`` when none is long enough."""
     values = []
@@ -83,7 +92,7 @@ def seq_rep_n(token_lists: Iterable[Sequence[int]], n: int = 4) -> Optional[floa
     return float(np.mean(values)) if values else None
 
 
-def mean_surprisal_bits(raw_probs: Iterable[float]) -> Optional[float]:
+def mean_surprisal_bits(raw_probs: Iterable[float]) -> float | None:
     """Mean of -log2 p over the raw probabilities of the drawn tokens."""
     values = [-math.log2(p) if p > 0 else math.inf for p in raw_probs]
     return float(np.mean(values)) if values else None

@@ -5,14 +5,16 @@ Each run gets a serial number from :meth:`AuditionSession.begin`; events and
 results that carry an older serial are ignored, so a cancelled or superseded
 run can never write into the newer one's samples. No Qt and no torch here.
 """
+
 from __future__ import annotations
 
 import dataclasses
-from typing import Any, Optional, Sequence
+from collections.abc import Sequence
+from typing import Any
 
-from .events import Emitter
-from .presets import Preset
-from .results import AuditionRequest, AuditionResult, Sample, TokenEvent
+from ..events import Emitter
+from ..presets import Preset
+from ..results import AuditionRequest, AuditionResult, Sample, TokenEvent
 
 
 @dataclasses.dataclass(frozen=True)
@@ -40,17 +42,17 @@ class AuditionSession:
         self.running = False
         self.presets: list[Preset] = []
         self.samples: list[list[Sample]] = []
-        self.metrics: list[Optional[dict[str, Any]]] = []
+        self.metrics: list[dict[str, Any] | None] = []
         self.passage = ""
         self.passage_ids: list[int] = []
         self.passage_dropped = 0
-        self.columns: list[int] = []     # session column of each preset in the running request
+        self.columns: list[int] = []  # session column of each preset in the running request
         self.done_tokens = 0
         self.total_tokens = 0
         self.started, self.token_added, self.sample_finished = Emitter(), Emitter(), Emitter()
         self.progress, self.finished, self.failed = Emitter(), Emitter(), Emitter()
 
-    def begin(self, request: AuditionRequest, columns: Optional[Sequence[int]] = None) -> int:
+    def begin(self, request: AuditionRequest, columns: Sequence[int] | None = None) -> int:
         """Start collecting a new run and return its serial.
 
         Args:
@@ -73,7 +75,7 @@ class AuditionSession:
         self.running = True
         self.passage = request.passage
         self.columns = list(columns)
-        for column, preset in zip(self.columns, request.presets):
+        for column, preset in zip(self.columns, request.presets, strict=False):
             self.presets[column] = preset
             self.samples[column] = [Sample(column, row) for row in range(request.samples)]
             self.metrics[column] = None
@@ -99,7 +101,7 @@ class AuditionSession:
             self.progress.emit(self.done_tokens, self.total_tokens)
         return True
 
-    def finish(self, serial: int, result: AuditionResult, metrics: Sequence[Optional[dict]]) -> bool:
+    def finish(self, serial: int, result: AuditionResult, metrics: Sequence[dict | None]) -> bool:
         """Take the run's final samples and metrics; False for a stale serial."""
         if serial != self.serial:
             return False
@@ -138,7 +140,7 @@ class AuditionSession:
         self.passage, self.passage_dropped = "", 0
         self.done_tokens = self.total_tokens = 0
 
-    def sample(self, ref: SampleRef) -> Optional[Sample]:
+    def sample(self, ref: SampleRef) -> Sample | None:
         """The sample at ``ref``, or None when there is no such sample."""
         if 0 <= ref.column < len(self.samples) and 0 <= ref.row < len(self.samples[ref.column]):
             return self.samples[ref.column][ref.row]

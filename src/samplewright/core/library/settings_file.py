@@ -13,17 +13,20 @@ export and on import, and every preset also goes through
 executed. Older format versions are brought up to date one step at a time by
 the migrators registered with :func:`register_migrator`.
 """
+
 from __future__ import annotations
 
 import dataclasses
 import functools
 import json
+from collections.abc import Callable, Iterable
 from importlib import resources
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Callable, Iterable
+from typing import TYPE_CHECKING, Any
 
-from .errors import LibraryError
-from .presets import Preset, PresetError, now_iso
+from ..errors import LibraryError
+from ..presets import Preset, PresetError, now_iso
+from ..version import VERSION
 from .records import RECORD_FORMAT, SETTINGS_FORMAT, decode_record, foreign_reason
 from .storage import BadContent, atomic_write, current_user, dump_json, explain_os_error, parse_json, read_limited
 
@@ -41,9 +44,11 @@ _MIGRATORS: dict[int, Migrator] = {}
 
 def register_migrator(from_version: int) -> Callable[[Migrator], Migrator]:
     """Decorator: register the step that upgrades a ``from_version`` document to the next version."""
+
     def decorate(function: Migrator) -> Migrator:
         _MIGRATORS[from_version] = function
         return function
+
     return decorate
 
 
@@ -58,8 +63,10 @@ def migrate(document: dict[str, Any], current: int | None = None) -> dict[str, A
     if not isinstance(version, int) or isinstance(version, bool):
         raise LibraryError(f"format_version {str(version)[:20]!r} is not a version number")
     if version > current:
-        raise LibraryError(f"it was made by a newer Samplewright (format version {version}; this one reads "
-                           f"up to {current}); update Samplewright to read it")
+        raise LibraryError(
+            f"it was made by a newer Samplewright (format version {version}; this one reads "
+            f"up to {current}); update Samplewright to read it"
+        )
     while version < current:
         if version not in _MIGRATORS:
             raise LibraryError(f"format version {version} is not one Samplewright knows")
@@ -91,12 +98,12 @@ class SettingsDocument:
 @functools.lru_cache(maxsize=1)
 def schema() -> dict[str, Any]:
     """The settings file's JSON Schema (``resources/settings.schema.json``)."""
-    text = resources.files("samplewright").joinpath("resources", "settings.schema.json").read_text("utf-8")
+    text = (resources.files("samplewright") / "resources" / "settings.schema.json").read_text("utf-8")
     return json.loads(text)
 
 
 @functools.lru_cache(maxsize=1)
-def _validator() -> "jsonschema.Draft202012Validator":
+def _validator() -> jsonschema.Draft202012Validator:
     import jsonschema  # here, not at module level: it takes a noticeable share of the CLI's start-up
 
     return jsonschema.Draft202012Validator(schema())
@@ -124,21 +131,27 @@ def _check_unique(presets: Iterable[Preset]) -> None:
         seen.add(preset.name)
 
 
-def settings_json(presets: Iterable[Preset], exported_by: str | None = None,
-                  model: str | None = None) -> dict[str, Any]:
+def settings_json(
+    presets: Iterable[Preset], exported_by: str | None = None, model: str | None = None
+) -> dict[str, Any]:
     """The settings document for ``presets`` as plain JSON types (not yet checked)."""
-    from .. import __version__
 
-    document = {"format": FORMAT, "format_version": FORMAT_VERSION,
-                "exported_by": exported_by or current_user(), "exported_at": now_iso(),
-                "tool_version": __version__, "presets": [p.to_dict() for p in presets]}
+    document = {
+        "format": FORMAT,
+        "format_version": FORMAT_VERSION,
+        "exported_by": exported_by or current_user(),
+        "exported_at": now_iso(),
+        "tool_version": VERSION,
+        "presets": [p.to_dict() for p in presets],
+    }
     if model:
         document["model"] = model
     return document
 
 
-def export_settings(presets: Iterable[Preset], path: str | Path, exported_by: str | None = None,
-                    model: str | None = None) -> SettingsDocument:
+def export_settings(
+    presets: Iterable[Preset], path: str | Path, exported_by: str | None = None, model: str | None = None
+) -> SettingsDocument:
     """Write ``presets`` to a settings file at ``path`` (atomically: old file or new, whole).
 
     Args:
@@ -164,8 +177,9 @@ def export_settings(presets: Iterable[Preset], path: str | Path, exported_by: st
         raise LibraryError(f"Cannot export: {problem}.")
     data = dump_json(document)
     if len(data) > MAX_BYTES:
-        raise LibraryError(f"Cannot export: the file would be larger than {MAX_BYTES // 1_000_000} MB; "
-                           "export fewer presets.")
+        raise LibraryError(
+            f"Cannot export: the file would be larger than {MAX_BYTES // 1_000_000} MB; export fewer presets."
+        )
     try:
         atomic_write(path, data)
     except OSError as exc:
@@ -215,7 +229,7 @@ def read_importable(path: str | Path) -> SettingsDocument:
     try:
         obj = parse_json(data)
     except BadContent:
-        return parse_settings(data, path.name)      # refused with the settings file's own message
+        return parse_settings(data, path.name)  # refused with the settings file's own message
     if isinstance(obj, dict) and "format" not in obj and "name" in obj:
         try:
             return SettingsDocument((Preset.from_dict(obj),))
@@ -241,8 +255,11 @@ def parse_settings(data: bytes, source: str = "the settings file") -> SettingsDo
 
 def _parse_object(obj: Any, source: str) -> SettingsDocument:
     if not isinstance(obj, dict) or obj.get("format") != FORMAT:
-        reason = ("a library preset file" if isinstance(obj, dict) and obj.get("format") == RECORD_FORMAT
-                  else foreign_reason(obj))
+        reason = (
+            "a library preset file"
+            if isinstance(obj, dict) and obj.get("format") == RECORD_FORMAT
+            else foreign_reason(obj)
+        )
         raise LibraryError(f"{source} is not a Samplewright settings file: {reason}.")
     try:
         document = migrate(obj)
@@ -265,8 +282,14 @@ def _document_from(document: dict[str, Any], written_version: int) -> SettingsDo
         except PresetError as exc:
             raise LibraryError(f"presets[{index}] ({str(item.get('name'))[:120]!r}): {exc}") from None
     _check_unique(presets)
-    return SettingsDocument(tuple(presets), document["exported_by"], document["exported_at"],
-                            document["tool_version"], document.get("model"), written_version)
+    return SettingsDocument(
+        tuple(presets),
+        document["exported_by"],
+        document["exported_at"],
+        document["tool_version"],
+        document.get("model"),
+        written_version,
+    )
 
 
 def _read_bytes(path: Path) -> bytes:
@@ -302,15 +325,19 @@ def check_file(path: str | Path) -> str:
     if isinstance(obj, dict) and obj.get("format") == FORMAT:
         doc = _parse_object(obj, path.name)
         names = ", ".join(f"'{p.name}'" for p in doc.presets[:8]) + (", ..." if len(doc.presets) > 8 else "")
-        return (f"{path.name}: a valid settings file (format version {doc.format_version}) with "
-                f"{len(doc.presets)} preset(s): {names}; exported by {doc.exported_by} at {doc.exported_at}")
+        return (
+            f"{path.name}: a valid settings file (format version {doc.format_version}) with "
+            f"{len(doc.presets)} preset(s): {names}; exported by {doc.exported_by} at {doc.exported_at}"
+        )
     if isinstance(obj, dict) and obj.get("format") == RECORD_FORMAT:
         try:
             record = decode_record(data)
         except BadContent as exc:
             raise LibraryError(f"{path.name} is not a usable library preset: {exc}.") from None
-        return (f"{path.name}: a valid library preset '{record.name}', revision {record.revision}, "
-                f"saved by {record.modified_by} at {record.modified_at}")
+        return (
+            f"{path.name}: a valid library preset '{record.name}', revision {record.revision}, "
+            f"saved by {record.modified_by} at {record.modified_at}"
+        )
     if isinstance(obj, dict) and "format" not in obj:
         preset = Preset.from_dict(obj)
         return f"{path.name}: a valid preset '{preset.name}' ({preset.describe()})"

@@ -14,24 +14,33 @@ whose revision has moved on raises :class:`SaveConflict` with both versions;
 :meth:`PresetLibrary.resolve_conflict` applies the user's choice. Files that
 are not valid presets are listed in ``skipped`` and never touched.
 """
+
 from __future__ import annotations
 
 import contextlib
 import dataclasses
 import itertools
 import os
+from collections.abc import Iterator
 from pathlib import Path
-from typing import Iterator, Literal
+from typing import Literal
 
 import platformdirs
 
-from .errors import LibraryError
-from .events import Emitter
-from .presets import MAX_TEXT, Preset, differences, now_iso
-from .records import (PresetRecord, encode_record, keep_history, new_id, read_folder, read_history,
-                      read_record_file, record_file_name)
-from .storage import (BadContent, atomic_write, current_user, explain_os_error, folder_missing_error,
-                      hold_lock, move)
+from ..errors import LibraryError
+from ..events import Emitter
+from ..presets import MAX_TEXT, Preset, differences, now_iso
+from .records import (
+    PresetRecord,
+    encode_record,
+    keep_history,
+    new_id,
+    read_folder,
+    read_history,
+    read_record_file,
+    record_file_name,
+)
+from .storage import BadContent, atomic_write, current_user, explain_os_error, folder_missing_error, hold_lock, move
 
 HISTORY_LIMIT = 20
 HISTORY_DIR = ".history"
@@ -51,7 +60,7 @@ def starter_presets() -> tuple[Preset, ...]:
 
     from .settings_file import parse_settings  # jsonschema loads only when needed
 
-    data = resources.files("samplewright").joinpath("resources", "presets", "starter.json").read_bytes()
+    data = (resources.files("samplewright") / "resources" / "presets" / "starter.json").read_bytes()
     return parse_settings(data, "starter.json").presets
 
 
@@ -114,10 +123,14 @@ class SaveConflict(LibraryError):
         if theirs is None:
             what = "was deleted from the library by someone else"
         else:
-            what = (f"was changed by {theirs.modified_by or 'someone'} at {theirs.modified_at} "
-                    f"(now revision {theirs.revision}; you opened revision {mine.revision})")
-        super().__init__(f"'{mine.name}' {what}. Nothing was saved; choose: keep both "
-                         "(yours saved as a copy), take theirs, or overwrite.")
+            what = (
+                f"was changed by {theirs.modified_by or 'someone'} at {theirs.modified_at} "
+                f"(now revision {theirs.revision}; you opened revision {mine.revision})"
+            )
+        super().__init__(
+            f"'{mine.name}' {what}. Nothing was saved; choose: keep both "
+            "(yours saved as a copy), take theirs, or overwrite."
+        )
         self.mine = mine
         self.theirs = theirs
 
@@ -142,8 +155,15 @@ class PresetLibrary:
         library's own writes and after :meth:`rescan` finds others' edits.
     """
 
-    def __init__(self, folder: str | os.PathLike, *, user: str | None = None, lock_timeout: float = 5.0,
-                 create: bool | None = None, seed: bool = True):
+    def __init__(
+        self,
+        folder: str | os.PathLike,
+        *,
+        user: str | None = None,
+        lock_timeout: float = 5.0,
+        create: bool | None = None,
+        seed: bool = True,
+    ):
         self.folder = Path(folder).expanduser()
         self.user = user or current_user()
         self.lock_timeout = lock_timeout
@@ -292,7 +312,8 @@ class PresetLibrary:
         report = ChangeReport(
             added=tuple(sorted(set(records) - set(old))),
             changed=tuple(sorted(i for i in records if i in old and records[i] != old[i])),
-            removed=tuple(sorted(set(old) - set(records))))
+            removed=tuple(sorted(set(old) - set(records))),
+        )
         self._records, self._parsed = records, parsed
         self.skipped = [s for s in snapshot.skipped if s.name not in own_files]
         for record_id in report.added:
@@ -471,8 +492,10 @@ class PresetLibrary:
         for record in self.history(record_id):
             if record.revision == number:
                 return record
-        raise LibraryError(f"Revision {number} of preset {record_id} is not kept "
-                           f"(the library keeps the last {HISTORY_LIMIT} revisions).")
+        raise LibraryError(
+            f"Revision {number} of preset {record_id} is not kept "
+            f"(the library keeps the last {HISTORY_LIMIT} revisions)."
+        )
 
     @staticmethod
     def diff(a: PresetRecord | Preset, b: PresetRecord | Preset) -> dict[str, tuple]:
@@ -516,8 +539,10 @@ class PresetLibrary:
         except FileNotFoundError:
             return None
         except BadContent as exc:
-            raise LibraryError(f"The library file {path.name} is not a valid preset ({exc}); it is left as it "
-                               "is. Save your preset under another name or export it.") from None
+            raise LibraryError(
+                f"The library file {path.name} is not a valid preset ({exc}); it is left as it "
+                "is. Save your preset under another name or export it."
+            ) from None
 
     def _touch(self, record_id: str) -> None:
         self._generation += 1
@@ -541,4 +566,3 @@ class PresetLibrary:
             for preset in starter_presets():
                 record = self._commit(PresetRecord(new_id(), 0, preset), expected=0)
                 self._records[record.id] = record
-
