@@ -68,9 +68,10 @@ def window(qtbot, tiny_loader, tmp_path):
 
     def capture(message, detail=None):
         errors.append(detail if detail is not None else message)
-        win.last_error = errors[-1]
+        win.prompts.last_error = errors[-1]
 
-    win.show_error = capture
+    # Questions and messages go through ``win.prompts``: the test replaces them with scripted answers.
+    win.prompts.show_error = capture
     win.errors = errors
     # Questions about unsaved edits are answered from ``win.answers``; an unexpected one fails the test.
     win.questions, win.answers = [], []
@@ -80,10 +81,10 @@ def window(qtbot, tiny_loader, tmp_path):
         assert win.answers, f"unexpected question about unsaved edits to '{name}'"
         return win.answers.pop(0)
 
-    win.ask_unsaved = answer
+    win.prompts.ask_unsaved = answer
     # A failed save's offer to write a copy is recorded; ``win.copy_wanted`` is the answer.
     win.offered, win.copy_wanted = [], False
-    win.offer_copy = lambda title, text: win.offered.append(text) or win.copy_wanted
+    win.prompts.offer_copy = lambda title, text: win.offered.append(text) or win.copy_wanted
     yield win
     discard_edits(win)
     win.close()
@@ -91,7 +92,7 @@ def window(qtbot, tiny_loader, tmp_path):
 
 def discard_edits(win):
     """Answer "discard" to the closing window's question about unsaved edits."""
-    win.ask_unsaved = lambda name, problem: "discard"
+    win.prompts.ask_unsaved = lambda name, problem: "discard"
 
 
 @pytest.fixture

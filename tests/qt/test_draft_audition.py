@@ -72,7 +72,7 @@ def test_the_step_view_uses_the_same_draft(window, qtbot):
     generate(window, qtbot, samples=2, tokens=6)
     sample = window.session.samples[0][0]
     assert sample.tokens
-    window.inspect(0, 0, 0)
+    window.audition.inspect(0, 0, 0)
     plot = window.inspector.plot
     qtbot.waitUntil(lambda: plot.shown is not None, timeout=10000)
     shaped = plot.shown.presets[0]
@@ -88,9 +88,9 @@ def test_an_invalid_draft_is_not_used(window, qtbot):
     retype(qtbot, window.editor.inputs["temperature"], "7")  # outside 0–5
     window.samples_spin.setValue(2)
     window.tokens_spin.setValue(4)
-    window.generate_all()
+    window.audition.generate_all()
     assert "saved version" in window.statusBar().currentMessage()
-    qtbot.waitUntil(lambda: not window.running(), timeout=60000)
+    qtbot.waitUntil(lambda: not window.audition.running(), timeout=60000)
     assert window.session.presets[0] == record.preset
     assert DRAFT_MARK not in window.grid.headers[0].title.text()
 
@@ -99,8 +99,8 @@ def test_regenerate_picks_up_the_draft(window, qtbot):
     edit_wide_preset(window)
     generate(window, qtbot, samples=3, tokens=6)
     retype(qtbot, window.editor.inputs["temperature"], "0")
-    window.regenerate_column(0)
-    qtbot.waitUntil(lambda: not window.running(), timeout=60000)
+    window.audition.regenerate_column(0)
+    qtbot.waitUntil(lambda: not window.audition.running(), timeout=60000)
     draft_rows = rows(window)
     assert window.session.presets[0].temperature == 0.0
     assert all(r == draft_rows[0] for r in draft_rows)  # greedy (common practice)

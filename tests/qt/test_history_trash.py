@@ -51,7 +51,7 @@ def test_bringing_back_a_revision_restores_its_value_and_can_be_undone(window, q
     first = record.preset.temperature
     save_temperature(window, qtbot, "0.35")
     save_temperature(window, qtbot, "0.6")
-    dialog = window.show_history()
+    dialog = window.library_tools.show_history()
     dialog.select_revision(record.revision)
     qtbot.mouseClick(dialog.bring_back_button, Qt.LeftButton)
 
@@ -71,7 +71,7 @@ def test_bringing_back_a_revision_restores_its_value_and_can_be_undone(window, q
 
 def test_history_of_a_preset_never_changed_says_so(window):
     highlight_first(window)
-    dialog = window.show_history()
+    dialog = window.library_tools.show_history()
     assert dialog.revisions.rowCount() == 0
     assert not dialog.bring_back_button.isEnabled()
     assert dialog.differences.rows() == []
@@ -153,7 +153,7 @@ def test_compare_survives_a_preset_deleted_by_a_colleague(window, qtbot):
     window.actions["compare"].trigger()
     dialog = window.findChild(CompareDialog)
     PresetLibrary(window.library.folder, user="colleague").delete(second.id)
-    window.rescan_library()
+    window.library_tools.rescan_library()
     assert second.id not in {r.id for r in window.library.records()}
     dialog.refresh()
     assert f"'{second.name}' is no longer in the library" in dialog.summary.text()

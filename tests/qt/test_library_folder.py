@@ -39,7 +39,7 @@ def team_folder(tmp_path):
 
 
 def switch_to(window, folder):
-    window.ask_folder = lambda title: str(folder)
+    window.prompts.ask_folder = lambda title: str(folder)
     window.actions["library_folder"].trigger()
 
 
@@ -100,7 +100,7 @@ def test_the_choice_is_reopened_at_the_next_start(window, qtbot, tiny_loader, tm
     assert again.library.folder == team_folder
     assert list_names(again) == names_on_disk(team_folder)
     assert again.library_notice.isHidden()
-    again.fill_recent_menu()
+    again.folders.fill_recent_menu()
     entries = again.recent_menu.actions()
     assert [a.toolTip() for a in entries] == [str(team_folder)] and entries[0].isChecked()
 
@@ -163,7 +163,7 @@ def test_an_empty_folder_is_offered_the_starter_presets(window, tmp_path, answer
     empty = tmp_path / "new-team-folder"
     empty.mkdir()
     asked = []
-    window.ask_add_starters = lambda folder, others: asked.append((folder, others)) or answer
+    window.prompts.ask_add_starters = lambda folder, others: asked.append((folder, others)) or answer
     switch_to(window, empty)
     assert asked == [(empty, 0)]
     on_disk = names_on_disk(empty)
@@ -189,7 +189,7 @@ def test_recent_folders_switch_back_and_forth(window, tmp_path, team_folder):
     PresetLibrary(second, seed=False).add(Preset("Second team preset"))
     switch_to(window, team_folder)
     switch_to(window, second)
-    window.fill_recent_menu()
+    window.folders.fill_recent_menu()
     entries = window.recent_menu.actions()
     assert [a.toolTip() for a in entries] == [str(second), str(team_folder)]
     entries[1].trigger()

@@ -108,6 +108,6 @@ def test_a_rescan_with_many_changes_rebuilds_the_list_once(window, qtbot):
     window.library_list.current_changed.connect(
         lambda _id: rebuilds.append(1) if window.library_list.refreshing else None
     )
-    window.rescan_library()
+    window.library_tools.rescan_library()
     assert [f"Pier update {n}" for n in range(5)] == [n for n in list_names(window) if "Pier update" in n]
     assert len(rebuilds) == 1

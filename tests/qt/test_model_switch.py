@@ -39,15 +39,15 @@ def test_switching_model_clears_old_samples_and_steps_use_new_model(two_model_wi
     untick_all(win)
     tick(win, 2)
     generate(win, qtbot, samples=2, tokens=6)
-    win.inspect(0, 0, 0)
+    win.audition.inspect(0, 0, 0)
     qtbot.waitUntil(lambda: win.inspector.plot.shown is not None, timeout=10000)
     old_engine = win.engine.worker._engine
 
-    win.load_model("other")
+    win.models.load_model("other")
     qtbot.waitUntil(
         lambda: (
             win.engine.worker._engine is not old_engine
-            and win._model_serial is not None
+            and win.models.load_serial is not None
             and win.model_progress.isHidden()
         ),
         timeout=20000,
@@ -55,14 +55,14 @@ def test_switching_model_clears_old_samples_and_steps_use_new_model(two_model_wi
     assert win.session.samples == [] and win.session.presets == []
     assert win.grid.headers == [] and win.grid.view(0, 0) is None
     qtbot.waitUntil(lambda: win.inspector.plot.shown is None, timeout=5000)
-    assert win._inspected is None
+    assert win.session.inspected is None
     assert not win.actions["regenerate"].isEnabled()
     assert "model changed" in win.statusBar().currentMessage()
 
     generate(win, qtbot, samples=1, tokens=4)
     sample = next(s for column in win.session.samples for s in column if s.tokens)
     column = sample.preset_index
-    win.inspect(column, sample.sample_index, 0)
+    win.audition.inspect(column, sample.sample_index, 0)
     qtbot.waitUntil(lambda: win.inspector.plot.shown is not None, timeout=10000)
     # The raw distribution is the new model's softmax over the passage (direct transformers forward pass).
     with torch.no_grad():
@@ -101,8 +101,8 @@ def test_a_new_load_cancels_the_one_in_progress(qtbot, tiny_model, other_tiny, t
     failed = []
     win.engine.worker.failed.connect(lambda serial, kind, message: failed.append((serial, kind, message)))
     assert started.wait(20)
-    slow_serial = win._model_serial
-    win.load_model("other")
+    slow_serial = win.models.load_serial
+    win.models.load_model("other")
     release.set()
     qtbot.waitUntil(lambda: win.model_info is not None, timeout=20000)
     assert built == [other_tiny]

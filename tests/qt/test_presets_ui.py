@@ -101,7 +101,7 @@ def test_new_duplicate_rename_are_undoable(window):
     window.actions["duplicate"].trigger()
     copy_id = window.library_list.current_id()
     assert window.library.get(copy_id).name == "New preset (copy)"
-    window.ask_text = lambda *args: "Harbour test"
+    window.prompts.ask_text = lambda *args: "Harbour test"
     window.actions["rename"].trigger()
     assert window.library.get(copy_id).name == "Harbour test"
     for _ in range(3):
@@ -146,7 +146,7 @@ def test_export_writes_a_file_the_core_check_accepts(window, tmp_path):
     window.library_list.set_chosen([r.id for r in records])
     target = tmp_path / "shared" / "harbour-presets.json"
     target.parent.mkdir()
-    window.ask_save_path = lambda *args: str(target)
+    window.prompts.ask_save_path = lambda *args: str(target)
     window.actions["export"].trigger()
     assert window.errors == []
     verdict = check_file(target)
@@ -160,7 +160,7 @@ def test_import_of_a_broken_file_shows_the_reason(window, tmp_path):
     with pytest.raises(LibraryError) as expected:
         read_settings(broken)
     count = len(window.library.records())
-    window.ask_open_path = lambda *args: str(broken)
+    window.prompts.ask_open_path = lambda *args: str(broken)
     window.actions["import"].trigger()
     assert window.errors == [str(expected.value)]
     assert len(window.library.records()) == count
@@ -173,8 +173,8 @@ def test_import_previews_then_adds_presets(window, tmp_path):
     source = tmp_path / "from-a-colleague.json"
     export_settings([Preset("Quay notice", temperature=0.6, top_p=0.9)], source)
     seen = []
-    window.confirm_import = lambda plan, name: seen.append([i.action for i in plan.items]) or {}
-    window.import_settings(str(source))
+    window.prompts.confirm_import = lambda plan, name: seen.append([i.action for i in plan.items]) or {}
+    window.presets.import_settings(str(source))
     assert seen == [["add"]]
     assert window.library.find("Quay notice").preset.top_p == 0.9
 
@@ -194,8 +194,8 @@ def test_import_conflict_choice_from_the_preview(window, qtbot, tmp_path):
     assert [i.action for i in plan.items] == ["conflict"]
     combo = dialog.combos[record.name]
     combo.setCurrentIndex(combo.findData("overwrite"))
-    window.confirm_import = lambda plan, name: dialog.choices()
-    window.import_settings(str(source))
+    window.prompts.confirm_import = lambda plan, name: dialog.choices()
+    window.presets.import_settings(str(source))
     assert window.library.get(record.id).preset.temperature == changed.temperature
 
 

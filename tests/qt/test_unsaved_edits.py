@@ -19,7 +19,7 @@ from test_presets_ui import highlight_first, retype
 from samplewright.core.library.library import PresetLibrary
 from samplewright.core.library.settings_file import check_file
 from samplewright.core.presets import Preset, PresetError, validate_field
-from samplewright.qt.main_window import MainWindow
+from samplewright.qt.prompts import QtPrompts
 
 
 def stored(window, record_id):
@@ -80,7 +80,7 @@ def test_an_invalid_draft_can_only_be_discarded_and_says_why(window, qtbot):
     record = highlight_first(window)
     other = window.library.records()[1]
     retype(qtbot, window.editor.inputs["top_p"], "1.5")
-    window.ask_unsaved = lambda name, problem: MainWindow.ask_unsaved(window, name, problem)
+    window.prompts.ask_unsaved = lambda name, problem: QtPrompts.ask_unsaved(window.prompts, name, problem)
     seen = []
     answer_next_message_box("Discard", seen)
     window.library_list.select(other.id)
@@ -107,7 +107,7 @@ def test_closing_the_window_asks_and_cancel_keeps_it_open(window, qtbot):
 def test_delete_and_rename_ask_first(window, qtbot, action):
     record = highlight_first(window)
     retype(qtbot, window.editor.inputs["temperature"], "0.45")
-    window.ask_text = lambda *args: "Pier notice"
+    window.prompts.ask_text = lambda *args: "Pier notice"
     window.answers.append("cancel")
     window.actions[action].trigger()
     assert stored(window, record.id) == record  # cancelled: nothing happened
@@ -185,7 +185,7 @@ def test_a_removed_library_folder_keeps_the_draft_and_offers_a_copy(window, qtbo
     shutil.rmtree(window.library.folder)
     copy_path = tmp_path / "elsewhere" / "my-draft.json"
     copy_path.parent.mkdir()
-    window.ask_save_path = lambda *args: str(copy_path)
+    window.prompts.ask_save_path = lambda *args: str(copy_path)
     window.copy_wanted = True
     window.actions["save"].trigger()
 
@@ -206,16 +206,16 @@ def test_the_saved_copy_goes_back_into_the_library_when_the_folder_returns(windo
     backup = tmp_path / "backup"
     shutil.copytree(window.library.folder, backup)
     shutil.rmtree(window.library.folder)
-    window.ask_save_path = lambda *args: str(tmp_path / "my-draft.json")
+    window.prompts.ask_save_path = lambda *args: str(tmp_path / "my-draft.json")
     window.copy_wanted = True
     window.actions["save"].trigger()
     shutil.copytree(backup, window.library.folder)  # the drive is back
     window.actions["rescan"].trigger()
 
     previews = []
-    window.confirm_import = lambda plan, name: (
+    window.prompts.confirm_import = lambda plan, name: (
         previews.append([i.action for i in plan.items]) or {record.name: "overwrite"}
     )
-    window.import_settings(str(tmp_path / "my-draft.json"))
+    window.presets.import_settings(str(tmp_path / "my-draft.json"))
     assert previews == [["conflict"]]  # same name, other parameters: the user chooses
     assert stored(window, record.id).preset.parameters() == draft.parameters()

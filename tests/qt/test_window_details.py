@@ -53,8 +53,8 @@ def test_a_failed_model_switch_keeps_the_loaded_model(qtbot, tiny_loaded, tmp_pa
     assert "tiny test model" in win.model_label.text()
     assert f"{tiny_loaded.n_parameters:,} parameters" in win.model_label.text()  # under a million: in full
     errors = []
-    win.show_error = lambda title, detail=None: errors.append(detail)
-    win.ask_folder = lambda title: str(tmp_path / "missing-model")
+    win.prompts.show_error = lambda title, detail=None: errors.append(detail)
+    win.prompts.ask_folder = lambda title: str(tmp_path / "missing-model")
     win.actions["model_folder"].trigger()
     qtbot.waitUntil(lambda: bool(errors), timeout=10000)
     assert "missing-model" in errors[0]
@@ -72,7 +72,7 @@ def test_copy_puts_the_inspected_sample_on_the_clipboard(window, qtbot):
 def test_rename_shows_in_the_editor(window):
     record = window.library.records()[0]
     window.library_list.select(record.id)
-    window.ask_text = lambda *args: "Pier notice"
+    window.prompts.ask_text = lambda *args: "Pier notice"
     window.actions["rename"].trigger()
     assert window.editor.inputs["name"].text() == "Pier notice"
     window.undo_action.trigger()
@@ -110,8 +110,8 @@ def test_messages_name_menu_entries_that_exist(window):
     from samplewright.core.errors import SamplewrightError
     from samplewright.qt.workers import EngineWorker
 
-    window.offer_copy = lambda title, text: window.offered.append(text) or False
-    window._save_failed("Quay notice", "The folder is read-only.")
+    window.prompts.offer_copy = lambda title, text: window.offered.append(text) or False
+    window.presets.report_save_failure("Quay notice", "The folder is read-only.")
     paths = menu_paths(window)
     assert any(path in window.offered[-1] for path in paths), window.offered[-1]
     try:
@@ -126,11 +126,11 @@ def test_new_samples_without_an_inspected_token_names_the_preset(window, qtbot):
     untick_all(window)
     tick(window, 2)
     generate(window, qtbot, samples=1, tokens=3)
-    window._clear_inspection()
+    window.audition.clear_inspection()
     window.actions["regenerate"].trigger()
     assert window.session.presets[0].name in window.statusBar().currentMessage()
     assert "first column" in window.statusBar().currentMessage()
-    qtbot.waitUntil(lambda: not window.running(), timeout=30000)
+    qtbot.waitUntil(lambda: not window.audition.running(), timeout=30000)
 
 
 def test_controls_have_accessible_names(window):
@@ -191,7 +191,7 @@ def test_passage_file_name_is_shown_after_restart(make_window, tmp_path):
     path.write_text("From Monday the first sailing leaves at six.\n", encoding="utf-8")
     make = make_window
     first = make()
-    first.open_passage(str(path))
+    first.models.open_passage(str(path))
     first.close()
     second = make()
     assert second.passage.source == str(path)

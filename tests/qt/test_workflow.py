@@ -41,8 +41,8 @@ def generate(window, qtbot, samples=2, tokens=8, timeout=60000):
     window.samples_spin.setValue(samples)
     window.tokens_spin.setValue(tokens)
     qtbot.mouseClick(window.generate_button, Qt.LeftButton)
-    assert window.running()
-    qtbot.waitUntil(lambda: not window.running(), timeout=timeout)
+    assert window.audition.running()
+    qtbot.waitUntil(lambda: not window.audition.running(), timeout=timeout)
 
 
 def inspect_a_token(window, qtbot, tokens):
@@ -51,14 +51,14 @@ def inspect_a_token(window, qtbot, tokens):
     tick(window, 2)
     generate(window, qtbot, samples=2, tokens=tokens)
     column, row, sample = with_tokens(window, least=1)
-    window.inspect(column, row, 0)
+    window.audition.inspect(column, row, 0)
     return column, row, sample
 
 
 def test_open_generate_click_token_shows_step(window, qtbot, tmp_path):
     path = tmp_path / "notice.txt"
     path.write_text(PASSAGE + "\n", encoding="utf-8")
-    window.ask_open_path = lambda *args: str(path)
+    window.prompts.ask_open_path = lambda *args: str(path)
     window.actions["open"].trigger()
     assert window.passage.text() == read_passage(path)
 
@@ -114,7 +114,7 @@ def test_step_control_moves_through_the_sample(window, qtbot):
     tick(window, 2)
     generate(window, qtbot, samples=2, tokens=6)
     column, row, sample = with_tokens(window)
-    window.inspect(column, row, 0)
+    window.audition.inspect(column, row, 0)
     plot = window.inspector.plot
     qtbot.waitUntil(lambda: plot.shown is not None and plot.shown.drawn_id == sample.tokens[0].token_id)
     window.actions["next_step"].trigger()
@@ -133,7 +133,7 @@ def test_cancel_mid_run_leaves_window_usable(window, qtbot):
     qtbot.mouseClick(window.generate_button, Qt.LeftButton)
     qtbot.waitUntil(lambda: window.session.done_tokens > 0, timeout=20000)
     qtbot.mouseClick(window.stop_button, Qt.LeftButton)
-    qtbot.waitUntil(lambda: not window.running(), timeout=20000)
+    qtbot.waitUntil(lambda: not window.audition.running(), timeout=20000)
     assert endings == [True]
     assert window.generate_button.isEnabled()
     assert not window.stop_button.isEnabled()
@@ -154,7 +154,7 @@ def test_regenerate_one_preset_keeps_the_other_column(window, qtbot):
     record = window.library.get(ids[1])
     window.library.save(record.edited(dataclasses.replace(record.preset, temperature=0.0)))
     qtbot.mouseClick(window.grid.headers[1].regenerate, Qt.LeftButton)
-    qtbot.waitUntil(lambda: not window.running(), timeout=30000)
+    qtbot.waitUntil(lambda: not window.audition.running(), timeout=30000)
     assert [s.token_ids for s in window.session.samples[0]] == before
     assert window.session.presets[1].temperature == 0.0
     # Temperature 0 is greedy decoding (common practice): every row takes the same top token each step,
@@ -173,7 +173,7 @@ def test_closing_during_a_run_cancels_it(qtbot, tiny_loader, tmp_path):
     qtbot.waitUntil(lambda: win.model_info is not None, timeout=20000)
     win.samples_spin.setValue(16)
     win.tokens_spin.setValue(512)
-    win.generate_all()
+    win.audition.generate_all()
     qtbot.waitUntil(lambda: win.session.done_tokens > 0, timeout=20000)
     win.close()
     assert not win.engine.thread.isRunning()
@@ -195,7 +195,7 @@ def test_event_loop_keeps_serving_during_generation(window, qtbot):
     timer.start()
     generate(window, qtbot, samples=8, tokens=120)
     column, row, _ = with_tokens(window, least=1)
-    window.inspect(column, row, 0)
+    window.audition.inspect(column, row, 0)
     qtbot.waitUntil(lambda: window.inspector.plot.shown is not None, timeout=10000)
     timer.stop()
     gaps = np.diff(ticks)

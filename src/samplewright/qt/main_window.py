@@ -1,9 +1,16 @@
 """The workbench window: presets on the left, passage and audition in the
 middle, the next-token view on the right, a review caution across the top.
 
-The window only arranges views and forwards requests: model loading,
-generation and step views run on the engine thread (``workers.py``); the
-audition's samples live in a core :class:`AuditionSession`.
+The window only builds the layout and wires the parts together. The parts are
+controllers, each given the core models and widgets it needs:
+:class:`~.audition_controller.AuditionController` (runs and the step view),
+:class:`~.preset_controller.PresetController` (editing, saving, import/export),
+:class:`~.library_controller.LibraryController` (following the folder, history, trash),
+:class:`~.library_folder.LibraryFolderController` (which folder is shown) and
+:class:`~.model_controller.ModelController` (the model and the passage). They
+talk through Qt signals and core model events. The commands and menus are
+listed in ``window_actions.py``; questions and messages go through
+:class:`~.prompts.QtPrompts`.
 """
 
 from __future__ import annotations
@@ -12,41 +19,28 @@ from collections.abc import Callable
 from pathlib import Path
 
 from PySide6.QtCore import QSettings, Qt
-from PySide6.QtGui import QAction, QKeySequence, QUndoStack
-from PySide6.QtWidgets import (
-    QCheckBox,
-    QFileDialog,
-    QHBoxLayout,
-    QInputDialog,
-    QLabel,
-    QMainWindow,
-    QMenu,
-    QMessageBox,
-    QProgressBar,
-    QPushButton,
-    QSpinBox,
-    QSplitter,
-    QVBoxLayout,
-    QWidget,
-)
+from PySide6.QtGui import QKeySequence, QUndoStack
+from PySide6.QtWidgets import QLabel, QMainWindow, QProgressBar, QSplitter, QVBoxLayout, QWidget
 
-from ..core.engine.model import DEFAULT_NAME
 from ..core.engine.session import AuditionSession
+from ..core.library.draft import Draft
 from ..core.library.user_state import UserState, default_config_dir
-from . import palette
-from .audition_actions import AuditionActions
+from . import palette, window_actions
+from .audition_controller import AuditionController
+from .audition_controls import QtAuditionControls
 from .audition_view import QtAuditionGrid
-from .library_actions import LibraryActions
+from .library_controller import Favourites, LibraryController
 from .library_dialogs import captioned
-from .library_folder import LibraryFolderActions
+from .library_folder import LibraryFolderController, LibraryInUse, QtLibraryBox, open_first_library
 from .library_panel import QtLibraryList
-from .model_actions import ModelActions
+from .model_controller import ModelController, default_worker
 from .passage_panel import QtPassagePanel
-from .preset_actions import PresetActions
+from .preset_controller import PresetController
 from .preset_editor import QtPresetEditor
+from .prompts import QtPrompts
 from .step_inspector import QtStepInspector
 from .window_state import WindowState
-from .workers import EngineThread, EngineWorker
+from .workers import EngineThread
 
 CAUTION = (
     "⚠ Generated text can be wrong, biased or offensive. A person must review it under your "
@@ -55,27 +49,7 @@ CAUTION = (
 SETTINGS_FILE = "window.ini"
 
 
-def _default_loader(source, progress):
-    from ..core.engine.model import load_model
-
-    return load_model(source, progress)
-
-
-def _default_engine(loaded):
-    from ..core.engine.engine import Engine
-
-    return Engine(loaded)
-
-
-def _default_metrics(samples):
-    from ..core.sampling.metrics import preset_metrics
-
-    return preset_metrics(samples)
-
-
-class MainWindow(
-    AuditionActions, PresetActions, LibraryActions, LibraryFolderActions, ModelActions, WindowState, QMainWindow
-):
+class MainWindow(QMainWindow):
     """The Samplewright workbench.
 
     Args:
@@ -103,43 +77,60 @@ class MainWindow(
         self.config_dir = Path(config_dir) if config_dir else default_config_dir()
         self.settings = QSettings(str(self.config_dir / SETTINGS_FILE), QSettings.IniFormat)
         self.user_state = UserState(self.config_dir)
-        self.library = self._open_first_library(library_dir)
+        self.prompts = QtPrompts(self)
+        library, library_problem = open_first_library(library_dir, self.user_state)
+        self.in_use = LibraryInUse(library, self)
         self.undo_stack = QUndoStack(self)
         self.session = AuditionSession()
-        self.model_info = None
-        self.last_error: str | None = None
+        self.draft = Draft()
         self._closed = False
-        worker = EngineWorker(model_loader or _default_loader, engine_factory or _default_engine, _default_metrics)
-        self.engine = EngineThread(worker, self)
+        self.engine = EngineThread(default_worker(model_loader, engine_factory), self)
         self._build_views()
-        self._init_library_watch()
-        self._build_actions()
-        self._build_menus()
-        self._connect()
-        self._init_audition_state()
-        self.restore_state()
-        self._show_library_folder()
-        if self.library_problem:
-            self._show_library_notice(self.library_problem)
+        self._build_parts()
+        self._build_commands()
+        self._wire()
+        self.state.restore_state()
+        self.folders.show_library_folder()
+        if library_problem:
+            self.library_box.show_notice(library_problem)
         if self.user_state.problem:
             self.statusBar().showMessage(self.user_state.problem, 8000)
         if load_on_start:
-            self.load_model(model_source if model_source is not None else self._saved_model_source())
+            self.models.load_model(model_source if model_source is not None else self.models.saved_source())
+
+    @property
+    def library(self):
+        """The preset library the window shows."""
+        return self.in_use.library
+
+    @property
+    def model_info(self):
+        """What is known of the loaded model, or None while none is loaded."""
+        return self.models.info
 
     # -- construction ----------------------------------------------------------------
     def _build_views(self) -> None:
-        self.library_list = QtLibraryList(self.library, self, self.undo_stack, lambda text: self.show_error(text))
+        favourites = Favourites(self.user_state, self.prompts)
+        report = lambda text: self.prompts.show_error(text)  # noqa: E731 (looked up late: tests replace it)
+        self.library_list = QtLibraryList(self.library, favourites, self.undo_stack, report)
+        self.library_box = QtLibraryBox(self.library_list)
+        self.library_header = self.library_box.header
+        self.library_notice = self.library_box.notice
         self.editor = QtPresetEditor()
         self.passage = QtPassagePanel()
         self.grid = QtAuditionGrid(self.session)
+        self.controls = QtAuditionControls(self.grid)
+        c = self.controls
+        self.samples_spin, self.tokens_spin, self.seed_spin = c.samples_spin, c.tokens_spin, c.seed_spin
+        self.generate_button, self.stop_button = c.generate_button, c.stop_button
         self.inspector = QtStepInspector()
         left = QSplitter(Qt.Vertical)
-        left.addWidget(self._library_box())
+        left.addWidget(self.library_box)
         left.addWidget(_titled("Edit preset", self.editor))
         left.setStretchFactor(1, 2)
         middle = QSplitter(Qt.Vertical)
         middle.addWidget(self.passage)
-        middle.addWidget(self._audition_box())
+        middle.addWidget(self.controls)
         middle.setStretchFactor(1, 3)
         self.splitters = {"main": QSplitter(Qt.Horizontal), "left": left, "middle": middle}
         main = self.splitters["main"]
@@ -170,280 +161,72 @@ class MainWindow(
         self.statusBar().addPermanentWidget(self.model_progress)
         self.statusBar().addPermanentWidget(self.model_label)
 
-    def _audition_box(self) -> QWidget:
-        self.samples_spin = _spin(1, 16, 4, "Samples per preset", "How many samples each preset writes (1–16)")
-        self.tokens_spin = _spin(
-            1,
-            512,
-            48,
-            "New tokens",
-            "The longest continuation, in tokens; a preset's own max_new_tokens can make it shorter",
+    def _build_parts(self) -> None:
+        """The controllers, each with the models and widgets it drives."""
+        status, prompts, presets_list, draft, in_use = (
+            self.statusBar(),
+            self.prompts,
+            self.library_list,
+            self.draft,
+            self.in_use,
         )
-        self.seed_spin = _spin(0, 2**31 - 1, 1234, "Seed", "The random seed; the same seed gives the same samples")
-        self.new_seed_box = QCheckBox("new seed each run")
-        self.new_seed_box.setToolTip("Pick a fresh seed for every run instead of keeping this one")
-        self.generate_button = QPushButton("Generate all")
-        self.stop_button = QPushButton("Stop")
-        self.progress = QProgressBar()
-        self.progress.setAccessibleName("Generation progress")
-        self.progress.setTextVisible(True)
-        self.progress.setFormat("%v / %m tokens")
-        controls = QHBoxLayout()
-        for label, widget in (
-            ("Samples", self.samples_spin),
-            ("New tokens", self.tokens_spin),
-            ("Seed", self.seed_spin),
-        ):
-            caption = QLabel(label)
-            caption.setBuddy(widget)
-            controls.addWidget(caption)
-            controls.addWidget(widget)
-        controls.addWidget(self.new_seed_box)
-        controls.addStretch(1)
-        controls.addWidget(self.generate_button)
-        controls.addWidget(self.stop_button)
-        box = QWidget()
-        layout = QVBoxLayout(box)
-        layout.setContentsMargins(0, 0, 0, 0)
-        layout.addWidget(QLabel("<b>Audition</b> — presets side by side; sample rows share their random draws"))
-        layout.addLayout(controls)
-        layout.addWidget(self.progress)
-        layout.addWidget(self.grid, 1)
-        return box
+        self.models = ModelController(
+            self.engine, self.settings, prompts, self.model_label, self.model_progress, self.passage, self
+        )
+        model_name = lambda: self.models.info.name if self.models.info else None  # noqa: E731
+        self.presets = PresetController(draft, in_use, self.editor, presets_list, prompts, status, model_name, self)
+        settle, current = self.presets.settle_draft, self.presets.current_record
+        self.library_tools = LibraryController(
+            in_use, draft, settle, current, presets_list, self.undo_stack, prompts, status, self
+        )
+        self.folders = LibraryFolderController(
+            in_use,
+            self.user_state,
+            draft,
+            settle,
+            self.library_box,
+            presets_list,
+            self.undo_stack,
+            self,
+            prompts,
+            status,
+            self,
+        )
+        views = (self.controls, self.grid, self.inspector, presets_list, self.passage)
+        self.audition = AuditionController(self.session, self.engine, draft, in_use, prompts, status, *views, self)
+        self.state = WindowState(self.settings, self, self.splitters, self.passage, self.controls, presets_list, in_use)
+        self.library_watch, self.recent_menu = self.library_tools.watch, self.folders.recent_menu
 
-    def _action(self, text: str, slot: Callable, shortcut=None, tip: str = "") -> QAction:
-        action = QAction(text, self)
-        if shortcut is not None:
-            action.setShortcut(QKeySequence(shortcut))
-        action.setToolTip(f"{tip or text} ({action.shortcut().toString()})" if shortcut else (tip or text))
-        action.setStatusTip(tip or text)
-        action.triggered.connect(lambda _=False: slot())
-        self.addAction(action)
-        return action
-
-    def _build_actions(self) -> None:
-        a = self._action
-        self.actions = {
-            "open": a("Open passage…", self.open_passage_dialog, QKeySequence.Open, "Open a .txt or .md passage"),
-            "import": a(
-                "Import settings file…",
-                self.import_settings,
-                "Ctrl+I",
-                "Bring presets from a settings file, or a preset saved as a copy",
-            ),
-            "export": a(
-                "Export chosen presets…",
-                self.export_chosen,
-                "Ctrl+E",
-                "Write the ticked presets to a settings file to share",
-            ),
-            "library_folder": a(
-                "Use library folder…",
-                self.choose_library_folder,
-                "Ctrl+Shift+O",
-                "Show the presets in another folder, for example your team's shared folder",
-            ),
-            "own_library": a(
-                "Back to my own library",
-                self.use_own_library,
-                None,
-                "Show the presets in your own library folder again",
-            ),
-            "quit": a("Quit", self.close, QKeySequence.Quit),
-            "copy": a(
-                "Copy sample text",
-                self.copy_current_sample,
-                "Ctrl+Shift+C",
-                "Copy the text of the sample being inspected",
-            ),
-            "new": a("New preset", self.new_preset, QKeySequence.New, "Add a preset with neutral settings"),
-            "duplicate": a("Duplicate preset", self.duplicate_preset, "Ctrl+D", "Copy the highlighted preset"),
-            "rename": a("Rename preset…", self.rename_preset, "F2", "Give the highlighted preset a new name"),
-            "delete": a(
-                "Delete preset",
-                self.delete_preset,
-                QKeySequence.Delete,
-                "Move the highlighted preset to the library's trash (undo with Ctrl+Z)",
-            ),
-            "favourite": a(
-                "Favourite ★",
-                self.library_list.toggle_favourite,
-                "Ctrl+B",
-                "Mark or unmark the highlighted preset as a favourite",
-            ),
-            "save": a("Save preset", self.editor.save, QKeySequence.Save, "Save the edited preset to the library"),
-            "save_copy": a(
-                "Save a copy as file…",
-                self.save_copy_as_file,
-                QKeySequence.SaveAs,
-                "Write the edited preset, unsaved edits included, to a file of your choice",
-            ),
-            "history": a(
-                "History…",
-                self.show_history,
-                "Ctrl+H",
-                "Earlier revisions of the highlighted preset, what changed, and a way back",
-            ),
-            "compare": a(
-                "Compare with…",
-                self.compare_presets,
-                "Ctrl+Shift+D",
-                "Show the highlighted preset and another one side by side, field by field",
-            ),
-            "trash": a(
-                "Deleted presets…",
-                self.show_trash,
-                "Ctrl+Shift+T",
-                "List the presets deleted from this library and restore one",
-            ),
-            "rescan": a("Reload library", self.rescan_library, "F5", "Pick up presets others changed"),
-            "generate": a("Generate all", self.generate_all, "Ctrl+Return", "Write samples for every ticked preset"),
-            "regenerate": a(
-                "New samples for this preset",
-                self.regenerate_current,
-                "Ctrl+R",
-                "Write new samples for the inspected preset; the other columns stay",
-            ),
-            "stop": a("Stop", self.stop_generation, "Esc", "Stop the run; samples so far are kept"),
-            "prev_step": a("Previous step", lambda: self.inspector.move(-1), "Alt+Left"),
-            "next_step": a("Next step", lambda: self.inspector.move(+1), "Alt+Right"),
-            "model_folder": a("Open model folder…", self.choose_model_folder, None, "Load a transformers model folder"),
-            "model_gguf": a("Open GGUF file…", self.choose_model_file, None, "Load a .gguf model file"),
-            "model_default": a(
-                "Use the default model", lambda: self.load_model(None), None, f"Load the default model, {DEFAULT_NAME}"
-            ),
-            "legend": a("What the letters mean", self.show_legend, "F1"),
-        }
-        # Delete only acts in the preset list, never on text being edited elsewhere in the window.
-        self.actions["delete"].setShortcutContext(Qt.WidgetWithChildrenShortcut)
-        self.removeAction(self.actions["delete"])
-        self.library_list.tree.addAction(self.actions["delete"])
+    def _build_commands(self) -> None:
+        """The window's actions and menus (the commands themselves are listed in ``window_actions.py``)."""
+        commands = window_actions.window_commands(self)
+        self.actions = {command.key: window_actions.make_action(self, command) for command in commands}
         self.undo_action = self.undo_stack.createUndoAction(self, "Undo")
         self.undo_action.setShortcut(QKeySequence.Undo)
         self.redo_action = self.undo_stack.createRedoAction(self, "Redo")
         self.redo_action.setShortcut(QKeySequence.Redo)
-        self.passage.set_open_action(self.actions["open"])
-        self.generate_button.setToolTip(self.actions["generate"].toolTip())
-        self.stop_button.setToolTip(self.actions["stop"].toolTip())
-        for key in ("new", "duplicate", "rename", "delete"):
-            self.library_list.add_button(self.actions[key]).setText(self.actions[key].text().split()[0])
-        self.library_list.set_context_actions(
-            [
-                self.actions[k] if k else None
-                for k in ("history", "compare", None, "duplicate", "rename", "delete", "favourite")
-            ]
+        window_actions.place_actions(self)
+        extra = {"undo": self.undo_action, "redo": self.redo_action, "recent_folders": self.recent_menu}
+        window_actions.build_menus(self, {**self.actions, **extra})
+
+    def _wire(self) -> None:
+        """Connect the parts: what one announces, another follows."""
+        self.models.model_switched.connect(self.audition.forget_old_model_samples)
+        self.models.model_ready.connect(lambda info: self.audition.set_model_ready(True))
+        self.audition.state_changed.connect(
+            lambda *state: window_actions.follow_audition(self.actions, *state)  # type: ignore[misc]
         )
-
-    def _build_menus(self) -> None:
-        bar = self.menuBar()
-        menus = {
-            "&File": [
-                "open",
-                "import",
-                "export",
-                None,
-                "library_folder",
-                self._build_recent_menu(),
-                "own_library",
-                None,
-                "quit",
-            ],
-            "&Edit": [self.undo_action, self.redo_action, None, "copy"],
-            "&Presets": [
-                "new",
-                "duplicate",
-                "rename",
-                "delete",
-                "favourite",
-                None,
-                "save",
-                "save_copy",
-                None,
-                "history",
-                "compare",
-                "trash",
-                None,
-                "rescan",
-            ],
-            "&Audition": ["generate", "regenerate", "stop", None, "prev_step", "next_step"],
-            "&Model": ["model_folder", "model_gguf", "model_default"],
-            "&Help": ["legend"],
-        }
-        for title, entries in menus.items():
-            menu = bar.addMenu(title)
-            for entry in entries:
-                if entry is None:
-                    menu.addSeparator()
-                elif isinstance(entry, QMenu):
-                    menu.addMenu(entry)
-                else:
-                    menu.addAction(self.actions[entry] if isinstance(entry, str) else entry)
-
-    def _connect(self) -> None:
-        self.generate_button.clicked.connect(self.generate_all)
-        self.stop_button.clicked.connect(self.stop_generation)
-        self.library_list.current_changed.connect(self._on_current_preset_changed)
-        self.editor.save_requested.connect(self.save_edited_preset)
-        self.editor.revert_button.clicked.connect(self._on_reverted)  # runs after the editor's own revert
-        self.passage.passage_settled.connect(self.count_passage)
-        self.passage.open_requested.connect(self.open_passage)
-        worker = self.engine.worker
-        worker.load_progress.connect(self._on_load_progress)
-        worker.model_ready.connect(self._on_model_ready)
-        worker.failed.connect(self._on_job_failed)
-        worker.passage_counted.connect(self._on_passage_counted)
-        self._connect_audition()
-
-    # -- messages and questions (tests replace these) -------------------------------------
-    def show_error(self, message: str, detail: str | None = None) -> None:
-        """Show a problem in a message box (``detail``, when given, is the message and the first is the title)."""
-        title, text = ("Samplewright", message) if detail is None else (message, detail)
-        self.last_error = text
-        QMessageBox.warning(self, title, text)
-
-    def ask_open_path(self, title: str, file_filter: str) -> str | None:
-        """Ask for a file to open; None when cancelled."""
-        path, _ = QFileDialog.getOpenFileName(self, title, "", file_filter)
-        return path or None
-
-    def ask_save_path(self, title: str, file_filter: str, suggested: str = "") -> str | None:
-        """Ask for a file to write; None when cancelled."""
-        path, _ = QFileDialog.getSaveFileName(self, title, suggested, file_filter)
-        return path or None
-
-    def ask_folder(self, title: str) -> str | None:
-        """Ask for a folder; None when cancelled."""
-        return QFileDialog.getExistingDirectory(self, title) or None
-
-    def ask_text(self, title: str, label: str, text: str) -> str | None:
-        """Ask for one line of text; None when cancelled."""
-        value, ok = QInputDialog.getText(self, title, label, text=text)
-        return value if ok else None
-
-    def show_legend(self) -> None:
-        """Explain the plot's colours and letters."""
-        from .palette import stage_legend
-
-        QMessageBox.information(
-            self,
-            "Reading the next-token view",
-            (
-                "Grey bars: the model's own distribution. Coloured bars: the distribution after each preset "
-                "(numbered as in the audition columns).\n\nA dashed outline with a letter marks a token a preset "
-                "removed; the letter names the stage that removed it:\n"
-                + stage_legend()
-                + "\n\nThe shaded row with ▶ is the token the inspected sample drew."
-            ),
-        )
+        self.folders.own_library_shown.connect(lambda own: self.actions["own_library"].setEnabled(not own))
+        self.audition.update_buttons()
 
     def closeEvent(self, event) -> None:
         """Ask about unsaved edits, then cancel any run, stop the engine thread and keep the window's state."""
         if not self._closed:
-            if not self.settle_draft():
+            if not self.presets.settle_draft():
                 event.ignore()
                 return
             self._closed = True
-            self.save_state()
+            self.state.save_state()
             self.session.abandon()
             # Waiting on the engine can take a moment (a model load stops at its next progress report).
             self.statusBar().showMessage("Closing…")
@@ -462,12 +245,3 @@ def _titled(title: str, widget: QWidget) -> QWidget:
     layout.setContentsMargins(0, 0, 0, 0)
     box.setLayout(layout)
     return box
-
-
-def _spin(low: int, high: int, value: int, name: str, tip: str) -> QSpinBox:
-    spin = QSpinBox()
-    spin.setRange(low, high)
-    spin.setValue(value)
-    spin.setAccessibleName(name)
-    spin.setToolTip(tip)
-    return spin

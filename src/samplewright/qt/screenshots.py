@@ -64,7 +64,7 @@ def render(outdir: Path, model_seconds: float = 600) -> list[Path]:
         # The scratch library stands in for the user's own, so the header reads as it would for them.
         os.environ["SAMPLEWRIGHT_LIBRARY_DIR"] = str(Path(scratch) / "library")
         window = MainWindow(library_dir=Path(scratch) / "library", config_dir=Path(scratch) / "config")
-        window.show_error = lambda message, detail=None: print(f"error: {detail or message}", file=sys.stderr)
+        window.prompts.show_error = lambda message, detail=None: print(f"error: {detail or message}", file=sys.stderr)
         window.resize(*SIZE)
         window.show()
         _wait(app, lambda: window.model_info is not None, model_seconds, "the model to load")
@@ -74,12 +74,12 @@ def render(outdir: Path, model_seconds: float = 600) -> list[Path]:
         window.seed_spin.setValue(7)
         files = [outdir / "1-ready.png", outdir / "2-audition.png", outdir / "3-step.png"]
         _save(app, window, files[0])
-        window.generate_all()
-        _wait(app, lambda: not window.running(), 900, "the audition")
+        window.audition.generate_all()
+        _wait(app, lambda: not window.audition.running(), 900, "the audition")
         _save(app, window, files[1])
         column = min(1, len(window.session.samples) - 1)
         sample = window.session.samples[column][0]
-        window.inspect(column, 0, _interesting_step(sample))
+        window.audition.inspect(column, 0, _interesting_step(sample))
         _wait(app, lambda: window.inspector.plot.shown is not None, 120, "the step view")
         _save(app, window, files[2])
         window.close()

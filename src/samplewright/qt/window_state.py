@@ -7,10 +7,37 @@ from __future__ import annotations
 import json
 
 from PySide6.QtCore import QByteArray, QSettings
+from PySide6.QtWidgets import QMainWindow, QSplitter
+
+from .audition_controls import QtAuditionControls
+from .library_folder import LibraryInUse
+from .library_panel import QtLibraryList
+from .passage_panel import QtPassagePanel
 
 
 class WindowState:
-    """Mixed into :class:`~samplewright.qt.main_window.MainWindow`."""
+    """Keeps what the window shows in ``settings`` and brings it back.
+
+    Args:
+        settings: the window's settings file.
+        window: the main window (its geometry).
+        splitters: the window's splitters, by a name kept in the file.
+        passage, controls, library_list: the widgets whose values are kept.
+        in_use: the library whose presets were ticked.
+    """
+
+    def __init__(
+        self,
+        settings: QSettings,
+        window: QMainWindow,
+        splitters: dict[str, QSplitter],
+        passage: QtPassagePanel,
+        controls: QtAuditionControls,
+        library_list: QtLibraryList,
+        in_use: LibraryInUse,
+    ):
+        self.settings, self.window, self.splitters = settings, window, splitters
+        self.passage, self.controls, self.library_list, self.in_use = passage, controls, library_list, in_use
 
     def restore_state(self) -> None:
         """Bring back the window layout, passage, selection and audition settings of last time.
@@ -20,8 +47,8 @@ class WindowState:
         """
         s = self.settings
         geometry = s.value("window/geometry")
-        if not (isinstance(geometry, QByteArray) and self.restoreGeometry(geometry)):
-            self.resize(1400, 900)
+        if not (isinstance(geometry, QByteArray) and self.window.restoreGeometry(geometry)):
+            self.window.resize(1400, 900)
         for name, splitter in self.splitters.items():
             state = s.value(f"splitters/{name}")
             if isinstance(state, QByteArray):
@@ -33,32 +60,34 @@ class WindowState:
             self.passage.set_text(text, _setting_str(s, "passage/source") or None)
         self.fill_example_passage()
         for key, spin, default in (
-            ("audition/samples", self.samples_spin, 4),
-            ("audition/new_tokens", self.tokens_spin, 48),
-            ("audition/seed", self.seed_spin, 1234),
+            ("audition/samples", self.controls.samples_spin, 4),
+            ("audition/new_tokens", self.controls.tokens_spin, 48),
+            ("audition/seed", self.controls.seed_spin, 1234),
         ):
             spin.setValue(min(max(_setting_int(s, key, default), spin.minimum()), spin.maximum()))
-        self.new_seed_box.setChecked(s.value("audition/new_seed", "false") == "true")
+        self.controls.new_seed_box.setChecked(s.value("audition/new_seed", "false") == "true")
+        library = self.in_use.library
         chosen = _setting_json(s, "audition/chosen", None)
         if not isinstance(chosen, list):
-            chosen = [r.id for r in self.library.records()[:2]]
+            chosen = [r.id for r in library.records()[:2]]
         self.library_list.set_chosen([i for i in chosen if isinstance(i, str)])
-        if self.library_list.current_id() is None and self.library.records():
-            self.library_list.select(self.library.records()[0].id)
+        if self.library_list.current_id() is None and library.records():
+            self.library_list.select(library.records()[0].id)
 
     def save_state(self) -> None:
         """Remember layout, passage, selection and audition settings for next time."""
         s = self.settings
-        s.setValue("window/geometry", self.saveGeometry())
+        s.setValue("window/geometry", self.window.saveGeometry())
         for name, splitter in self.splitters.items():
             s.setValue(f"splitters/{name}", splitter.saveState())
         s.setValue("passage/text", self.passage.text()[:500_000])
         s.setValue("passage/source", self.passage.source or "")
         s.setValue("passage/recent", json.dumps(self.passage.recent))
-        s.setValue("audition/samples", self.samples_spin.value())
-        s.setValue("audition/new_tokens", self.tokens_spin.value())
-        s.setValue("audition/seed", self.seed_spin.value())
-        s.setValue("audition/new_seed", "true" if self.new_seed_box.isChecked() else "false")
+        controls = self.controls
+        s.setValue("audition/samples", controls.samples_spin.value())
+        s.setValue("audition/new_tokens", controls.tokens_spin.value())
+        s.setValue("audition/seed", controls.seed_spin.value())
+        s.setValue("audition/new_seed", "true" if controls.new_seed_box.isChecked() else "false")
         s.setValue("audition/chosen", json.dumps(self.library_list.chosen))
         s.sync()
 

@@ -1,9 +1,14 @@
 """The audition on screen: samples collected token by token as a run reports them.
 
 An :class:`AuditionSession` is the model the window's audition view shows.
-Each run gets a serial number from :meth:`AuditionSession.begin`; events and
-results that carry an older serial are ignored, so a cancelled or superseded
-run can never write into the newer one's samples. No Qt and no torch here.
+Each run has one serial number, given to :meth:`AuditionSession.begin` (the
+window passes the engine's request serial, so one number names the run
+everywhere) or chosen by it; events and results that carry another serial are
+ignored, so a cancelled or superseded run can never write into the newer one's
+samples. The session also keeps what the audition needs between runs: the
+settings of the last full run (for regenerating one column), the library record
+and whether it was an unsaved draft for each column, and the inspected step.
+No Qt and no torch here.
 """
 
 from __future__ import annotations
@@ -23,6 +28,15 @@ class SampleRef:
 
     column: int
     row: int
+
+
+@dataclasses.dataclass(frozen=True)
+class StepRef:
+    """Which step of which sample is inspected: column (preset), row (sample index) and step."""
+
+    column: int
+    row: int
+    step: int
 
 
 class AuditionSession:
@@ -47,38 +61,68 @@ class AuditionSession:
         self.passage_ids: list[int] = []
         self.passage_dropped = 0
         self.columns: list[int] = []  # session column of each preset in the running request
+        self.record_ids: list[str | None] = []  # the library record each column was written from
+        self.drafts: list[bool] = []  # whether each column was written with unsaved edits of its preset
+        self.request: AuditionRequest | None = None  # the last full run: passage, sizes and seed
+        self.inspected: StepRef | None = None
         self.done_tokens = 0
         self.total_tokens = 0
         self.started, self.token_added, self.sample_finished = Emitter(), Emitter(), Emitter()
         self.progress, self.finished, self.failed = Emitter(), Emitter(), Emitter()
 
-    def begin(self, request: AuditionRequest, columns: Sequence[int] | None = None) -> int:
+    def begin(
+        self,
+        request: AuditionRequest,
+        columns: Sequence[int] | None = None,
+        *,
+        serial: int | None = None,
+        record_ids: Sequence[str | None] | None = None,
+        drafts: Sequence[bool] | None = None,
+    ) -> int:
         """Start collecting a new run and return its serial.
 
         Args:
             request: what the run will generate.
             columns: for regenerating some presets only, the session column of
                 each preset in ``request``; ``None`` starts afresh with
-                ``request.presets`` as the columns.
+                ``request.presets`` as the columns (and keeps ``request`` as the
+                last full run).
+            serial: the run's serial (e.g. the engine's request serial); it must be
+                larger than every earlier one. ``None``: the next number.
+            record_ids: the library record of each preset in ``request`` (default: none).
+            drafts: whether each preset in ``request`` is an unsaved draft (default: no).
 
         Raises:
-            ValueError: when ``columns`` does not match the request or the session.
+            ValueError: when ``columns``, ``record_ids`` or ``drafts`` do not match the
+                request or the session, or ``serial`` is not larger than the last one.
         """
+        count = len(request.presets)
+        ids = list(record_ids) if record_ids is not None else [None] * count
+        marks = list(drafts) if drafts is not None else [False] * count
+        if len(ids) != count or len(marks) != count:
+            raise ValueError("record_ids and drafts need one entry per preset")
+        if serial is not None and serial <= self.serial:
+            raise ValueError(f"run serial {serial} is not larger than the last one ({self.serial})")
         if columns is None:
             self.presets = list(request.presets)
             self.samples = [[] for _ in request.presets]
             self.metrics = [None for _ in request.presets]
-            columns = list(range(len(request.presets)))
-        elif len(columns) != len(request.presets) or not all(0 <= c < len(self.presets) for c in columns):
+            self.record_ids, self.drafts = [None] * count, [False] * count
+            self.request, self.inspected = request, None
+            columns = list(range(count))
+        elif len(columns) != count or not all(0 <= c < len(self.presets) for c in columns):
             raise ValueError("each regenerated preset needs an existing column")
-        self.serial += 1
+        self.serial = self.serial + 1 if serial is None else serial
         self.running = True
         self.passage = request.passage
         self.columns = list(columns)
-        for column, preset in zip(self.columns, request.presets, strict=False):
+        for local, (column, preset) in enumerate(zip(self.columns, request.presets, strict=True)):
             self.presets[column] = preset
             self.samples[column] = [Sample(column, row) for row in range(request.samples)]
             self.metrics[column] = None
+            self.record_ids[column], self.drafts[column] = ids[local], marks[local]
+        if self.inspected is not None and self.inspected.column in self.columns:
+            self.inspected = None
         self.done_tokens, self.total_tokens = 0, 0
         self.started.emit(self.serial)
         return self.serial
@@ -103,7 +147,7 @@ class AuditionSession:
 
     def finish(self, serial: int, result: AuditionResult, metrics: Sequence[dict | None]) -> bool:
         """Take the run's final samples and metrics; False for a stale serial."""
-        if serial != self.serial:
+        if serial != self.serial or not self.running:
             return False
         for local, column in enumerate(self.columns):
             final = result.samples[local]
@@ -119,7 +163,7 @@ class AuditionSession:
 
     def fail(self, serial: int, message: str) -> bool:
         """End the run with an error; False for a stale serial."""
-        if serial != self.serial:
+        if serial != self.serial or not self.running:
             return False
         self.running = False
         self.failed.emit(serial, message)
@@ -127,9 +171,7 @@ class AuditionSession:
 
     def abandon(self) -> None:
         """Stop listening to the running run (its later events become stale)."""
-        if self.running:
-            self.serial += 1
-            self.running = False
+        self.running = False
 
     def clear(self) -> None:
         """Forget every column and sample (e.g. after the model changed); a
@@ -137,8 +179,10 @@ class AuditionSession:
         self.abandon()
         self.presets, self.samples, self.metrics = [], [], []
         self.columns, self.passage_ids = [], []
+        self.record_ids, self.drafts = [], []
         self.passage, self.passage_dropped = "", 0
         self.done_tokens = self.total_tokens = 0
+        self.request, self.inspected = None, None
 
     def sample(self, ref: SampleRef) -> Sample | None:
         """The sample at ``ref``, or None when there is no such sample."""
@@ -149,3 +193,44 @@ class AuditionSession:
     def sample_count(self) -> int:
         """The most samples any column holds (rows of the audition grid)."""
         return max((len(column) for column in self.samples), default=0)
+
+    # -- between runs ------------------------------------------------------------------
+    def regenerate_request(self, column: int, preset: Preset) -> AuditionRequest | None:
+        """A request for ``preset`` alone with the last full run's passage, sizes and seed;
+        None when there was no full run or ``column`` is not one of its columns."""
+        last = self.request
+        if last is None or not 0 <= column < len(self.presets):
+            return None
+        return AuditionRequest(
+            last.passage, [preset], samples=last.samples, max_new_tokens=last.max_new_tokens, seed=last.seed
+        )
+
+    def is_draft(self, column: int) -> bool:
+        """Whether ``column`` was written with unsaved edits of its preset."""
+        return 0 <= column < len(self.drafts) and self.drafts[column]
+
+    # -- the inspected step --------------------------------------------------------------
+    def inspect(self, column: int, row: int, step: int) -> StepRef | None:
+        """Make ``step`` of sample ``row`` of ``column`` the inspected step (clamped to the
+        sample's tokens) and return it; None, changing nothing, when that sample has no tokens."""
+        sample = self.sample(SampleRef(column, row))
+        if sample is None or not sample.tokens:
+            return None
+        self.inspected = StepRef(column, row, max(0, min(step, len(sample.tokens) - 1)))
+        return self.inspected
+
+    def clear_inspection(self) -> None:
+        """Inspect no step."""
+        self.inspected = None
+
+    def inspected_sample(self) -> Sample | None:
+        """The sample whose step is inspected, or None."""
+        ref = self.inspected
+        return self.sample(SampleRef(ref.column, ref.row)) if ref is not None else None
+
+    def inspected_text(self) -> str | None:
+        """The text of the inspected step's drawn token, or None."""
+        sample, ref = self.inspected_sample(), self.inspected
+        if sample is None or ref is None or ref.step >= len(sample.tokens):
+            return None
+        return sample.tokens[ref.step].text

@@ -1,0 +1,313 @@
+"""Running auditions: start, stop and regenerate runs, and inspect a step of a sample.
+
+What belongs to the audition (its columns, which were unsaved drafts, the last
+run's settings, the inspected step, the run's serial) lives in the core
+:class:`~samplewright.core.engine.session.AuditionSession`; this controller
+turns clicks into engine requests and engine answers into session calls.
+A run's serial is the engine's request serial, handed to the session, so one
+number names the run. Answers for another serial are dropped. Step views are
+"latest wins": while one is being computed, only the newest click waits.
+"""
+
+from __future__ import annotations
+
+import random
+from collections.abc import Sequence
+
+from PySide6.QtCore import QObject, Signal
+from PySide6.QtGui import QGuiApplication
+from PySide6.QtWidgets import QStatusBar
+
+from ..core.engine.session import AuditionSession, SampleRef
+from ..core.library.draft import Draft
+from ..core.library.records import PresetRecord
+from ..core.presets import Preset
+from ..core.results import AuditionRequest
+from .audition_controls import QtAuditionControls
+from .audition_view import DRAFT_MARK, QtAuditionGrid
+from .library_folder import LibraryInUse
+from .library_panel import QtLibraryList
+from .passage_panel import QtPassagePanel
+from .prompts import QtPrompts
+from .step_inspector import QtStepInspector
+from .workers import EngineThread, StepQuery
+
+
+class AuditionController(QObject):
+    """Drives the audition grid, its controls and the step inspector from the session.
+
+    Args:
+        session: the core audition session the grid shows.
+        engine: the engine thread that generates and computes step views.
+        draft: the editor's draft (a column may be written with its unsaved edits).
+        in_use: which library the window shows (it changes when the user picks another folder).
+        prompts, status: where problems and notes are shown.
+        controls, grid, inspector, library_list, passage: the widgets it reads and drives.
+
+    Signals:
+        state_changed(can_generate, running, can_regenerate): for the window's actions.
+    """
+
+    state_changed = Signal(bool, bool, bool)
+
+    def __init__(
+        self,
+        session: AuditionSession,
+        engine: EngineThread,
+        draft: Draft,
+        in_use: LibraryInUse,
+        prompts: QtPrompts,
+        status: QStatusBar,
+        controls: QtAuditionControls,
+        grid: QtAuditionGrid,
+        inspector: QtStepInspector,
+        library_list: QtLibraryList,
+        passage: QtPassagePanel,
+        parent: QObject | None = None,
+    ):
+        super().__init__(parent)
+        self.session, self.engine, self.draft, self.in_use = session, engine, draft, in_use
+        self.prompts, self.status = prompts, status
+        self.controls, self.grid, self.inspector, self.library_list = controls, grid, inspector, library_list
+        self.passage = passage
+        self.model_ready = False
+        self._step_serial: int | None = None
+        self._step_waiting: StepQuery | None = None
+        worker = engine.worker
+        worker.tokens_ready.connect(self._on_tokens)
+        worker.audition_ready.connect(self._on_audition_ready)
+        worker.step_ready.connect(self._on_step_ready)
+        worker.failed.connect(self._on_failed)
+        session.progress.connect(controls.show_progress)
+        grid.token_clicked.connect(self.inspect)
+        grid.regenerate_requested.connect(self.regenerate_column)
+        inspector.step_chosen.connect(self._on_step_chosen)
+        controls.generate_button.clicked.connect(self.generate_all)
+        controls.stop_button.clicked.connect(self.stop_generation)
+        library_list.chosen_changed.connect(lambda ids: self.update_buttons())
+
+    # -- running -----------------------------------------------------------------------------
+    def running(self) -> bool:
+        """Whether an audition is being generated."""
+        return self.session.running
+
+    def set_model_ready(self, ready: bool) -> None:
+        """Say whether a model is loaded (Generate waits for one)."""
+        self.model_ready = ready
+        self.update_buttons()
+
+    def generate_all(self) -> None:
+        """Write samples for every ticked preset."""
+        problem = self._why_not_generate()
+        if problem:
+            self.prompts.show_error("Cannot generate yet", problem)
+            return
+        controls = self.controls
+        if controls.new_seed_box.isChecked():
+            controls.seed_spin.setValue(random.randrange(2**31))
+        records = [self.in_use.library.get(i) for i in self.library_list.chosen]
+        presets, drafts, notes = self._audition_presets(records)
+        request = AuditionRequest(
+            self.passage.text(),
+            presets,
+            samples=controls.samples_spin.value(),
+            max_new_tokens=controls.tokens_spin.value(),
+            seed=controls.seed_spin.value(),
+        )
+        self.clear_inspection()
+        self._start(request, None, [r.id for r in records], drafts, notes)
+
+    def regenerate_column(self, column: int) -> None:
+        """Write one preset's samples again with the last run's passage, seed and sizes."""
+        session = self.session
+        if session.request is None or self.running() or column >= len(session.presets):
+            return
+        record_id = session.record_ids[column]
+        record = self.in_use.record(record_id)  # picks up a saved edit, or the draft
+        if record is not None:
+            (preset,), drafts, notes = self._audition_presets([record])
+        else:
+            preset, drafts, notes = session.presets[column], [session.is_draft(column)], []
+        request = session.regenerate_request(column, preset)
+        if request is None:
+            return
+        inspected = session.inspected
+        if inspected and inspected.column == column:
+            self.clear_inspection()
+        self._start(request, [column], [record_id], drafts, notes)
+
+    def _audition_presets(self, records: Sequence[PresetRecord]) -> tuple[list[Preset], list[bool], list[str]]:
+        """Each record's preset, or the editor's valid unsaved draft of it, so a value can be tried
+        before it is saved; returns the presets, which are drafts, and notes for the status bar."""
+        presets, drafts, notes = [], [], []
+        for record in records:
+            edits, problem = self.draft.usable_edits(record.id)
+            presets.append(edits or record.preset)
+            drafts.append(edits is not None)
+            if edits is not None:
+                notes.append(f"'{edits.name}' uses your unsaved edits.")
+            elif problem is not None:
+                notes.append(f"'{record.name}' uses its saved version: an edit is not valid ({problem}).")
+        return presets, drafts, notes
+
+    def column_name(self, column: int) -> str:
+        """A column's preset name as the step view shows it, marked when it was an unsaved draft."""
+        name = self.session.presets[column].name
+        return f"{name} {DRAFT_MARK}" if self.session.is_draft(column) else name
+
+    def regenerate_current(self) -> None:
+        """New samples for the preset whose sample is being inspected (else the first column, said so)."""
+        inspected = self.session.inspected
+        column = inspected.column if inspected else 0
+        self.regenerate_column(column)
+        if not inspected and self.running() and self.session.presets:
+            self.status.showMessage(
+                f"Writing new samples for '{self.column_name(column)}', the first column. To choose another "
+                "preset, click a token in its samples first, or use the ↻ button above its column."
+            )
+
+    def _start(self, request: AuditionRequest, columns, record_ids, drafts, notes: list[str]) -> None:
+        if self.running():
+            self.engine.cancel(self.session.serial)
+        serial = self.engine.run_audition(request)
+        self.session.begin(request, columns, serial=serial, record_ids=record_ids, drafts=drafts)
+        for column in columns or range(len(request.presets)):
+            self.grid.mark_draft(column, self.session.is_draft(column))
+        self.controls.show_progress(0, 0)
+        self.status.showMessage(" ".join(["Generating…"] + notes))
+        self.update_buttons()
+
+    def stop_generation(self) -> None:
+        """Ask the running audition to stop after its current token; samples so far stay."""
+        if self.running():
+            self.engine.cancel(self.session.serial)
+            self.status.showMessage("Stopping…")
+
+    def _why_not_generate(self) -> str | None:
+        if not self.model_ready:
+            return "The model is still loading (see the status bar). Try again when it is ready."
+        if not self.passage.text().strip():
+            return "The passage is empty. Type or paste a draft passage, or open one with Ctrl+O."
+        if not self.library_list.chosen:
+            return "No preset is ticked. Tick up to six presets in the list on the left."
+        return None
+
+    def update_buttons(self) -> None:
+        """Enable Generate, Stop and ↻ as the run and the model allow; tell the window's actions."""
+        running = self.running()
+        ready = self.model_ready and bool(self.library_list.chosen)
+        self.controls.generate_button.setEnabled(ready and not running)
+        self.controls.stop_button.setEnabled(running)
+        for header in self.grid.headers:
+            header.regenerate.setEnabled(not running)
+        self.state_changed.emit(ready and not running, running, self.session.request is not None and not running)
+
+    # -- answers from the engine thread ------------------------------------------------------
+    def _on_tokens(self, serial: int, events) -> None:
+        self.session.add_events(serial, events)
+
+    def _on_audition_ready(self, serial: int, result, metrics) -> None:
+        if not self.session.finish(serial, result, metrics):
+            return
+        if result.cancelled:
+            self.status.showMessage("Stopped; the samples so far are kept.", 6000)
+        else:
+            self.status.showMessage(f"Wrote {result.tokens_generated()} tokens in {result.seconds:.1f} s.", 6000)
+        progress = self.controls.progress
+        progress.setValue(progress.maximum() if not result.cancelled else progress.value())
+        self.update_buttons()
+        inspected = self.session.inspected
+        if inspected:
+            self.inspect(inspected.column, inspected.row, inspected.step)
+
+    def _on_failed(self, serial: int, kind: str, message: str) -> None:
+        if kind == "audition" and self.session.fail(serial, message):
+            self.update_buttons()
+            self.status.showMessage("The run stopped.", 6000)
+            if message:
+                self.prompts.show_error("Generation stopped", message)
+        elif kind == "step" and serial == self._step_serial:
+            self._step_serial = None
+            if message:
+                self.status.showMessage(f"Could not show that step: {message}", 8000)
+            self._send_waiting_step()
+
+    # -- inspecting a step -------------------------------------------------------------------
+    def inspect(self, column: int, row: int, step: int) -> None:
+        """Make ``step`` of sample ``row`` of preset ``column`` the current step."""
+        ref = self.session.inspect(column, row, step)
+        sample = self.session.sample(SampleRef(column, row))
+        if ref is None or sample is None:
+            return
+        self.grid.mark(column, row, ref.step)
+        self.inspector.set_sample(column, self.column_name(column), row, len(sample.tokens), ref.step)
+        self._step_waiting = StepQuery(
+            self.session.passage,
+            list(self.session.presets),
+            tuple(sample.token_ids[: ref.step]),
+            sample.tokens[ref.step].token_id,
+            top=self.inspector.plot.top_n,
+        )
+        if self._step_serial is None:
+            self._send_waiting_step()
+
+    def _on_step_chosen(self, step: int) -> None:
+        inspected = self.session.inspected
+        if inspected:
+            self.inspect(inspected.column, inspected.row, step)
+
+    def _send_waiting_step(self) -> None:
+        if self._step_waiting is not None:
+            self._step_serial = self.engine.compute_step(self._step_waiting)
+            self._step_waiting = None
+
+    def _on_step_ready(self, serial: int, view) -> None:
+        if serial != self._step_serial:
+            return
+        self._step_serial = None
+        if self._step_waiting is None:
+            names = [self.column_name(c) for c in range(len(self.session.presets))]
+            self.inspector.plot.show_step(view, names, self.session.inspected_text())
+        self._send_waiting_step()
+
+    def clear_inspection(self) -> None:
+        """Inspect no step: unmark the token and empty the next-token view."""
+        self.session.clear_inspection()
+        self._step_waiting = None
+        if self._step_serial is not None:
+            self.engine.cancel(self._step_serial)  # skipped if still queued; a late answer is dropped
+        self._step_serial = None
+        self.grid.unmark()
+        self.inspector.set_sample(None, None, None)
+        self.inspector.plot.show_step(None, [])
+
+    def clear_audition(self) -> None:
+        """Forget every sample, the last request and the inspected step (e.g. after a model switch)."""
+        if self.running():
+            self.engine.cancel(self.session.serial)
+        self.session.clear()
+        self.clear_inspection()
+        self.grid.clear()
+        self.controls.show_progress(0, 0)
+        self.update_buttons()
+
+    def forget_old_model_samples(self) -> None:
+        """The model changed: clear the samples the old one wrote, and say why."""
+        had_samples = self.session.request is not None
+        self.clear_audition()
+        if had_samples:
+            self.status.showMessage(
+                "The model changed, so the earlier samples were cleared: they were written by the old "
+                "model. Press Generate all to write new ones.",
+                10000,
+            )
+
+    def copy_current_sample(self) -> None:
+        """Copy the inspected sample's text to the clipboard."""
+        sample = self.session.inspected_sample()
+        if sample is None:
+            self.status.showMessage("Click a token of a sample first, then copy.", 5000)
+            return
+        text = sample.text or "".join(t.text for t in sample.tokens)
+        QGuiApplication.clipboard().setText(text)
+        self.status.showMessage("Sample text copied.", 4000)

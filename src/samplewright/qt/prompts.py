@@ -1,0 +1,122 @@
+"""Every message box, question and file chooser the window's parts show, in one object.
+
+Controllers receive a :class:`QtPrompts` and never call ``QMessageBox`` or
+``QFileDialog`` themselves, so a test can replace one question (an attribute of
+the prompts object) with a scripted answer and drive the window without a
+modal dialog blocking it.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from PySide6.QtCore import Qt
+from PySide6.QtWidgets import QDialog, QFileDialog, QInputDialog, QMessageBox, QWidget
+
+from .dialogs import ImportPreviewDialog, ask_conflict_choice
+
+
+class QtPrompts:
+    """Messages and questions shown over ``parent`` (the main window).
+
+    Attributes:
+        last_error: the text of the last problem shown (None before the first).
+    """
+
+    def __init__(self, parent: QWidget):
+        self.parent = parent
+        self.last_error: str | None = None
+
+    def show_error(self, message: str, detail: str | None = None) -> None:
+        """Show a problem in a message box (``detail``, when given, is the message and the first is the title)."""
+        title, text = ("Samplewright", message) if detail is None else (message, detail)
+        self.last_error = text
+        QMessageBox.warning(self.parent, title, text)
+
+    def show_info(self, title: str, text: str) -> None:
+        """Show an explanation in a message box."""
+        QMessageBox.information(self.parent, title, text)
+
+    def ask_open_path(self, title: str, file_filter: str) -> str | None:
+        """Ask for a file to open; None when cancelled."""
+        path, _ = QFileDialog.getOpenFileName(self.parent, title, "", file_filter)
+        return path or None
+
+    def ask_save_path(self, title: str, file_filter: str, suggested: str = "") -> str | None:
+        """Ask for a file to write; None when cancelled."""
+        path, _ = QFileDialog.getSaveFileName(self.parent, title, suggested, file_filter)
+        return path or None
+
+    def ask_folder(self, title: str) -> str | None:
+        """Ask for a folder; None when cancelled."""
+        return QFileDialog.getExistingDirectory(self.parent, title) or None
+
+    def ask_text(self, title: str, label: str, text: str) -> str | None:
+        """Ask for one line of text; None when cancelled."""
+        value, ok = QInputDialog.getText(self.parent, title, label, text=text)
+        return value if ok else None
+
+    def ask_unsaved(self, name: str, problem: str | None) -> str:
+        """Ask about unsaved edits: "save", "discard" or "cancel".
+
+        Args:
+            name: the edited preset's name.
+            problem: why the edits cannot be saved as they are, or None.
+        """
+        box = QMessageBox(
+            QMessageBox.Question, "Unsaved changes", f"'{name}' has changes that are not saved.", parent=self.parent
+        )
+        if problem is None:
+            box.setInformativeText("Save them to the library, discard them, or cancel and keep editing.")
+            box.setStandardButtons(QMessageBox.Save | QMessageBox.Discard | QMessageBox.Cancel)
+            box.setDefaultButton(QMessageBox.Save)
+        else:
+            box.setInformativeText(
+                f"They cannot be saved as they are: {problem}\n\nDiscard them, or cancel and correct the field."
+            )
+            box.setStandardButtons(QMessageBox.Discard | QMessageBox.Cancel)
+            box.setDefaultButton(QMessageBox.Cancel)
+        return {QMessageBox.Save: "save", QMessageBox.Discard: "discard"}.get(box.exec(), "cancel")
+
+    def offer_copy(self, title: str, text: str) -> bool:
+        """Show why a save failed; True when the user wants to save a copy as a file."""
+        box = QMessageBox(QMessageBox.Warning, title, text, parent=self.parent)
+        copy = box.addButton("Save a copy as file…", QMessageBox.AcceptRole)
+        box.addButton("Not now", QMessageBox.RejectRole)
+        box.setDefaultButton(copy)
+        box.exec()
+        return box.clickedButton() is copy
+
+    def ask_conflict_choice(self, message: str) -> str | None:
+        """Ask how to settle a save conflict; a core choice name, or None for "not now"."""
+        return ask_conflict_choice(self.parent, message)
+
+    def confirm_import(self, plan, source: str) -> dict | None:
+        """Show the import preview; the chosen conflict actions, or None when cancelled."""
+        dialog = ImportPreviewDialog(plan, source, self.parent)
+        return dialog.choices() if dialog.exec() else None
+
+    def ask_add_starters(self, folder: Path, other_files: int) -> str:
+        """Ask whether a folder without presets gets the starter presets: "add", "empty" or "cancel"."""
+        box = QMessageBox(
+            QMessageBox.Question,
+            "No presets here",
+            "This folder has no presets. Add the starter presets?",
+            parent=self.parent,
+        )
+        detail = f"{folder}\n\nThe starter presets are examples to tune from; you can delete them later."
+        if other_files:
+            detail += f" The folder holds {other_files} other file(s); they are left as they are."
+        box.setInformativeText(detail)
+        add = box.addButton("Add the starter presets", QMessageBox.AcceptRole)
+        empty = box.addButton("Leave it empty", QMessageBox.NoRole)
+        box.addButton(QMessageBox.Cancel)
+        box.setDefaultButton(add)
+        box.exec()
+        return {add: "add", empty: "empty"}.get(box.clickedButton(), "cancel")
+
+    def open_dialog(self, dialog: QDialog) -> QDialog:
+        """Show ``dialog`` window-modal without blocking, and return it (tests drive it from there)."""
+        dialog.setAttribute(Qt.WA_DeleteOnClose)
+        dialog.open()
+        return dialog
