@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
-from samplewright.core.engine.session import AuditionSession, SampleRef
+import pytest
+
+from samplewright.core.engine.session import AuditionSession, SampleRef, StepRef
 from samplewright.core.presets import Preset
 from samplewright.core.results import AuditionRequest, AuditionResult, Sample, TokenEvent, TokenStep
 
@@ -68,3 +70,45 @@ def test_clear_forgets_every_sample_and_stales_the_running_run():
     assert session.sample(SampleRef(0, 0)) is None and session.sample_count() == 0
     assert session.presets == [] and not session.running
     assert not session.add_events(serial, [event(0, 0, 1)])
+
+
+def test_the_run_serial_can_come_from_outside_and_only_grows():
+    session = AuditionSession()
+    assert session.begin(request(["A"]), serial=7) == 7  # e.g. the engine's request serial
+    assert session.add_events(7, [event(0, 0, 0)]) and not session.add_events(6, [event(0, 0, 1)])
+    with pytest.raises(ValueError):
+        session.begin(request(["A"]), serial=7)
+    assert session.begin(request(["A"])) == 8
+
+
+def test_columns_remember_their_record_and_whether_they_were_drafts():
+    session = AuditionSession()
+    full = request(["A", "B"], samples=1)
+    session.begin(full, record_ids=["rec-a", "rec-b"], drafts=[False, True])
+    assert session.record_ids == ["rec-a", "rec-b"] and [session.is_draft(c) for c in (0, 1, 2)] == [False, True, False]
+    again = session.regenerate_request(1, Preset("B saved"))
+    assert (again.passage, again.samples, again.max_new_tokens, again.seed) == (
+        full.passage,
+        full.samples,
+        full.max_new_tokens,
+        full.seed,
+    )
+    session.begin(again, columns=[1], record_ids=["rec-b"], drafts=[False])
+    assert session.drafts == [False, False] and session.request is full  # the full run's settings stay
+    with pytest.raises(ValueError):
+        session.begin(request(["A", "B"]), drafts=[True])
+    session.clear()
+    assert session.request is None and session.regenerate_request(0, Preset("A")) is None
+
+
+def test_the_inspected_step_is_clamped_and_dropped_when_its_column_is_rewritten():
+    session = AuditionSession()
+    serial = session.begin(request(["A", "B"], samples=1))
+    assert session.inspect(0, 0, 0) is None  # no tokens yet: nothing to inspect
+    session.add_events(serial, [event(0, 0, 0), event(0, 0, 1), event(1, 0, 0)])
+    assert session.inspect(0, 0, 9) == StepRef(0, 0, 1)  # the sample's last step
+    assert session.inspected_text() == "t1" and session.inspected_sample().token_ids == [0, 1]
+    session.begin(request(["B2"], samples=1), columns=[1])
+    assert session.inspected == StepRef(0, 0, 1)  # another column was rewritten
+    session.begin(request(["A2"], samples=1), columns=[0])
+    assert session.inspected is None and session.inspected_text() is None

@@ -86,8 +86,8 @@ def test_the_step_view_uses_the_same_draft(window, qtbot):
 def test_an_invalid_draft_is_not_used(window, qtbot):
     record = edit_wide_preset(window)
     retype(qtbot, window.editor.inputs["temperature"], "7")  # outside 0–5
-    window.samples_spin.setValue(2)
-    window.tokens_spin.setValue(4)
+    window.controls.samples_spin.setValue(2)
+    window.controls.tokens_spin.setValue(4)
     window.audition.generate_all()
     assert "saved version" in window.statusBar().currentMessage()
     qtbot.waitUntil(lambda: not window.audition.running(), timeout=60000)

@@ -31,7 +31,7 @@ def test_history_lists_earlier_revisions_and_shows_the_changed_field(window, qtb
     save_temperature(window, qtbot, "0.6")
     assert window.library.get(record.id).revision == record.revision + 2
 
-    window.actions["history"].trigger()
+    window.menu_actions["history"].trigger()
     dialog = window.findChild(HistoryDialog)
     assert dialog is not None and dialog.isVisible()
     assert column(dialog.revisions, 0) == [str(record.revision + 1), str(record.revision)]
@@ -81,7 +81,7 @@ def test_history_of_a_preset_never_changed_says_so(window):
 def test_compare_shows_the_fields_that_differ(window):
     first, second = window.library.records()[:2]
     window.library_list.select(first.id)
-    window.actions["compare"].trigger()
+    window.menu_actions["compare"].trigger()
     dialog = window.findChild(CompareDialog)
     assert dialog.first.currentData() == first.id and dialog.second.currentData() == second.id
     # Expected from the presets' own stored form: every field except the name and the times.
@@ -97,10 +97,10 @@ def test_compare_shows_the_fields_that_differ(window):
 
 def test_a_deleted_preset_is_restored_from_the_trash_dialog(window, qtbot):
     record = highlight_first(window)
-    window.actions["delete"].trigger()
+    window.menu_actions["delete"].trigger()
     assert record.id not in [r.id for r in PresetLibrary(window.library.folder).records()]
 
-    window.actions["trash"].trigger()
+    window.menu_actions["trash"].trigger()
     dialog = window.findChild(TrashDialog)
     assert column(dialog.table, 0) == [record.name]
     dialog.select_preset(record.name)
@@ -119,8 +119,8 @@ def test_a_deleted_preset_is_restored_from_the_trash_dialog(window, qtbot):
 def test_history_and_compare_are_in_the_presets_menu_and_the_list_menu(window, qtbot):
     presets_menu = next(a.menu() for a in window.menuBar().actions() if a.text() == "&Presets")
     for key in ("history", "compare", "trash", "save_copy"):
-        assert window.actions[key] in presets_menu.actions()
-    assert window.actions["history"].shortcut().toString() == "Ctrl+H"
+        assert window.menu_actions[key] in presets_menu.actions()
+    assert window.menu_actions["history"].shortcut().toString() == "Ctrl+H"
 
     tree = window.library_list.tree
     record = window.library.records()[1]
@@ -150,7 +150,7 @@ def test_compare_survives_a_preset_deleted_by_a_colleague(window, qtbot):
 
     first, second = window.library.records()[:2]
     window.library_list.select(first.id)
-    window.actions["compare"].trigger()
+    window.menu_actions["compare"].trigger()
     dialog = window.findChild(CompareDialog)
     PresetLibrary(window.library.folder, user="colleague").delete(second.id)
     window.library_tools.rescan_library()

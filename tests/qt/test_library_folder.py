@@ -40,7 +40,7 @@ def team_folder(tmp_path):
 
 def switch_to(window, folder):
     window.prompts.ask_folder = lambda title: str(folder)
-    window.actions["library_folder"].trigger()
+    window.menu_actions["library_folder"].trigger()
 
 
 def names_on_disk(folder):
@@ -62,8 +62,8 @@ def test_switching_shows_the_team_folders_presets(window, qtbot, team_folder):
     assert list_names(window) == names_on_disk(team_folder) == sorted(p.name for p in TEAM_PRESETS)
     current = PresetLibrary(team_folder).get(window.library_list.current_id())
     assert window.editor.original == current.preset  # the editor follows the new library
-    assert "ferry-team-presets" in window.library_header.text()
-    assert str(team_folder) in window.library_header.toolTip()
+    assert "ferry-team-presets" in window.library_box.header.text()
+    assert str(team_folder) in window.library_box.header.toolTip()
     assert "ferry-team-presets" in window.windowTitle()
     assert window.library_list.chosen and all(
         i in {r.id for r in window.library.records()} for i in window.library_list.chosen
@@ -75,14 +75,14 @@ def test_switching_shows_the_team_folders_presets(window, qtbot, team_folder):
     PresetLibrary(team_folder, user="colleague").add(Preset("Quay works notice", top_k=20))
     qtbot.waitUntil(lambda: "Quay works notice" in list_names(window), timeout=5000)
     PresetLibrary(own).add(Preset("Only in my own library"))
-    window.actions["rescan"].trigger()
+    window.menu_actions["rescan"].trigger()
     assert "Only in my own library" not in list_names(window)
 
 
 def test_favourites_work_in_the_team_library(window, tmp_path, team_folder):
     switch_to(window, team_folder)
     record = highlight_first(window)
-    window.actions["favourite"].trigger()
+    window.menu_actions["favourite"].trigger()
     state = json.loads((tmp_path / "config" / "state.json").read_text())
     assert record.id in state["favourites"]
     assert not (team_folder / "state.json").exists()  # kept in the user's own folder
@@ -99,7 +99,7 @@ def test_the_choice_is_reopened_at_the_next_start(window, qtbot, tiny_loader, tm
     again = reopen(qtbot, tiny_loader, tmp_path)
     assert again.library.folder == team_folder
     assert list_names(again) == names_on_disk(team_folder)
-    assert again.library_notice.isHidden()
+    assert again.library_box.notice.isHidden()
     again.folders.fill_recent_menu()
     entries = again.recent_menu.actions()
     assert [a.toolTip() for a in entries] == [str(team_folder)] and entries[0].isChecked()
@@ -115,27 +115,27 @@ def test_a_removed_folder_at_start_falls_back_with_a_message(window, qtbot, tiny
     fallback = reopen(qtbot, tiny_loader, tmp_path)
     assert fallback.library.folder == default_library_dir()
     assert list_names(fallback) == names_on_disk(default_library_dir())
-    notice = fallback.library_notice
+    notice = fallback.library_box.notice
     assert notice.isVisibleTo(fallback)
     assert str(team_folder) in notice.text() and "is not there" in notice.text()
     assert "your own library" in notice.text()
-    assert "my own library" in fallback.library_header.text()
+    assert "my own library" in fallback.library_box.header.text()
     fallback.close()
 
     shutil.copytree(backup, team_folder)  # back again: the remembered choice opens
     back = reopen(qtbot, tiny_loader, tmp_path)
-    assert back.library.folder == team_folder and back.library_notice.isHidden()
+    assert back.library.folder == team_folder and back.library_box.notice.isHidden()
 
 
 def test_back_to_my_own_library(window, qtbot, tiny_loader, tmp_path, team_folder):
     own = window.library.folder
-    assert not window.actions["own_library"].isEnabled()
+    assert not window.menu_actions["own_library"].isEnabled()
     switch_to(window, team_folder)
-    assert window.actions["own_library"].isEnabled()
-    window.actions["own_library"].trigger()
+    assert window.menu_actions["own_library"].isEnabled()
+    window.menu_actions["own_library"].trigger()
     assert window.library.folder == own
     assert list_names(window) == names_on_disk(own)
-    assert "my own library" in window.library_header.text()
+    assert "my own library" in window.library_box.header.text()
     window.close()
     assert reopen(qtbot, tiny_loader, tmp_path).library.folder == own
 

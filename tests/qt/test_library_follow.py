@@ -52,10 +52,10 @@ def test_list_follows_a_colleagues_add_change_and_delete(window, qtbot):
 
 def test_reload_picks_up_changes_at_once(window):
     colleague_of(window).add(Preset("Pier works notice", top_k=20))
-    window.actions["rescan"].trigger()
+    window.menu_actions["rescan"].trigger()
     assert "Pier works notice" in list_names(window)
     assert "added 'Pier works notice' (colleague)" in window.statusBar().currentMessage()
-    window.actions["rescan"].trigger()
+    window.menu_actions["rescan"].trigger()
     assert window.statusBar().currentMessage() == "Library reloaded: nothing changed."
 
 

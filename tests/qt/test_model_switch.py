@@ -56,7 +56,7 @@ def test_switching_model_clears_old_samples_and_steps_use_new_model(two_model_wi
     assert win.grid.headers == [] and win.grid.view(0, 0) is None
     qtbot.waitUntil(lambda: win.inspector.plot.shown is None, timeout=5000)
     assert win.session.inspected is None
-    assert not win.actions["regenerate"].isEnabled()
+    assert not win.menu_actions["regenerate"].isEnabled()
     assert "model changed" in win.statusBar().currentMessage()
 
     generate(win, qtbot, samples=1, tokens=4)

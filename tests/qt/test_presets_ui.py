@@ -43,7 +43,7 @@ def test_invalid_value_shows_reason_and_is_not_saved(window, qtbot, field, typed
     else:
         assert field in label.text() and FIELDS[field][2] in label.text()
     assert not editor.save_button.isEnabled()
-    window.actions["save"].trigger()
+    window.menu_actions["save"].trigger()
     assert window.library.get(record.id) == record
 
 
@@ -80,7 +80,7 @@ def test_every_parameter_shows_its_explanation(window):
 
 def test_undo_restores_a_deleted_preset(window):
     record = highlight_first(window)
-    window.actions["delete"].trigger()
+    window.menu_actions["delete"].trigger()
     assert record.name not in [r.name for r in window.library.records()]
     assert record.name not in [
         window.library_list.tree.topLevelItem(i).text(0) for i in range(window.library_list.tree.topLevelItemCount())
@@ -96,13 +96,13 @@ def test_undo_restores_a_deleted_preset(window):
 
 def test_new_duplicate_rename_are_undoable(window):
     before = sorted(r.name for r in window.library.records())
-    window.actions["new"].trigger()
+    window.menu_actions["new"].trigger()
     assert "New preset" in [r.name for r in window.library.records()]
-    window.actions["duplicate"].trigger()
+    window.menu_actions["duplicate"].trigger()
     copy_id = window.library_list.current_id()
     assert window.library.get(copy_id).name == "New preset (copy)"
     window.prompts.ask_text = lambda *args: "Harbour test"
-    window.actions["rename"].trigger()
+    window.menu_actions["rename"].trigger()
     assert window.library.get(copy_id).name == "Harbour test"
     for _ in range(3):
         window.undo_action.trigger()
@@ -130,7 +130,7 @@ def test_search_and_tag_filter_hide_other_presets(window):
 
 def test_favourite_is_kept_in_the_user_state(window, tmp_path):
     record = highlight_first(window)
-    window.actions["favourite"].trigger()
+    window.menu_actions["favourite"].trigger()
     state = json.loads((tmp_path / "config" / "state.json").read_text())
     assert record.id in state["favourites"]
     window.library_list.favourites_only.setChecked(True)
@@ -147,7 +147,7 @@ def test_export_writes_a_file_the_core_check_accepts(window, tmp_path):
     target = tmp_path / "shared" / "harbour-presets.json"
     target.parent.mkdir()
     window.prompts.ask_save_path = lambda *args: str(target)
-    window.actions["export"].trigger()
+    window.menu_actions["export"].trigger()
     assert window.errors == []
     verdict = check_file(target)
     assert all(r.name in verdict for r in records)
@@ -161,7 +161,7 @@ def test_import_of_a_broken_file_shows_the_reason(window, tmp_path):
         read_settings(broken)
     count = len(window.library.records())
     window.prompts.ask_open_path = lambda *args: str(broken)
-    window.actions["import"].trigger()
+    window.menu_actions["import"].trigger()
     assert window.errors == [str(expected.value)]
     assert len(window.library.records()) == count
 

@@ -109,10 +109,10 @@ def test_delete_and_rename_ask_first(window, qtbot, action):
     retype(qtbot, window.editor.inputs["temperature"], "0.45")
     window.prompts.ask_text = lambda *args: "Pier notice"
     window.answers.append("cancel")
-    window.actions[action].trigger()
+    window.menu_actions[action].trigger()
     assert stored(window, record.id) == record  # cancelled: nothing happened
     window.answers.append("discard")
-    window.actions[action].trigger()
+    window.menu_actions[action].trigger()
     library = PresetLibrary(window.library.folder)
     if action == "delete":
         assert record.id not in [r.id for r in library.records()]
@@ -140,7 +140,7 @@ def test_a_colleagues_save_in_between_goes_through_the_conflict_dialog(window, q
 
     seen = []
     answer_next_message_box("Keep mine as a copy", seen)
-    window.actions["save"].trigger()
+    window.menu_actions["save"].trigger()
     assert seen and "colleague" in seen[0]["text"]
     library = PresetLibrary(window.library.folder)
     assert library.get(record.id) == theirs  # theirs untouched
@@ -156,7 +156,7 @@ def test_revert_after_a_colleagues_save_shows_their_version(window, qtbot):
     assert window.editor.original == theirs.preset
     assert window.editor.inputs["top_p"].text() == "0.5"
     retype(qtbot, window.editor.inputs["temperature"], "0.55")
-    window.actions["save"].trigger()  # no conflict: the edit starts from theirs
+    window.menu_actions["save"].trigger()  # no conflict: the edit starts from theirs
     saved = stored(window, record.id)
     assert (saved.revision, saved.preset.top_p, saved.preset.temperature) == (theirs.revision + 1, 0.5, 0.55)
 
@@ -172,7 +172,7 @@ def test_edits_to_a_preset_a_colleague_deleted_are_kept(window, qtbot):
 
     seen = []
     answer_next_message_box("Replace it with my edits", seen)
-    window.actions["save"].trigger()
+    window.menu_actions["save"].trigger()
     assert "deleted" in seen[0]["text"]
     back = stored(window, record.id)
     assert back.preset.temperature == 0.45 and back.name == record.name
@@ -187,7 +187,7 @@ def test_a_removed_library_folder_keeps_the_draft_and_offers_a_copy(window, qtbo
     copy_path.parent.mkdir()
     window.prompts.ask_save_path = lambda *args: str(copy_path)
     window.copy_wanted = True
-    window.actions["save"].trigger()
+    window.menu_actions["save"].trigger()
 
     assert len(window.offered) == 1
     assert str(window.library.folder) in window.offered[0] and "is not there" in window.offered[0]
@@ -208,9 +208,9 @@ def test_the_saved_copy_goes_back_into_the_library_when_the_folder_returns(windo
     shutil.rmtree(window.library.folder)
     window.prompts.ask_save_path = lambda *args: str(tmp_path / "my-draft.json")
     window.copy_wanted = True
-    window.actions["save"].trigger()
+    window.menu_actions["save"].trigger()
     shutil.copytree(backup, window.library.folder)  # the drive is back
-    window.actions["rescan"].trigger()
+    window.menu_actions["rescan"].trigger()
 
     previews = []
     window.prompts.confirm_import = lambda plan, name: (

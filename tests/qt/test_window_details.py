@@ -55,17 +55,17 @@ def test_a_failed_model_switch_keeps_the_loaded_model(qtbot, tiny_loaded, tmp_pa
     errors = []
     win.prompts.show_error = lambda title, detail=None: errors.append(detail)
     win.prompts.ask_folder = lambda title: str(tmp_path / "missing-model")
-    win.actions["model_folder"].trigger()
+    win.menu_actions["model_folder"].trigger()
     qtbot.waitUntil(lambda: bool(errors), timeout=10000)
     assert "missing-model" in errors[0]
     assert "tiny test model" in win.model_label.text()
-    assert win.generate_button.isEnabled()
+    assert win.controls.generate_button.isEnabled()
     win.close()
 
 
 def test_copy_puts_the_inspected_sample_on_the_clipboard(window, qtbot):
     _, _, sample = inspect_a_token(window, qtbot, tokens=5)
-    window.actions["copy"].trigger()
+    window.menu_actions["copy"].trigger()
     assert QGuiApplication.clipboard().text() == sample.text
 
 
@@ -73,7 +73,7 @@ def test_rename_shows_in_the_editor(window):
     record = window.library.records()[0]
     window.library_list.select(record.id)
     window.prompts.ask_text = lambda *args: "Pier notice"
-    window.actions["rename"].trigger()
+    window.menu_actions["rename"].trigger()
     assert window.editor.inputs["name"].text() == "Pier notice"
     window.undo_action.trigger()
     assert window.editor.inputs["name"].text() == record.name
@@ -127,7 +127,7 @@ def test_new_samples_without_an_inspected_token_names_the_preset(window, qtbot):
     tick(window, 2)
     generate(window, qtbot, samples=1, tokens=3)
     window.audition.clear_inspection()
-    window.actions["regenerate"].trigger()
+    window.menu_actions["regenerate"].trigger()
     assert window.session.presets[0].name in window.statusBar().currentMessage()
     assert "first column" in window.statusBar().currentMessage()
     qtbot.waitUntil(lambda: not window.audition.running(), timeout=30000)
@@ -138,7 +138,7 @@ def test_controls_have_accessible_names(window):
     assert window.model_progress.accessibleName()
     from samplewright.core.engine.model import DEFAULT_NAME
 
-    assert DEFAULT_NAME in window.actions["model_default"].toolTip()
+    assert DEFAULT_NAME in window.menu_actions["model_default"].toolTip()
 
 
 def test_cut_shading_counts_emoji_as_qt_does(window, qtbot):
@@ -179,8 +179,8 @@ def test_damaged_settings_file_falls_back_to_defaults(make_window, tmp_path):
         encoding="utf-8",
     )
     win = make_window(config_dir=config)
-    assert win.samples_spin.value() == 4 and win.seed_spin.value() == 1234
-    assert win.tokens_spin.value() == win.tokens_spin.maximum()
+    assert win.controls.samples_spin.value() == 4 and win.controls.seed_spin.value() == 1234
+    assert win.controls.tokens_spin.value() == win.controls.tokens_spin.maximum()
     assert win.passage.text() == "Dear passengers"
     assert len(win.library_list.chosen) == 2
     win.close()

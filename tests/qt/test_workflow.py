@@ -38,9 +38,9 @@ def with_tokens(window, least=2, prefer_column=1):
 
 
 def generate(window, qtbot, samples=2, tokens=8, timeout=60000):
-    window.samples_spin.setValue(samples)
-    window.tokens_spin.setValue(tokens)
-    qtbot.mouseClick(window.generate_button, Qt.LeftButton)
+    window.controls.samples_spin.setValue(samples)
+    window.controls.tokens_spin.setValue(tokens)
+    qtbot.mouseClick(window.controls.generate_button, Qt.LeftButton)
     assert window.audition.running()
     qtbot.waitUntil(lambda: not window.audition.running(), timeout=timeout)
 
@@ -59,7 +59,7 @@ def test_open_generate_click_token_shows_step(window, qtbot, tmp_path):
     path = tmp_path / "notice.txt"
     path.write_text(PASSAGE + "\n", encoding="utf-8")
     window.prompts.ask_open_path = lambda *args: str(path)
-    window.actions["open"].trigger()
+    window.menu_actions["open"].trigger()
     assert window.passage.text() == read_passage(path)
 
     untick_all(window)
@@ -117,7 +117,7 @@ def test_step_control_moves_through_the_sample(window, qtbot):
     window.audition.inspect(column, row, 0)
     plot = window.inspector.plot
     qtbot.waitUntil(lambda: plot.shown is not None and plot.shown.drawn_id == sample.tokens[0].token_id)
-    window.actions["next_step"].trigger()
+    window.menu_actions["next_step"].trigger()
     qtbot.waitUntil(lambda: plot.shown.drawn_id == sample.tokens[1].token_id, timeout=10000)
     assert window.inspector.step() == 1
     assert window.grid.view(column, row).marked == 1
@@ -128,15 +128,15 @@ def test_cancel_mid_run_leaves_window_usable(window, qtbot):
     tick(window, 2)
     endings = []
     window.session.finished.connect(lambda serial, cancelled: endings.append(cancelled))
-    window.samples_spin.setValue(16)
-    window.tokens_spin.setValue(512)
-    qtbot.mouseClick(window.generate_button, Qt.LeftButton)
+    window.controls.samples_spin.setValue(16)
+    window.controls.tokens_spin.setValue(512)
+    qtbot.mouseClick(window.controls.generate_button, Qt.LeftButton)
     qtbot.waitUntil(lambda: window.session.done_tokens > 0, timeout=20000)
-    qtbot.mouseClick(window.stop_button, Qt.LeftButton)
+    qtbot.mouseClick(window.controls.stop_button, Qt.LeftButton)
     qtbot.waitUntil(lambda: not window.audition.running(), timeout=20000)
     assert endings == [True]
-    assert window.generate_button.isEnabled()
-    assert not window.stop_button.isEnabled()
+    assert window.controls.generate_button.isEnabled()
+    assert not window.controls.stop_button.isEnabled()
 
     generate(window, qtbot, samples=1, tokens=4)
     assert endings == [True, False]
@@ -171,8 +171,8 @@ def test_closing_during_a_run_cancels_it(qtbot, tiny_loader, tmp_path):
     win = MainWindow(model_loader=tiny_loader, library_dir=tmp_path / "lib", config_dir=tmp_path / "cfg")
     qtbot.addWidget(win)
     qtbot.waitUntil(lambda: win.model_info is not None, timeout=20000)
-    win.samples_spin.setValue(16)
-    win.tokens_spin.setValue(512)
+    win.controls.samples_spin.setValue(16)
+    win.controls.tokens_spin.setValue(512)
     win.audition.generate_all()
     qtbot.waitUntil(lambda: win.session.done_tokens > 0, timeout=20000)
     win.close()
@@ -209,12 +209,12 @@ def test_window_remembers_passage_and_selection(make_window):
     first.passage.set_text("Dear passengers, from Monday")
     untick_all(first)
     chosen = tick(first, 3)
-    first.seed_spin.setValue(77)
+    first.controls.seed_spin.setValue(77)
     first.close()
     second = make()
     assert second.passage.text() == "Dear passengers, from Monday"
     assert second.library_list.chosen == chosen
-    assert second.seed_spin.value() == 77
+    assert second.controls.seed_spin.value() == 77
     second.close()
 
 
@@ -224,3 +224,14 @@ def test_new_run_clears_the_highlighted_token(window, qtbot):
     assert view.marked == 0
     generate(window, qtbot, samples=2, tokens=4)  # same shape: the grid keeps its views
     assert window.grid.view(column, row) is view and view.marked is None
+
+
+def test_one_serial_names_a_run_from_request_to_result(window, qtbot):
+    ready = []
+    window.engine.worker.audition_ready.connect(lambda serial, result, metrics: ready.append(serial))
+    untick_all(window)
+    tick(window, 1)
+    generate(window, qtbot, samples=1, tokens=2)
+    generate(window, qtbot, samples=1, tokens=2)
+    # The session keeps the engine's own request serial: no second number to keep in step.
+    assert len(ready) == 2 and ready[-1] == window.session.serial and ready[0] < ready[1]

@@ -112,7 +112,7 @@ class QtLibraryBox(QWidget):
         self.header = QLabel()
         self.header.setAccessibleName("Library folder in use")
         # Long paths are shortened in the text; never let the header widen the panel.
-        self.header.setSizePolicy(QSizePolicy.Ignored, QSizePolicy.Preferred)
+        self.header.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         self.notice = QLabel()
         self.notice.setObjectName("libraryNotice")
         self.notice.setAccessibleName("Library notice")

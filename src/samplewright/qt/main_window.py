@@ -19,8 +19,8 @@ from collections.abc import Callable
 from pathlib import Path
 
 from PySide6.QtCore import QSettings, Qt
-from PySide6.QtGui import QKeySequence, QUndoStack
-from PySide6.QtWidgets import QLabel, QMainWindow, QProgressBar, QSplitter, QVBoxLayout, QWidget
+from PySide6.QtGui import QAction, QKeySequence, QUndoStack
+from PySide6.QtWidgets import QLabel, QMainWindow, QMenu, QProgressBar, QSplitter, QVBoxLayout, QWidget
 
 from ..core.engine.session import AuditionSession
 from ..core.library.draft import Draft
@@ -75,7 +75,7 @@ class MainWindow(QMainWindow):
         super().__init__(parent)
         self.setWindowTitle("Samplewright — preset audition workbench")
         self.config_dir = Path(config_dir) if config_dir else default_config_dir()
-        self.settings = QSettings(str(self.config_dir / SETTINGS_FILE), QSettings.IniFormat)
+        self.settings = QSettings(str(self.config_dir / SETTINGS_FILE), QSettings.Format.IniFormat)
         self.user_state = UserState(self.config_dir)
         self.prompts = QtPrompts(self)
         library, library_problem = open_first_library(library_dir, self.user_state)
@@ -114,25 +114,20 @@ class MainWindow(QMainWindow):
         report = lambda text: self.prompts.show_error(text)  # noqa: E731 (looked up late: tests replace it)
         self.library_list = QtLibraryList(self.library, favourites, self.undo_stack, report)
         self.library_box = QtLibraryBox(self.library_list)
-        self.library_header = self.library_box.header
-        self.library_notice = self.library_box.notice
         self.editor = QtPresetEditor()
         self.passage = QtPassagePanel()
         self.grid = QtAuditionGrid(self.session)
         self.controls = QtAuditionControls(self.grid)
-        c = self.controls
-        self.samples_spin, self.tokens_spin, self.seed_spin = c.samples_spin, c.tokens_spin, c.seed_spin
-        self.generate_button, self.stop_button = c.generate_button, c.stop_button
         self.inspector = QtStepInspector()
-        left = QSplitter(Qt.Vertical)
+        left = QSplitter(Qt.Orientation.Vertical)
         left.addWidget(self.library_box)
         left.addWidget(_titled("Edit preset", self.editor))
         left.setStretchFactor(1, 2)
-        middle = QSplitter(Qt.Vertical)
+        middle = QSplitter(Qt.Orientation.Vertical)
         middle.addWidget(self.passage)
         middle.addWidget(self.controls)
         middle.setStretchFactor(1, 3)
-        self.splitters = {"main": QSplitter(Qt.Horizontal), "left": left, "middle": middle}
+        self.splitters = {"main": QSplitter(Qt.Orientation.Horizontal), "left": left, "middle": middle}
         main = self.splitters["main"]
         for widget in (left, middle, self.inspector):
             main.addWidget(widget)
@@ -200,23 +195,25 @@ class MainWindow(QMainWindow):
     def _build_commands(self) -> None:
         """The window's actions and menus (the commands themselves are listed in ``window_actions.py``)."""
         commands = window_actions.window_commands(self)
-        self.actions = {command.key: window_actions.make_action(self, command) for command in commands}
+        self.menu_actions = {command.key: window_actions.make_action(self, command) for command in commands}
         self.undo_action = self.undo_stack.createUndoAction(self, "Undo")
-        self.undo_action.setShortcut(QKeySequence.Undo)
+        self.undo_action.setShortcut(QKeySequence.StandardKey.Undo)
         self.redo_action = self.undo_stack.createRedoAction(self, "Redo")
-        self.redo_action.setShortcut(QKeySequence.Redo)
+        self.redo_action.setShortcut(QKeySequence.StandardKey.Redo)
         window_actions.place_actions(self)
-        extra = {"undo": self.undo_action, "redo": self.redo_action, "recent_folders": self.recent_menu}
-        window_actions.build_menus(self, {**self.actions, **extra})
+        extra: dict[str, QAction | QMenu] = {
+            "undo": self.undo_action,
+            "redo": self.redo_action,
+            "recent_folders": self.recent_menu,
+        }
+        window_actions.build_menus(self, {**self.menu_actions, **extra})
 
     def _wire(self) -> None:
         """Connect the parts: what one announces, another follows."""
         self.models.model_switched.connect(self.audition.forget_old_model_samples)
         self.models.model_ready.connect(lambda info: self.audition.set_model_ready(True))
-        self.audition.state_changed.connect(
-            lambda *state: window_actions.follow_audition(self.actions, *state)  # type: ignore[misc]
-        )
-        self.folders.own_library_shown.connect(lambda own: self.actions["own_library"].setEnabled(not own))
+        self.audition.state_changed.connect(lambda *state: window_actions.follow_audition(self.menu_actions, *state))
+        self.folders.own_library_shown.connect(lambda own: self.menu_actions["own_library"].setEnabled(not own))
         self.audition.update_buttons()
 
     def closeEvent(self, event) -> None:

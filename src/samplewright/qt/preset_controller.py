@@ -233,7 +233,7 @@ class PresetController(QObject):
         if choice is None:
             return False, None
         try:
-            return True, self.library.resolve_conflict(conflict, choice)  # type: ignore[arg-type]
+            return True, self.library.resolve_conflict(conflict, choice)
         except SamplewrightError as error:
             self.report_save_failure(conflict.mine.name, str(error))
             return False, None

@@ -11,7 +11,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from PySide6.QtCore import Qt
-from PySide6.QtWidgets import QDialog, QFileDialog, QInputDialog, QMessageBox, QWidget
+from PySide6.QtWidgets import QAbstractButton, QDialog, QFileDialog, QInputDialog, QMessageBox, QWidget
 
 from .dialogs import ImportPreviewDialog, ask_conflict_choice
 
@@ -64,25 +64,33 @@ class QtPrompts:
             problem: why the edits cannot be saved as they are, or None.
         """
         box = QMessageBox(
-            QMessageBox.Question, "Unsaved changes", f"'{name}' has changes that are not saved.", parent=self.parent
+            QMessageBox.Icon.Question,
+            "Unsaved changes",
+            f"'{name}' has changes that are not saved.",
+            parent=self.parent,
         )
         if problem is None:
             box.setInformativeText("Save them to the library, discard them, or cancel and keep editing.")
-            box.setStandardButtons(QMessageBox.Save | QMessageBox.Discard | QMessageBox.Cancel)
-            box.setDefaultButton(QMessageBox.Save)
+            box.setStandardButtons(
+                QMessageBox.StandardButton.Save | QMessageBox.StandardButton.Discard | QMessageBox.StandardButton.Cancel
+            )
+            box.setDefaultButton(QMessageBox.StandardButton.Save)
         else:
             box.setInformativeText(
                 f"They cannot be saved as they are: {problem}\n\nDiscard them, or cancel and correct the field."
             )
-            box.setStandardButtons(QMessageBox.Discard | QMessageBox.Cancel)
-            box.setDefaultButton(QMessageBox.Cancel)
-        return {QMessageBox.Save: "save", QMessageBox.Discard: "discard"}.get(box.exec(), "cancel")
+            box.setStandardButtons(QMessageBox.StandardButton.Discard | QMessageBox.StandardButton.Cancel)
+            box.setDefaultButton(QMessageBox.StandardButton.Cancel)
+        answer = box.exec()
+        if answer == QMessageBox.StandardButton.Save:
+            return "save"
+        return "discard" if answer == QMessageBox.StandardButton.Discard else "cancel"
 
     def offer_copy(self, title: str, text: str) -> bool:
         """Show why a save failed; True when the user wants to save a copy as a file."""
-        box = QMessageBox(QMessageBox.Warning, title, text, parent=self.parent)
-        copy = box.addButton("Save a copy as file…", QMessageBox.AcceptRole)
-        box.addButton("Not now", QMessageBox.RejectRole)
+        box = QMessageBox(QMessageBox.Icon.Warning, title, text, parent=self.parent)
+        copy = box.addButton("Save a copy as file…", QMessageBox.ButtonRole.AcceptRole)
+        box.addButton("Not now", QMessageBox.ButtonRole.RejectRole)
         box.setDefaultButton(copy)
         box.exec()
         return box.clickedButton() is copy
@@ -99,7 +107,7 @@ class QtPrompts:
     def ask_add_starters(self, folder: Path, other_files: int) -> str:
         """Ask whether a folder without presets gets the starter presets: "add", "empty" or "cancel"."""
         box = QMessageBox(
-            QMessageBox.Question,
+            QMessageBox.Icon.Question,
             "No presets here",
             "This folder has no presets. Add the starter presets?",
             parent=self.parent,
@@ -108,15 +116,16 @@ class QtPrompts:
         if other_files:
             detail += f" The folder holds {other_files} other file(s); they are left as they are."
         box.setInformativeText(detail)
-        add = box.addButton("Add the starter presets", QMessageBox.AcceptRole)
-        empty = box.addButton("Leave it empty", QMessageBox.NoRole)
-        box.addButton(QMessageBox.Cancel)
+        add = box.addButton("Add the starter presets", QMessageBox.ButtonRole.AcceptRole)
+        empty = box.addButton("Leave it empty", QMessageBox.ButtonRole.NoRole)
+        box.addButton(QMessageBox.StandardButton.Cancel)
         box.setDefaultButton(add)
         box.exec()
-        return {add: "add", empty: "empty"}.get(box.clickedButton(), "cancel")
+        answers: dict[QAbstractButton, str] = {add: "add", empty: "empty"}
+        return answers.get(box.clickedButton(), "cancel")
 
     def open_dialog(self, dialog: QDialog) -> QDialog:
         """Show ``dialog`` window-modal without blocking, and return it (tests drive it from there)."""
-        dialog.setAttribute(Qt.WA_DeleteOnClose)
+        dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
         dialog.open()
         return dialog

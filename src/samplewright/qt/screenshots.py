@@ -69,9 +69,9 @@ def render(outdir: Path, model_seconds: float = 600) -> list[Path]:
         window.show()
         _wait(app, lambda: window.model_info is not None, model_seconds, "the model to load")
         _choose_presets(window)
-        window.samples_spin.setValue(3)
-        window.tokens_spin.setValue(40)
-        window.seed_spin.setValue(7)
+        window.controls.samples_spin.setValue(3)
+        window.controls.tokens_spin.setValue(40)
+        window.controls.seed_spin.setValue(7)
         files = [outdir / "1-ready.png", outdir / "2-audition.png", outdir / "3-step.png"]
         _save(app, window, files[0])
         window.audition.generate_all()

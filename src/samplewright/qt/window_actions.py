@@ -41,7 +41,13 @@ def window_commands(w: MainWindow) -> list[Command]:
     """Every command of the window, bound to the part that carries it out."""
     models, presets, library, folders, audition = w.models, w.presets, w.library_tools, w.folders, w.audition
     return [
-        Command("open", "Open passage…", models.open_passage_dialog, QKeySequence.Open, "Open a .txt or .md passage"),
+        Command(
+            "open",
+            "Open passage…",
+            models.open_passage_dialog,
+            QKeySequence.StandardKey.Open,
+            "Open a .txt or .md passage",
+        ),
         Command(
             "import",
             IMPORT_TEXT,
@@ -70,7 +76,7 @@ def window_commands(w: MainWindow) -> list[Command]:
             None,
             "Show the presets in your own library folder again",
         ),
-        Command("quit", "Quit", w.close, QKeySequence.Quit),
+        Command("quit", "Quit", w.close, QKeySequence.StandardKey.Quit),
         Command(
             "copy",
             "Copy sample text",
@@ -78,14 +84,16 @@ def window_commands(w: MainWindow) -> list[Command]:
             "Ctrl+Shift+C",
             "Copy the text of the sample being inspected",
         ),
-        Command("new", "New preset", presets.new_preset, QKeySequence.New, "Add a preset with neutral settings"),
+        Command(
+            "new", "New preset", presets.new_preset, QKeySequence.StandardKey.New, "Add a preset with neutral settings"
+        ),
         Command("duplicate", "Duplicate preset", presets.duplicate_preset, "Ctrl+D", "Copy the highlighted preset"),
         Command("rename", "Rename preset…", presets.rename_preset, "F2", "Give the highlighted preset a new name"),
         Command(
             "delete",
             "Delete preset",
             presets.delete_preset,
-            QKeySequence.Delete,
+            QKeySequence.StandardKey.Delete,
             "Move the highlighted preset to the library's trash (undo with Ctrl+Z)",
         ),
         Command(
@@ -95,12 +103,14 @@ def window_commands(w: MainWindow) -> list[Command]:
             "Ctrl+B",
             "Mark or unmark the highlighted preset as a favourite",
         ),
-        Command("save", "Save preset", w.editor.save, QKeySequence.Save, "Save the edited preset to the library"),
+        Command(
+            "save", "Save preset", w.editor.save, QKeySequence.StandardKey.Save, "Save the edited preset to the library"
+        ),
         Command(
             "save_copy",
             "Save a copy as file…",
             presets.save_copy_as_file,
-            QKeySequence.SaveAs,
+            QKeySequence.StandardKey.SaveAs,
             "Write the edited preset, unsaved edits included, to a file of your choice",
         ),
         Command(
@@ -212,9 +222,9 @@ def build_menus(window: QMainWindow, entries: dict[str, QAction | QMenu]) -> Non
 
 def place_actions(w: MainWindow) -> None:
     """Put the preset commands under the list (buttons and right-click menu) and the run's on its buttons."""
-    actions = w.actions
+    actions = w.menu_actions
     # Delete only acts in the preset list, never on text being edited elsewhere in the window.
-    actions["delete"].setShortcutContext(Qt.WidgetWithChildrenShortcut)
+    actions["delete"].setShortcutContext(Qt.ShortcutContext.WidgetWithChildrenShortcut)
     w.removeAction(actions["delete"])
     w.library_list.tree.addAction(actions["delete"])
     w.passage.set_open_action(actions["open"])

@@ -5,6 +5,7 @@ value falls back to its default."""
 from __future__ import annotations
 
 import json
+from typing import Any, cast
 
 from PySide6.QtCore import QByteArray, QSettings
 from PySide6.QtWidgets import QMainWindow, QSplitter
@@ -113,7 +114,7 @@ def _setting_str(settings: QSettings, key: str) -> str:
 def _setting_int(settings: QSettings, key: str, default: int) -> int:
     """A whole-number setting, or ``default`` when missing or unreadable."""
     try:
-        return int(settings.value(key, default))
+        return int(cast(Any, settings.value(key, default)))
     except (TypeError, ValueError):
         return default
 
