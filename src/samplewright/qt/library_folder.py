@@ -29,6 +29,8 @@ from ..core.library.library import PresetLibrary, default_library_dir, starter_p
 from ..core.library.records import PresetRecord
 from ..core.library.user_state import UserState
 from . import palette
+from .library_panel import QtLibraryList
+from .prompts import QtPrompts
 
 #: The key of the recent library folders in ``UserState.view``.
 RECENT_KEY = "recent_libraries"
@@ -157,10 +159,10 @@ class LibraryFolderController(QObject):
         draft: Draft,
         settle: Callable[[], bool],
         box: QtLibraryBox,
-        library_list,
+        library_list: QtLibraryList,
         undo_stack: QUndoStack,
         window: QWidget,
-        prompts,
+        prompts: QtPrompts,
         status: QStatusBar,
         parent: QObject | None = None,
     ):

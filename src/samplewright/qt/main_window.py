@@ -158,13 +158,8 @@ class MainWindow(QMainWindow):
 
     def _build_parts(self) -> None:
         """The controllers, each with the models and widgets it drives."""
-        status, prompts, presets_list, draft, in_use = (
-            self.statusBar(),
-            self.prompts,
-            self.library_list,
-            self.draft,
-            self.in_use,
-        )
+        status, prompts, undo = self.statusBar(), self.prompts, self.undo_stack
+        presets_list, draft, in_use = self.library_list, self.draft, self.in_use
         self.models = ModelController(
             self.engine, self.settings, prompts, self.model_label, self.model_progress, self.passage, self
         )
@@ -172,25 +167,16 @@ class MainWindow(QMainWindow):
         self.presets = PresetController(draft, in_use, self.editor, presets_list, prompts, status, model_name, self)
         settle, current = self.presets.settle_draft, self.presets.current_record
         self.library_tools = LibraryController(
-            in_use, draft, settle, current, presets_list, self.undo_stack, prompts, status, self
+            in_use, draft, settle, current, presets_list, undo, prompts, status, self
         )
         self.folders = LibraryFolderController(
-            in_use,
-            self.user_state,
-            draft,
-            settle,
-            self.library_box,
-            presets_list,
-            self.undo_stack,
-            self,
-            prompts,
-            status,
-            self,
+            in_use, self.user_state, draft, settle, self.library_box, presets_list, undo, self, prompts, status, self
         )
         views = (self.controls, self.grid, self.inspector, presets_list, self.passage)
         self.audition = AuditionController(self.session, self.engine, draft, in_use, prompts, status, *views, self)
         self.state = WindowState(self.settings, self, self.splitters, self.passage, self.controls, presets_list, in_use)
         self.library_watch, self.recent_menu = self.library_tools.watch, self.folders.recent_menu
+        # A new screen that needs these models is built here; its menu entry is a row in window_actions.py.
 
     def _build_commands(self) -> None:
         """The window's actions and menus (the commands themselves are listed in ``window_actions.py``)."""

@@ -87,20 +87,18 @@ class Draft:
             return "same"
         return "keep_edits" if self.dirty else "reload"
 
-    @contextlib.contextmanager
-    def saving_now(self) -> Iterator[None]:
+    def saving_now(self) -> contextlib.AbstractContextManager[None]:
         """Mark a save as under way while inside."""
-        self.saving = True
-        try:
-            yield
-        finally:
-            self.saving = False
+        return self._marked("saving")
+
+    def asking_now(self) -> contextlib.AbstractContextManager[None]:
+        """Mark a question about the edits as open while inside."""
+        return self._marked("asking")
 
     @contextlib.contextmanager
-    def asking_now(self) -> Iterator[None]:
-        """Mark a question about the edits as open while inside."""
-        self.asking = True
+    def _marked(self, flag: str) -> Iterator[None]:
+        setattr(self, flag, True)
         try:
             yield
         finally:
-            self.asking = False
+            setattr(self, flag, False)
