@@ -12,10 +12,11 @@ from __future__ import annotations
 import argparse
 import json
 
+from . import cli_engines
 from .core.errors import SamplewrightError
 from .core.library.importing import IMPORT_CHOICES, apply_import, preview_import
 from .core.library.library import PresetLibrary
-from .core.library.settings_file import export_settings, read_settings
+from .core.library.settings_file import SettingsDocument, export_settings, read_settings
 from .core.library.user_state import library_in_use
 
 
@@ -25,6 +26,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     export.add_argument("names", nargs="*", metavar="PRESET", help="preset names or ids (default: all)")
     export.add_argument("--out", metavar="FILE", required=True, help="the settings file to write")
     export.add_argument("--model", metavar="NAME", help="the model the presets were tuned on")
+    cli_engines.add_export_options(export)
     _add_library_options(export)
     export.set_defaults(handler=run_export)
 
@@ -44,6 +46,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     lib = subparsers.add_parser("library", help="list the library's presets and the files it skipped")
     _add_library_options(lib)
     lib.set_defaults(handler=run_library)
+    cli_engines.register(subparsers)
 
 
 def _add_library_options(parser: argparse.ArgumentParser) -> None:
@@ -69,6 +72,8 @@ def run_export(args: argparse.Namespace) -> int:
     records = [library.find(name) for name in args.names] if args.names else library.records()
     if not records:
         raise SamplewrightError(f"The library {library.folder} has no presets to export.")
+    if args.to != "samplewright" or args.verify:
+        return cli_engines.run_engine_export(args, [r.preset for r in records])
     document = export_settings([r.preset for r in records], args.out, model=args.model)
     names = [p.name for p in document.presets]
     if args.json:
@@ -80,7 +85,8 @@ def run_export(args: argparse.Namespace) -> int:
 
 def run_import(args: argparse.Namespace) -> int:
     """Print what importing ``file`` would do; with ``--yes``, do it."""
-    document = read_settings(args.file)
+    foreign = cli_engines.foreign_preview(args.file)  # a transformers, vLLM or request file
+    document = SettingsDocument((foreign.preset,)) if foreign else read_settings(args.file)
     library = _open(args)
     plan = preview_import(document, library)
     if args.yes and plan.conflicts and not args.on_conflict:
@@ -96,11 +102,14 @@ def run_import(args: argparse.Namespace) -> int:
                 "file": str(args.file),
                 "library": str(library.folder),
                 "applied": bool(args.yes),
+                **({"foreign": foreign.to_json()} if foreign else {}),
                 **plan.to_json(),
                 "written": [{"name": r.name, "id": r.id, "revision": r.revision} for r in written],
             }
         )
         return 0
+    for line in foreign.lines() if foreign else ():
+        print(line)
     print(f"Importing {args.file} into {library.folder}:")
     for line in plan.lines():
         print("  " + line)
