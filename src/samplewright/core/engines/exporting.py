@@ -77,3 +77,19 @@ def export_to(presets: Sequence[Preset], target: str, out: str | Path) -> list[E
             raise explain_os_error(exc, path.parent, f"write {path.name}", "The export stopped there") from exc
         written.append(ExportedFile(preset, target, path))
     return written
+
+
+def write_for_target(presets: Sequence[Preset], target: str, out: str | Path, model: str | None = None) -> str:
+    """Write ``presets`` for any target, the settings file included; returns a one-line summary.
+
+    Raises:
+        LibraryError: on a refused destination or a failed write (nothing, or only whole files, written).
+    """
+    if target == "samplewright":
+        from ..library.settings_file import export_settings
+
+        export_settings(list(presets), out, model=model)
+        return f"Exported {len(presets)} preset(s) to {out}."
+    written = export_to(presets, target, out)
+    where = written[0].path if len(written) == 1 else Path(out)
+    return f"Exported {len(written)} preset(s) for {target} to {where}."
