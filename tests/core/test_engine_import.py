@@ -93,4 +93,5 @@ def test_huge_files_are_refused(tmp_path):
 def test_other_json_is_not_taken_for_a_foreign_format():
     assert foreign_import.recognise({"format": "samplewright-settings"}) is None
     assert foreign_import.recognise({"colour": "blue"}) is None
+    assert foreign_import.recognise({"name": "Pier", "temperature": 0.5}) is None  # a samplewright preset file
     assert foreign_import.recognise([1, 2]) is None

@@ -65,7 +65,7 @@ def test_switching_target_while_measuring_ignores_the_old_results(qtbot):
 def test_the_chosen_target_is_written_only_by_the_caller(qtbot, tmp_path):
     from transformers import GenerationConfig
 
-    from samplewright.core.engines.exporting import write_for_target
+    from samplewright.core.engines.exporting import destination_kind, write_for_target
 
     dialog = ExportDialog(PRESETS[:1])
     qtbot.addWidget(dialog)
@@ -73,6 +73,7 @@ def test_the_chosen_target_is_written_only_by_the_caller(qtbot, tmp_path):
     qtbot.waitUntil(lambda: len(dialog.reports) == 1, timeout=30000)
     dialog.accept()
     assert list(tmp_path.iterdir()) == []
-    message = write_for_target(PRESETS[:1], dialog.target(), tmp_path / "pier")
-    assert "for transformers" in message
+    assert destination_kind(dialog.target(), 1) == "folder"
+    message, (written,) = write_for_target(PRESETS[:1], dialog.target(), tmp_path / "pier")
+    assert "for transformers" in message and written == tmp_path / "pier" / "generation_config.json"
     assert GenerationConfig.from_pretrained(tmp_path / "pier").top_k == 30

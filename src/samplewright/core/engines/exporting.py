@@ -79,8 +79,18 @@ def export_to(presets: Sequence[Preset], target: str, out: str | Path) -> list[E
     return written
 
 
-def write_for_target(presets: Sequence[Preset], target: str, out: str | Path, model: str | None = None) -> str:
-    """Write ``presets`` for any target, the settings file included; returns a one-line summary.
+def destination_kind(target: str, count: int) -> str:
+    """``"folder"`` or ``"file"``: what a window should ask the user for before writing."""
+    return "folder" if target == "transformers" or (count > 1 and target != "samplewright") else "file"
+
+
+def write_for_target(
+    presets: Sequence[Preset], target: str, out: str | Path, model: str | None = None
+) -> tuple[str, list[Path]]:
+    """Write ``presets`` for any target, the settings file included.
+
+    Returns:
+        A one-line summary for the user, and the files written.
 
     Raises:
         LibraryError: on a refused destination or a failed write (nothing, or only whole files, written).
@@ -89,7 +99,7 @@ def write_for_target(presets: Sequence[Preset], target: str, out: str | Path, mo
         from ..library.settings_file import export_settings
 
         export_settings(list(presets), out, model=model)
-        return f"Exported {len(presets)} preset(s) to {out}."
+        return f"Exported {len(presets)} preset(s) to {out}.", [Path(out)]
     written = export_to(presets, target, out)
     where = written[0].path if len(written) == 1 else Path(out)
-    return f"Exported {len(written)} preset(s) for {target} to {where}."
+    return f"Exported {len(written)} preset(s) for {target} to {where}.", [f.path for f in written]

@@ -98,8 +98,8 @@ def _transformers_known() -> tuple[frozenset[str], dict[str, Any]]:
 
 def recognise(obj: Any) -> str | None:
     """Which foreign format a parsed JSON value is, or None."""
-    if not isinstance(obj, dict) or not obj or "format" in obj:
-        return None
+    if not isinstance(obj, dict) or not obj or "format" in obj or "name" in obj:
+        return None  # empty, not an object, or one of samplewright's own files (a preset file has a name)
     keys = set(obj)
     if keys & OPENAI_MARKS:
         return "openai-request"
