@@ -1,6 +1,7 @@
 """The export dialog, constructed directly: targets listed, verdicts shown before
 anything is written, the closest variant offered to the audition."""
 
+from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QDialog
 
 from samplewright import Preset
@@ -20,7 +21,7 @@ def cell(dialog, row, column):
 def test_targets_are_listed_and_the_settings_file_is_exact(qtbot, tmp_path):
     dialog = ExportDialog(PRESETS)
     qtbot.addWidget(dialog)
-    assert [dialog.targets.item(i).data(256) for i in range(dialog.targets.count())] == [
+    assert [dialog.targets.item(i).data(Qt.ItemDataRole.UserRole) for i in range(dialog.targets.count())] == [
         "samplewright", "transformers", "vllm", "openai-request"
     ]  # fmt: skip
     assert dialog.target() == "samplewright" and cell(dialog, 0, 1) == "exact"
@@ -46,7 +47,7 @@ def test_choosing_transformers_shows_each_verdict_and_offers_the_closest_variant
     dialog.check_after.setChecked(True)
     assert dialog.check_requested()
     dialog.reject()
-    assert dialog.result() == QDialog.Rejected
+    assert dialog.result() == QDialog.DialogCode.Rejected
 
 
 def test_switching_target_while_measuring_ignores_the_old_results(qtbot):

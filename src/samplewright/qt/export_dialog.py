@@ -15,8 +15,9 @@ Signals:
 from __future__ import annotations
 
 from collections.abc import Callable, Sequence
+from typing import TYPE_CHECKING
 
-from PySide6.QtCore import QThread, Signal
+from PySide6.QtCore import Qt, QThread, Signal
 from PySide6.QtWidgets import (
     QAbstractItemView,
     QCheckBox,
@@ -34,6 +35,9 @@ from PySide6.QtWidgets import (
 )
 
 from ..core.presets import Preset
+
+if TYPE_CHECKING:
+    from ..core.engines.fidelity import Fidelity
 
 TARGET_LABELS = {
     "samplewright": "Samplewright settings file (every stage, exactly)",
@@ -100,7 +104,7 @@ class ExportDialog(QDialog):
         self.setWindowTitle(f"Export {len(presets)} preset(s)")
         self.presets = list(presets)
         self.measure = measure or default_measure
-        self.reports: dict[int, object] = {}
+        self.reports: dict[int, Fidelity] = {}
         self._serial = 0
         self._threads: list[FidelityThread] = []
         self._build(transformers_check)
@@ -114,15 +118,15 @@ class ExportDialog(QDialog):
         self.targets.setAccessibleName("Export targets")
         for key, label in TARGET_LABELS.items():
             item = QListWidgetItem(label)
-            item.setData(256, key)  # Qt.UserRole
+            item.setData(Qt.ItemDataRole.UserRole, key)
             self.targets.addItem(item)
         self.targets.setMaximumHeight(100)
         self.targets.currentRowChanged.connect(self._on_target_changed)
         self.table = QTableWidget(len(self.presets), len(COLUMNS))
         self.table.setHorizontalHeaderLabels(COLUMNS)
         self.table.setAccessibleName("Fidelity of each preset")
-        self.table.setSelectionBehavior(QAbstractItemView.SelectRows)
-        self.table.setEditTriggers(QAbstractItemView.NoEditTriggers)
+        self.table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+        self.table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
         self.table.currentCellChanged.connect(lambda *_: self._show_details())
         self.details = QPlainTextEdit(readOnly=True)
         self.details.setAccessibleName("Reasons and parameters")
@@ -131,8 +135,8 @@ class ExportDialog(QDialog):
         self.add_closest.clicked.connect(self._on_add_closest)
         self.check_after = QCheckBox("After writing, check the config on the current passage with transformers")
         self.check_after.setVisible(transformers_check)
-        buttons = QDialogButtonBox(QDialogButtonBox.Ok | QDialogButtonBox.Cancel)
-        buttons.button(QDialogButtonBox.Ok).setText("Export…")
+        buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Ok | QDialogButtonBox.StandardButton.Cancel)
+        buttons.button(QDialogButtonBox.StandardButton.Ok).setText("Export…")
         buttons.accepted.connect(self.accept)
         buttons.rejected.connect(self.reject)
         layout = QVBoxLayout(self)
@@ -150,7 +154,7 @@ class ExportDialog(QDialog):
     def target(self) -> str:
         """The chosen target's name (``samplewright``, ``transformers``, ``vllm``, ``openai-request``)."""
         item = self.targets.currentItem()
-        return str(item.data(256)) if item else "samplewright"
+        return str(item.data(Qt.ItemDataRole.UserRole)) if item else "samplewright"
 
     def check_requested(self) -> bool:
         """Whether to run the transformers check on the current passage after writing."""
@@ -182,7 +186,7 @@ class ExportDialog(QDialog):
         thread.start()
         self._show_details()
 
-    def _on_measured(self, serial: int, row: int, report) -> None:
+    def _on_measured(self, serial: int, row: int, report: Fidelity) -> None:
         if serial != self._serial:
             return
         self.reports[row] = report
