@@ -147,6 +147,7 @@ def test_export_writes_a_file_the_core_check_accepts(window, tmp_path):
     target = tmp_path / "shared" / "harbour-presets.json"
     target.parent.mkdir()
     window.prompts.ask_save_path = lambda *args: str(target)
+    window.prompts.choose_export_target = lambda presets, add_closest: "samplewright"
     window.menu_actions["export"].trigger()
     assert window.errors == []
     verdict = check_file(target)
@@ -252,3 +253,29 @@ def test_editor_offers_every_core_field_and_knows_whole_numbers(window):
         except PresetError:
             takes_fractions = False
         assert (field in WHOLE_NUMBERS) == (not takes_fractions), field
+
+
+def test_export_for_transformers_writes_a_folder_generation_config_reads(window, tmp_path):
+    # transformers' GenerationConfig.from_pretrained is the reader the export must satisfy.
+    from transformers import GenerationConfig
+
+    record = next(r for r in window.library.records() if r.preset.top_p is not None)
+    window.library_list.set_chosen([record.id])
+    seen = []
+    window.prompts.choose_export_target = lambda presets, add_closest: seen.append(presets) or "transformers"
+    window.prompts.ask_folder = lambda *args: str(tmp_path / "for-transformers")
+    window.menu_actions["export"].trigger()
+    assert window.errors == [] and seen == [[record.preset]]
+    written = [p.parent for p in (tmp_path / "for-transformers").rglob("generation_config.json")]
+    assert len(written) == 1
+    assert GenerationConfig.from_pretrained(written[0]).top_p == record.preset.top_p
+
+
+def test_a_closest_variant_is_added_under_a_free_name_and_ticked(window):
+    record = window.library.records()[0]
+    window.library_list.set_chosen([])
+    window.presets.add_for_audition(record.preset)
+    names = [r.name for r in window.library.records()]
+    assert names.count(record.name) == 1 and len(names) == len(set(names))
+    added = [r for r in window.library.records() if r.id in window.library_list.chosen]
+    assert len(added) == 1 and added[0].name != record.name and added[0].preset.top_p == record.preset.top_p

@@ -14,17 +14,22 @@ from pathlib import Path
 from PySide6.QtCore import QObject
 from PySide6.QtWidgets import QStatusBar
 
+from ..core.engines.exporting import destination_kind, write_for_target
 from ..core.errors import SamplewrightError
 from ..core.library.draft import Draft
 from ..core.library.importing import apply_import, preview_import
 from ..core.library.library import SaveConflict
 from ..core.library.records import PresetRecord
-from ..core.library.settings_file import export_preset_file, export_settings, read_importable
+from ..core.library.settings_file import export_preset_file, read_importable
 from ..core.presets import Preset
+from .export_dialog import TARGET_LABELS
 from .library_folder import LibraryInUse
 from .library_panel import QtLibraryList
 from .preset_editor import QtPresetEditor
 from .prompts import QtPrompts
+
+# The audition's column limit (the stage registry work moves UI limits into the core).
+MAX_AUDITION_PRESETS = 6
 
 SETTINGS_FILTER = "Samplewright settings (*.json);;All files (*)"
 PRESET_FILTER = "Preset file (*.json);;All files (*)"
@@ -272,22 +277,41 @@ class PresetController(QObject):
 
     # -- settings files ----------------------------------------------------------------------
     def export_chosen(self) -> None:
-        """Write the ticked presets (or the highlighted one) to a settings file."""
+        """Write the ticked presets (or the highlighted one) for the target the user picks in the
+        export dialog, after it has shown whether that target writes the same way."""
         current = self.library_list.current_id()
         ids = self.library_list.chosen or ([current] if current else [])
         if not ids:
             self.prompts.show_error("Nothing to export", "Tick the presets to export in the list, then try again.")
             return
         presets = [self.library.get(i).preset for i in ids]
-        path = self.prompts.ask_save_path("Export presets", SETTINGS_FILTER, "presets.json")
+        target = self.prompts.choose_export_target(presets, self.add_for_audition)
+        if target is None:
+            return
+        if destination_kind(target, len(presets)) == "folder":
+            path = self.prompts.ask_folder(
+                f"Export {len(presets)} preset(s) for {TARGET_LABELS[target]}: choose a folder"
+            )
+        else:
+            path = self.prompts.ask_save_path("Export presets", SETTINGS_FILTER, "presets.json")
         if not path:
             return
         try:
-            export_settings(presets, path, model=self.model_name())
+            message, _files = write_for_target(presets, target, path, model=self.model_name())
         except SamplewrightError as error:
-            self.prompts.show_error("The settings file was not written", str(error))
+            self.prompts.show_error("The export was not written", str(error))
             return
-        self.status.showMessage(f"Exported {len(presets)} preset(s) to {path}.", 8000)
+        self.status.showMessage(message, 8000)
+
+    def add_for_audition(self, preset: Preset) -> None:
+        """Add ``preset`` (an engine's closest expressible variant) to the library under a free
+        name and tick it for the next audition when there is room."""
+        if any(record.name.casefold() == preset.name.casefold() for record in self.library.records()):
+            preset = preset.replace(name=self.library.unused_name(preset.name, "copy"))
+        new_id = self.library_list.push_add(preset)
+        if new_id and len(self.library_list.chosen) < MAX_AUDITION_PRESETS:
+            self.library_list.set_chosen([*self.library_list.chosen, new_id])
+        self.status.showMessage(f"Added “{preset.name}” to the library and ticked it for the next audition.", 8000)
 
     def import_settings(self, path: str | None = None) -> None:
         """Read a settings file (or a preset file saved as a copy), show what importing would do,

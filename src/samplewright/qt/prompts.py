@@ -47,6 +47,16 @@ class QtPrompts:
         path, _ = QFileDialog.getSaveFileName(self.parent, title, suggested, file_filter)
         return path or None
 
+    def choose_export_target(self, presets, add_closest) -> str | None:
+        """Show the export dialog (targets, each preset's verdict and reasons); the chosen target
+        name, or None when cancelled. ``add_closest(preset)`` is called for each closest
+        expressible variant the user asks to audition."""
+        from .export_dialog import ExportDialog
+
+        dialog = ExportDialog(presets, transformers_check=False, parent=self.parent)
+        dialog.closest_requested.connect(add_closest)
+        return dialog.target() if dialog.exec() == QDialog.DialogCode.Accepted else None
+
     def ask_folder(self, title: str) -> str | None:
         """Ask for a folder; None when cancelled."""
         return QFileDialog.getExistingDirectory(self.parent, title) or None
