@@ -15,6 +15,7 @@ from samplewright.core.errors import LibraryError
 from samplewright.core.events import Emitter
 from samplewright.core.library import library as library_module
 from samplewright.core.library import records, storage
+from samplewright.core.library import scanning as scanning_module
 from samplewright.core.library.library import (
     HISTORY_LIMIT,
     PresetLibrary,
@@ -217,19 +218,19 @@ def test_rescan_reads_again_only_the_files_that_changed(lib, folder):
     first, second = lib.add(FERRY), lib.add(FERRY.replace(name="Tide table"))
     other = PresetLibrary(folder, user="tomas", seed=False)
     lib.rescan()  # reads the file of the last add (written after the add's own scan)
-    before = library_module.files_parsed
+    before = scanning_module.files_parsed
     assert not lib.rescan()
-    assert library_module.files_parsed == before
+    assert scanning_module.files_parsed == before
     changed = other.save(other.get(second.id).edited(second.preset.replace(top_p=0.5)))
     (folder / "notes.json").write_text("{ not json", encoding="utf-8")
-    before = library_module.files_parsed
+    before = scanning_module.files_parsed
     report = lib.rescan()
-    assert library_module.files_parsed == before + 2  # the saved preset and the new file only
+    assert scanning_module.files_parsed == before + 2  # the saved preset and the new file only
     assert report.changed == (second.id,) and lib.get(second.id) == changed
     assert lib.get(first.id) == first and [s.name for s in lib.skipped] == ["notes.json"]
-    before = library_module.files_parsed
+    before = scanning_module.files_parsed
     lib.rescan()
-    assert library_module.files_parsed == before and [s.name for s in lib.skipped] == ["notes.json"]
+    assert scanning_module.files_parsed == before and [s.name for s in lib.skipped] == ["notes.json"]
 
 
 def test_find_by_id_name_and_case(lib):
@@ -262,7 +263,7 @@ def test_restore_under_a_taken_name_comes_back_renamed(lib):
     lib.add(FERRY.replace(temperature=0.1))
     restored = lib.restore(record.id)
     assert restored.name == "Harbour update (restored)" and restored.preset.temperature == 0.7
-    with pytest.raises(LibraryError, match="No restorable preset"):
+    with pytest.raises(LibraryError, match="holds no preset .* any more"):
         lib.restore(record.id)
 
 

@@ -143,9 +143,19 @@ STEP_SAVER = textwrap.dedent("""
 
 
 # A save writes three files (lock owner note, history copy, preset), each as: temporary file,
-# fsync it, os.replace, fsync the folder. So fsync #1-2 and replace #1 are the owner note, fsync
-# #3-4 and replace #2 the history copy, fsync #5-6 and replace #3 the preset itself.
-KILL_POINTS = [("fsync", 2, 1), ("fsync", 3, 1), ("replace", 2, 1), ("fsync", 5, 1), ("replace", 3, 1), ("fsync", 6, 2)]
+# fsync it, os.replace, fsync the folder; before the history copy it creates .history and
+# .history/<id> (one folder fsync each). So fsync #1-2 and replace #1 are the owner note, fsync
+# #3-4 the new folders, fsync #5-6 and replace #2 the history copy, fsync #7-8 and replace #3
+# the preset itself.
+KILL_POINTS = [
+    ("fsync", 2, 1),
+    ("fsync", 3, 1),
+    ("fsync", 5, 1),
+    ("replace", 2, 1),
+    ("fsync", 7, 1),
+    ("replace", 3, 1),
+    ("fsync", 8, 2),
+]
 
 
 @pytest.mark.parametrize("step, nth, revision", KILL_POINTS)

@@ -129,13 +129,17 @@ def test_differences():
 
 
 finite = dict(allow_nan=False, allow_infinity=False)
+# Printable text only: names and tags refuse control and invisible characters (core/text_rules.py).
+PRINTABLE = st.characters(blacklist_categories=("Cs", "Cc", "Cf", "Zl", "Zp"))
 presets = st.builds(
     Preset,
-    name=st.text(
-        st.characters(blacklist_characters="\n\r\t", blacklist_categories=("Cs",)), min_size=1, max_size=40
-    ).filter(lambda s: s.strip() == s and s),
-    description=st.text(max_size=50),
-    tags=st.lists(st.text(min_size=1, max_size=10).map(str.strip).filter(bool), max_size=4, unique=True).map(tuple),
+    name=st.text(st.characters(blacklist_categories=("Cs", "Cc", "Cf", "Zl", "Zp")), min_size=1, max_size=40).filter(
+        lambda s: s.strip() == s and s
+    ),
+    description=st.text(PRINTABLE, max_size=50),
+    tags=st.lists(st.text(PRINTABLE, min_size=1, max_size=10).map(str.strip).filter(bool), max_size=4, unique=True).map(
+        tuple
+    ),
     temperature=st.floats(0, 5, **finite),
     top_k=st.integers(0, 1000),
     top_p=st.floats(1e-6, 1, **finite),
@@ -146,7 +150,7 @@ presets = st.builds(
     presence_penalty=st.floats(-2, 2, **finite),
     no_repeat_ngram_size=st.integers(0, 32),
     max_new_tokens=st.integers(1, 512),
-    stop=st.lists(st.text(min_size=1, max_size=5), max_size=3).map(tuple),
+    stop=st.lists(st.text(PRINTABLE, min_size=1, max_size=5), max_size=3).map(tuple),
     order=st.permutations(DEFAULT_ORDER).map(tuple),
 )
 

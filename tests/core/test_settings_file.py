@@ -15,8 +15,7 @@ from hypothesis import strategies as st
 
 from samplewright import Preset, PresetError, __version__
 from samplewright.core.errors import LibraryError
-from samplewright.core.library import library as library_module
-from samplewright.core.library import settings_file
+from samplewright.core.library import settings_file, storage
 from samplewright.core.library.importing import ImportStopped, apply_import, preview_import
 from samplewright.core.library.library import PresetLibrary
 from samplewright.core.library.settings_file import (
@@ -30,6 +29,7 @@ from samplewright.core.library.settings_file import (
     schema,
 )
 from samplewright.core.presets import DEFAULT_ORDER, MAX_TEXT
+from samplewright.core.text_rules import BIDI_CONTROLS
 
 VALIDATOR = jsonschema.Draft202012Validator
 
@@ -185,17 +185,25 @@ def test_migrators_run_one_version_step_at_a_time(monkeypatch):
 # -- property tests -----------------------------------------------------------------------------
 
 
-def text(max_size):
-    return st.text(max_size=max_size)
+# Valid presets hold printable text (core/text_rules.py): one-line fields no control or format
+# characters; descriptions and stop strings also tabs and line breaks, no bidirectional controls.
+LINE_CHARACTERS = st.characters(blacklist_categories=("Cs", "Cc", "Cf", "Zl", "Zp"))
+TEXT_CHARACTERS = st.characters(
+    blacklist_categories=("Cs", "Cc", "Zl", "Zp"), whitelist_characters="\n\t", blacklist_characters=BIDI_CONTROLS
+)
 
 
-names = st.text(min_size=1, max_size=MAX_TEXT["name"]).filter(lambda s: s.strip() and not any(c in s for c in "\n\r\t"))
+def text(max_size, alphabet=TEXT_CHARACTERS):
+    return st.text(alphabet, max_size=max_size)
+
+
+names = st.text(LINE_CHARACTERS, min_size=1, max_size=MAX_TEXT["name"]).filter(lambda s: s.strip())
 presets = st.builds(
     Preset,
     name=names,
     description=text(200),
     notes=text(300),
-    tags=st.lists(text(MAX_TEXT["tag"]), max_size=5).map(tuple),
+    tags=st.lists(text(MAX_TEXT["tag"], LINE_CHARACTERS), max_size=5).map(tuple),
     temperature=st.floats(0, 5),
     top_k=st.integers(0, 10**6),
     top_p=st.floats(0, 1, exclude_min=True),
@@ -206,7 +214,7 @@ presets = st.builds(
     presence_penalty=st.floats(-2, 2),
     no_repeat_ngram_size=st.integers(0, 32),
     max_new_tokens=st.integers(1, 512),
-    stop=st.lists(st.text(min_size=1, max_size=MAX_TEXT["stop"]), max_size=4).map(tuple),
+    stop=st.lists(st.text(TEXT_CHARACTERS, min_size=1, max_size=MAX_TEXT["stop"]), max_size=4).map(tuple),
     order=st.permutations(DEFAULT_ORDER).map(tuple),
 )
 
@@ -235,7 +243,9 @@ ODD = st.one_of(
     st.integers(-(10**15), 10**15),
 )
 FIELD_VALUES = {
-    "name": st.one_of(st.text(max_size=4), st.sampled_from(["x" * 120, "x" * 121, " ", "a\n", "a\u2028"]), ODD),
+    "name": st.one_of(
+        st.text(max_size=4), st.sampled_from(["x" * 120, "x" * 121, " ", "a\n", "a\u2028", "a\x1b[2J", "\u202e"]), ODD
+    ),
     "description": st.one_of(st.text(max_size=3), st.just("d" * 2001), ODD),
     "tags": st.one_of(st.lists(st.text(max_size=3), max_size=3), st.just(["t" * 61]), st.just(["t"] * 33), ODD),
     "temperature": st.one_of(_near(0, 5), ODD),
@@ -412,32 +422,32 @@ def test_apply_import_without_a_choice_for_a_conflict_writes_nothing(lib):
     assert snapshot(lib.folder) == before
 
 
-def test_an_import_failing_part_way_stops_whole_and_can_be_run_again(lib, monkeypatch):
+def test_an_import_failing_part_way_writes_nothing_and_can_be_run_again(lib, monkeypatch):
+    # Issue 8, defect 2 and 6: an import is whole or nothing (a preset's write failing on a full
+    # disk takes back the ones already written).
     plan = preview_import(incoming(), lib)
-    real = library_module.atomic_write
+    before = snapshot(lib.folder)
+    real = storage.atomic_write
     calls = []
 
-    def fail_on_the_third_preset(path, data):
+    def fail_on_the_second_preset(path, data):
         if not path.parent.name.startswith(".") and path.suffix == ".json":
             calls.append(path)
             if len(calls) == 2:
                 raise OSError(28, "No space left on device")
         return real(path, data)
 
-    monkeypatch.setattr(library_module, "atomic_write", fail_on_the_third_preset)
-    with pytest.raises(ImportStopped, match="is full") as err:
+    monkeypatch.setattr(storage, "atomic_write", fail_on_the_second_preset)
+    with pytest.raises(ImportStopped, match="is full.*Nothing was imported") as err:
         apply_import(plan, lib, "keep_both")
     monkeypatch.undo()
-    assert [r.name for r in err.value.written] == ["Lost property reply"]
-    assert "Not written: 'Greedy', 'Ferry strike notice'" in str(err.value)
+    assert err.value.written == () and len(calls) == 2
+    assert snapshot(lib.folder) == before and not list(lib.folder.rglob("*.partial"))
     after = PresetLibrary(lib.folder, seed=False)
-    assert after.skipped == [] and not list(lib.folder.rglob("*.partial"))
-    assert after.find("Lost property reply").preset.description == "Kinder"
-    # Running it again carries on: the written one is now unchanged.
-    plan = preview_import(incoming(), after)
-    assert [i.action for i in plan.items] == ["unchanged", "unchanged", "conflict", "add"]
-    apply_import(plan, after, "keep_both")
-    assert {"Greedy (copy)", "Ferry strike notice"} <= {r.name for r in after.records()}
+    assert after.skipped == [] and after.records() == lib.records()
+    # Running it again writes the whole plan.
+    written = apply_import(preview_import(incoming(), after), after, "keep_both")
+    assert {"Greedy (copy)", "Ferry strike notice", "Lost property reply"} <= {r.name for r in written}
 
 
 # -- check_file ---------------------------------------------------------------------------------

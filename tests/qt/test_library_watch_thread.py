@@ -8,7 +8,7 @@ import time
 
 from PySide6.QtCore import QTimer
 
-from samplewright.core.library import library as library_module
+from samplewright.core.library import scanning as scanning_module
 from samplewright.core.library.library import PresetLibrary
 from samplewright.core.presets import Preset
 from samplewright.qt.library_watch import scans_running
@@ -20,14 +20,14 @@ def slow_reads(monkeypatch):
     """Make every preset file read take SLOW_READ_S, as on a slow network folder; returns the
     threads that did the reading."""
     readers: list[int] = []
-    real = library_module.read_record_file
+    real = scanning_module.read_record_file
 
     def slow(path):
         readers.append(threading.get_ident())
         time.sleep(SLOW_READ_S)
         return real(path)
 
-    monkeypatch.setattr(library_module, "read_record_file", slow)
+    monkeypatch.setattr(scanning_module, "read_record_file", slow)
     return readers
 
 

@@ -14,11 +14,13 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import re
 from collections.abc import Mapping
 from datetime import datetime, timezone
 from typing import Any
 
 from .errors import SamplewrightError
+from .text_rules import character_problem, shown, shown_plain
 
 #: Stage names of the chain, in the order transformers' ``generate()`` applies
 #: them (penalties first, then temperature, top-k, top-p, min-p, typical).
@@ -56,11 +58,11 @@ def _fits_float(value: Any) -> bool:
 
 def _number(field: str, value: Any, low: float, high: float, *, low_open=False, high_open=False, allowed: str) -> float:
     if not _is_number(value) or not _fits_float(value):
-        raise PresetError(field, f"{value!r} is not a finite number; allowed: {allowed}")
+        raise PresetError(field, f"{shown(value)} is not a finite number; allowed: {allowed}")
     too_low = value <= low if low_open else value < low
     too_high = value >= high if high_open else value > high
     if too_low or too_high:
-        raise PresetError(field, f"{value!r} is out of range; allowed: {allowed}")
+        raise PresetError(field, f"{shown(value)} is out of range; allowed: {allowed}")
     return float(value)
 
 
@@ -68,22 +70,25 @@ def _integer(field: str, value: Any, low: int, high: int | None, allowed: str) -
     if isinstance(value, float) and math.isfinite(value) and value.is_integer():
         value = int(value)
     if not isinstance(value, int) or isinstance(value, bool):
-        raise PresetError(field, f"{value!r} is not a whole number; allowed: {allowed}")
+        raise PresetError(field, f"{shown(value)} is not a whole number; allowed: {allowed}")
     if value < low or (high is not None and value > high):
-        raise PresetError(field, f"{value!r} is out of range; allowed: {allowed}")
+        raise PresetError(field, f"{shown(value)} is out of range; allowed: {allowed}")
     return value
 
 
-def _text(field: str, value: Any, limit: int) -> str:
+def _text(field: str, value: Any, limit: int, kind: str = "text") -> str:
     if not isinstance(value, str):
-        raise PresetError(field, f"{value!r} is not text")
+        raise PresetError(field, f"{shown(value)} is not text")
     if len(value) > limit:
         raise PresetError(field, f"text of {len(value)} characters is longer than {limit}")
+    problem = character_problem(value, kind)  # kind: "line", "text" or "any" (core/text_rules.py)
+    if problem:
+        raise PresetError(field, problem)
     return value
 
 
 def _name(value: Any) -> str:
-    value = _text("name", value, MAX_TEXT["name"])
+    value = _text("name", value, MAX_TEXT["name"], "line")
     if not value.strip():
         raise PresetError("name", "a preset needs a non-empty name")
     if any(ch in value for ch in "\n\r\t"):
@@ -93,12 +98,12 @@ def _name(value: Any) -> str:
 
 def _tags(value: Any) -> tuple[str, ...]:
     if isinstance(value, str) or not isinstance(value, (list, tuple)):
-        raise PresetError("tags", f"{value!r} is not a list of text")
+        raise PresetError("tags", f"{shown(value)} is not a list of text")
     if len(value) > MAX_TAGS:
         raise PresetError("tags", f"{len(value)} tags; at most {MAX_TAGS}")
     tags = []
     for tag in value:
-        tag = _text("tags", tag, MAX_TEXT["tag"]).strip()
+        tag = _text("tags", tag, MAX_TEXT["tag"], "line").strip()
         if tag and tag not in tags:
             tags.append(tag)
     return tuple(tags)
@@ -106,7 +111,7 @@ def _tags(value: Any) -> tuple[str, ...]:
 
 def _stop(value: Any) -> tuple[str, ...]:
     if isinstance(value, str) or not isinstance(value, (list, tuple)):
-        raise PresetError("stop", f"{value!r} is not a list of text")
+        raise PresetError("stop", f"{shown(value)} is not a list of text")
     if len(value) > MAX_STOPS:
         raise PresetError("stop", f"{len(value)} stop strings; at most {MAX_STOPS}")
     stops = tuple(_text("stop", s, MAX_TEXT["stop"]) for s in value)
@@ -117,19 +122,27 @@ def _stop(value: Any) -> tuple[str, ...]:
 
 def _order(value: Any) -> tuple[str, ...]:
     if isinstance(value, str) or not isinstance(value, (list, tuple)):
-        raise PresetError("order", f"{value!r} is not a list of stage names")
+        raise PresetError("order", f"{shown(value)} is not a list of stage names")
     order = tuple(value)
     if sorted(map(str, order)) != sorted(DEFAULT_ORDER) or len(order) != len(DEFAULT_ORDER):
-        raise PresetError("order", f"{list(order)!r} must name each of {list(DEFAULT_ORDER)} exactly once")
+        raise PresetError("order", f"{shown(list(order))} must name each of {list(DEFAULT_ORDER)} exactly once")
     return order
 
 
+#: RFC 3339 section 5.6 "date-time": full date, "T", full time with seconds, and an offset.
+_DATE_TIME = re.compile(r"\d{4}-\d{2}-\d{2}[Tt]\d{2}:\d{2}:\d{2}(\.\d{1,9})?([Zz]|[+-]\d{2}:\d{2})")
+
+
 def _timestamp(field: str, value: Any) -> str:
-    value = _text(field, value, 64)
+    value = _text(field, value, 64, "line")
     try:
-        datetime.fromisoformat(value)
+        if not _DATE_TIME.fullmatch(value):
+            raise ValueError(value)
+        datetime.fromisoformat(value.upper().replace("Z", "+00:00"))
     except ValueError:
-        raise PresetError(field, f"{value!r} is not an ISO 8601 date and time") from None
+        raise PresetError(
+            field, f"{shown(value)} is not an RFC 3339 date and time (e.g. 2025-05-02T09:14:00+00:00)"
+        ) from None
     return value
 
 
@@ -224,7 +237,7 @@ def validate_field(field: str, value: Any) -> Any:
     if field == "name":
         return _name(value)
     if field in ("description", "notes"):
-        return _text(field, value, MAX_TEXT[field])
+        return _text(field, value, MAX_TEXT[field], "any" if field == "notes" else "text")
     if field == "tags":
         return _tags(value)
     if field in ("created", "modified"):
@@ -285,7 +298,9 @@ class Preset:
             raise PresetError("preset", f"expected a JSON object, got {type(mapping).__name__}")
         unknown = [key for key in mapping if key not in ALL_KEYS]
         if unknown:
-            raise PresetError(str(unknown[0]), f"unknown preset field; known fields: {', '.join(ALL_KEYS)}")
+            raise PresetError(
+                shown_plain(str(unknown[0]), 60), f"unknown preset field; known fields: {', '.join(ALL_KEYS)}"
+            )
         if "name" not in mapping:
             raise PresetError("name", "a preset needs a name")
         return cls(**dict(mapping))

@@ -4,13 +4,13 @@
 of the same name and writes nothing. :func:`apply_import` then writes the plan
 with the user's choices for conflicts.
 
-What happens to a batch that fails mid-way: presets are written one at a
-time, each atomically (a preset's file is always old or new, whole). If a
-write fails (disk full, a colleague saved the same preset since the preview,
-...), the import stops there with :class:`ImportStopped`: presets written
-before stay written (each is a normal revision, the replaced version is in its
-history), the rest are not written. Running the same import again finds the
-written ones unchanged and carries on with the rest.
+An import is whole or nothing. Holding the library's lock, every preset of
+the plan is checked against the folder as it is now (a colleague may have
+saved one since the preview) and the names of copies are chosen, free in the
+folder and among the names the plan itself adds; only when every preset can
+be written are they written. If a write then fails (a full disk, an unplugged
+drive), the presets already written are taken back: nothing is imported, and
+:class:`ImportStopped` says why.
 """
 
 from __future__ import annotations
@@ -22,8 +22,9 @@ from typing import Any
 from ..errors import LibraryError
 from ..presets import PARAMETERS, Preset
 from .library import PresetLibrary
-from .records import PresetRecord
+from .records import PresetRecord, new_id
 from .settings_file import SettingsDocument
+from .writing import Batch, PendingSave
 
 #: keep_both: the incoming preset is added as "<name> (copy)"; take_theirs / skip: the library's
 #: preset stays as it is; overwrite: the incoming preset becomes the library preset's next revision.
@@ -98,10 +99,15 @@ def _short(value: Any) -> str:
     return text if len(text) <= 40 else text[:37] + "..."
 
 
-def preview_import(document: SettingsDocument, library: PresetLibrary) -> ImportPlan:
-    """Compare a settings document with a library by preset name; writes nothing."""
+def preview_import(document: SettingsDocument, library: PresetLibrary | None) -> ImportPlan:
+    """Compare a settings document with a library by preset name; writes nothing.
+
+    Args:
+        document: the presets to import.
+        library: the library, or None for a library folder that is not there yet (empty).
+    """
     by_name: dict[str, PresetRecord] = {}
-    for record in library.records():
+    for record in library.records() if library is not None else ():
         by_name.setdefault(record.name, record)
     items = []
     for preset in document.presets:
@@ -109,7 +115,7 @@ def preview_import(document: SettingsDocument, library: PresetLibrary) -> Import
         if existing is None:
             items.append(ImportItem(preset, "add"))
             continue
-        diff = library.diff(existing, preset)
+        diff = PresetLibrary.diff(existing, preset)
         if any(field in PARAMETERS for field in diff):
             action = "conflict"
         else:
@@ -119,9 +125,9 @@ def preview_import(document: SettingsDocument, library: PresetLibrary) -> Import
 
 
 class ImportStopped(LibraryError):
-    """An import stopped part-way; ``written`` holds the records written before the failure."""
+    """An import was refused or failed; nothing was imported (``written`` is empty)."""
 
-    def __init__(self, message: str, written: tuple[PresetRecord, ...]):
+    def __init__(self, message: str, written: tuple[PresetRecord, ...] = ()):
         super().__init__(message)
         self.written = written
 
@@ -147,7 +153,7 @@ def _choices_for(plan: ImportPlan, choices: str | Mapping[str, str] | None) -> d
 def apply_import(
     plan: ImportPlan, library: PresetLibrary, choices: str | Mapping[str, str] | None = None
 ) -> tuple[PresetRecord, ...]:
-    """Write a previewed import into the library.
+    """Write a previewed import into the library, whole or not at all.
 
     Args:
         plan: from :func:`preview_import` on the same library.
@@ -160,37 +166,41 @@ def apply_import(
 
     Raises:
         LibraryError: when a conflict has no valid choice (nothing is written).
-        ImportStopped: when a write fails part-way (see the module docstring).
+        ImportStopped: when a preset cannot be written (nothing is written; see the module docstring).
     """
     wanted = _choices_for(plan, choices)
-    written: list[PresetRecord] = []
-    for item in plan.items:
-        try:
-            record = _apply_item(item, wanted.get(item.name), library)
-        except LibraryError as exc:
-            rest = [i.name for i in plan.items[plan.items.index(item) :] if i.action != "unchanged"]
-            done = ", ".join(f"'{r.name}'" for r in written) or "none"
-            raise ImportStopped(
-                f"The import stopped at '{item.name}': {exc} Written before it: {done}. "
-                f"Not written: {', '.join(repr(n) for n in rest)}. Importing the file again "
-                "carries on where it stopped.",
-                tuple(written),
-            ) from exc
-        if record is not None:
-            written.append(record)
-    return tuple(written)
+    current = ""
+    try:
+        with library.writing(f"import {len(plan.items)} preset(s)") as batch:
+            # Names the plan keeps come first, so a copy's name avoids them too.
+            order = sorted(plan.items, key=lambda item: _is_copy(item, wanted.get(item.name)))
+            pending: dict[int, PendingSave] = {}
+            for item in order:
+                current = item.name
+                prepared = _prepare_item(item, wanted.get(item.name), batch)
+                if prepared is not None:
+                    pending[plan.items.index(item)] = prepared
+            current = ""
+            return tuple(batch.write(pending[index]) for index in sorted(pending))
+    except LibraryError as exc:
+        at = f" at '{current}'" if current else ""
+        raise ImportStopped(f"The import was refused{at}: {exc} Nothing was imported.") from exc
 
 
-def _apply_item(item: ImportItem, choice: str | None, library: PresetLibrary) -> PresetRecord | None:
-    if item.action == "add":
-        return library.add(item.incoming)
+def _is_copy(item: ImportItem, choice: str | None) -> bool:
+    return item.action == "conflict" and choice == "keep_both"
+
+
+def _prepare_item(item: ImportItem, choice: str | None, batch: Batch) -> PendingSave | None:
     existing = item.existing
+    if item.action == "add":
+        return batch.prepare(PresetRecord(new_id(), 0, item.incoming), 0)
     if item.action == "update" and existing is not None:
         texts = {field: getattr(item.incoming, field) for field in _TEXT_FIELDS}
-        return library.save(existing.edited(existing.preset.replace(**texts)))
-    if item.action == "conflict" and choice == "keep_both":
-        return library.add(item.incoming.replace(name=library.unused_name(item.name, "copy")))
+        return batch.prepare(existing.edited(existing.preset.replace(**texts)), existing.revision)
+    if _is_copy(item, choice):
+        return batch.prepare(PresetRecord(new_id(), 0, item.incoming), 0, copy_label="copy")
     if item.action == "conflict" and choice == "overwrite" and existing is not None:
         incoming = item.incoming.replace(created=existing.preset.created)
-        return library.save(existing.edited(incoming))
+        return batch.prepare(existing.edited(incoming), existing.revision)
     return None

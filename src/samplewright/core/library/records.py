@@ -13,7 +13,6 @@ library can list a bad file as skipped without touching it.
 
 from __future__ import annotations
 
-import contextlib
 import dataclasses
 import re
 import uuid
@@ -21,7 +20,8 @@ from pathlib import Path
 from typing import Any
 
 from ..presets import Preset, PresetError
-from .storage import BadContent, atomic_write, dump_json, parse_json, read_limited
+from ..text_rules import character_problem, shown
+from .storage import BadContent, dump_json, parse_json, read_limited
 
 RECORD_FORMAT = "samplewright-preset"
 RECORD_VERSION = 1
@@ -98,9 +98,9 @@ def foreign_reason(obj: Any) -> str:
     if isinstance(obj, dict) and obj.get("format") == SETTINGS_FORMAT:
         return "a settings file, not a library preset; import it instead"
     if isinstance(obj, dict) and "format" not in obj and "name" in obj:
-        return "a single preset file, not a library preset; import or add it instead"
+        return "a single preset file, not a library preset; import it instead"
     if isinstance(obj, dict) and "format" in obj:
-        return f"a file of another kind (format {str(obj['format'])[:60]!r})"
+        return f"a file of another kind (format {shown(obj['format'], 60)})"
     return "not a Samplewright library preset (no format tag)"
 
 
@@ -119,12 +119,12 @@ def decode_record(data: bytes, file_name: str | None = None) -> PresetRecord:
         raise BadContent(foreign_reason(obj))
     version = obj.get("format_version")
     if not isinstance(version, int) or isinstance(version, bool) or version < 1:
-        raise BadContent(f"format_version {str(version)[:20]!r} is not a version number")
+        raise BadContent(f"format_version {shown(version, 20)} is not a version number")
     if version > RECORD_VERSION:
         raise BadContent(f"made by a newer Samplewright (format version {version}); update Samplewright to read it")
     unknown = sorted(set(obj) - set(_KEYS))
     if unknown:
-        raise BadContent(f"unknown key {unknown[0][:60]!r}")
+        raise BadContent(f"unknown key {shown(unknown[0], 60)}")
     record = _record_from(obj)
     if file_name is not None and file_name != record.file_name:
         raise BadContent(f"the file name does not match the id inside ({record.id}); a copied file?")
@@ -140,6 +140,10 @@ def _record_from(obj: dict[str, Any]) -> PresetRecord:
     texts = {key: obj.get(key, "") for key in ("modified_at", "modified_by")}
     if not all(isinstance(value, str) and len(value) <= 200 for value in texts.values()):
         raise BadContent("modified_at and modified_by must be short text")
+    for key, value in texts.items():
+        problem = character_problem(value, "line")
+        if problem:
+            raise BadContent(f"{key} is refused: {problem}")
     try:
         preset = Preset.from_dict(obj.get("preset") or {})
     except PresetError as exc:
@@ -157,35 +161,3 @@ def read_record_file(path: Path) -> PresetRecord:
     if path.suffix.lower() != ".json":
         raise BadContent("not a preset file (library presets are .json files)")
     return decode_record(read_limited(path, MAX_RECORD_BYTES), path.name)
-
-
-def read_folder(folder: Path) -> list[PresetRecord]:
-    """The valid records in ``folder`` (a trash folder); unreadable files are passed over."""
-    found = []
-    for path in sorted(folder.glob("*.json")):
-        with contextlib.suppress(OSError, BadContent):
-            found.append(read_record_file(path))
-    return found
-
-
-def read_history(folder: Path, record_id: str) -> list[PresetRecord]:
-    """The revisions of ``record_id`` kept in its history ``folder``, newest first."""
-    found = []
-    for path in folder.glob("*.json"):
-        with contextlib.suppress(OSError, BadContent):
-            found.append(decode_record(read_limited(path, MAX_RECORD_BYTES)))
-    return sorted((r for r in found if r.id == record_id), key=lambda r: -r.revision)
-
-
-def keep_history(folder: Path, previous: PresetRecord, limit: int) -> None:
-    """Store ``previous`` as ``<folder>/<revision>.json`` and drop all but the newest ``limit``.
-
-    Raises:
-        OSError: when the history cannot be written.
-    """
-    folder.mkdir(parents=True, exist_ok=True)
-    atomic_write(folder / f"{previous.revision}.json", encode_record(previous))
-    kept = sorted((p for p in folder.glob("*.json") if p.stem.isdigit()), key=lambda p: int(p.stem))
-    for old in kept[:-limit]:
-        with contextlib.suppress(OSError):  # the save itself succeeded; a leftover is harmless
-            old.unlink()

@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import dataclasses
 import functools
+import itertools
 import json
 from collections.abc import Callable, Iterable
 from importlib import resources
@@ -25,7 +26,8 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from ..errors import LibraryError
-from ..presets import Preset, PresetError, now_iso
+from ..presets import Preset, PresetError, now_iso, validate_field
+from ..text_rules import shown, shown_plain
 from ..version import VERSION
 from .records import RECORD_FORMAT, SETTINGS_FORMAT, decode_record, foreign_reason
 from .storage import BadContent, atomic_write, current_user, dump_json, explain_os_error, parse_json, read_limited
@@ -36,6 +38,12 @@ if TYPE_CHECKING:
 FORMAT = SETTINGS_FORMAT
 FORMAT_VERSION = 1
 MAX_BYTES = 5_000_000
+#: The presets of one file, written compactly, take at most this much: with room for the
+#: header (who, when, which model: under 1 kB), so that every file that is read can be
+#: exported again within MAX_BYTES, and every exported file can be read again.
+MAX_PRESET_BYTES = MAX_BYTES - 4096
+#: How many problems one message lists at most.
+MAX_PROBLEMS = 8
 
 Migrator = Callable[[dict[str, Any]], dict[str, Any]]
 #: from_version -> function turning a document of that version into one of from_version + 1.
@@ -110,24 +118,64 @@ def _validator() -> jsonschema.Draft202012Validator:
 
 
 def schema_problem(document: Any) -> str | None:
-    """The most relevant way ``document`` breaks the schema, with its place (``presets[2].top_p``), or None."""
-    from jsonschema.exceptions import best_match
+    """Every way ``document`` breaks the schema (up to :data:`MAX_PROBLEMS`, the most relevant
+    first), each with its place (``presets[2].top_p``), joined by "; "; or None."""
+    from jsonschema.exceptions import best_match, relevance
 
-    error = best_match(_validator().iter_errors(document))
-    if error is None:
+    errors = list(itertools.islice(_validator().iter_errors(document), 200))
+    if not errors:
         return None
+    first = best_match(errors)
+    ordered = [first] + sorted((e for e in errors if e is not first), key=relevance)
+    problems: list[str] = []
+    for error in ordered:
+        problem = f"{_place(error.absolute_path)}: {_cut(error.message, 160)}"
+        if problem not in problems:
+            problems.append(problem)
+    more = len(problems) - MAX_PROBLEMS
+    return "; ".join(problems[:MAX_PROBLEMS]) + (f"; and {more} more" if more > 0 else "")
+
+
+def _place(path: Iterable[Any]) -> str:
     place = ""
-    for part in error.absolute_path:
-        place += f"[{part}]" if isinstance(part, int) else (f".{part}" if place else str(part))
-    message = error.message if len(error.message) <= 160 else error.message[:157] + "..."
-    return f"{place or 'the top level'}: {message}"
+    for part in path:
+        place += (
+            f"[{part}]" if isinstance(part, int) else (f".{shown_plain(part, 60)}" if place else shown_plain(part, 60))
+        )
+    return place or "the top level"
+
+
+def _cut(message: str, limit: int) -> str:
+    # jsonschema quotes the offending value whole; a million characters must not reach a terminal.
+    return shown_plain(message, limit)
+
+
+def preset_problems(mapping: Any) -> list[str]:
+    """Every invalid value or unknown key of a single preset's plain-JSON form (empty when
+    :meth:`Preset.from_dict` would accept it), each as "field: why"."""
+    if not isinstance(mapping, dict):
+        return [f"preset: expected a JSON object, got {type(mapping).__name__}"]
+    problems = [] if "name" in mapping else ["name: a preset needs a name"]
+    for field, value in mapping.items():
+        try:
+            if field in ("created", "modified") and value == "":
+                continue
+            validate_field(str(field), value)
+        except PresetError as exc:
+            problems.append(str(exc))
+    return problems
+
+
+def _joined(problems: list[str]) -> str:
+    more = len(problems) - MAX_PROBLEMS
+    return "; ".join(problems[:MAX_PROBLEMS]) + (f"; and {more} more" if more > 0 else "")
 
 
 def _check_unique(presets: Iterable[Preset]) -> None:
     seen: set[str] = set()
     for preset in presets:
         if preset.name in seen:
-            raise LibraryError(f"two presets are named '{preset.name}'; names in a settings file must differ")
+            raise LibraryError(f"two presets are named {shown(preset.name)}; names in a settings file must differ")
         seen.add(preset.name)
 
 
@@ -175,11 +223,13 @@ def export_settings(
     problem = schema_problem(document)
     if problem:
         raise LibraryError(f"Cannot export: {problem}.")
-    data = dump_json(document)
-    if len(data) > MAX_BYTES:
+    if _presets_size(document["presets"]) > MAX_PRESET_BYTES:
         raise LibraryError(
             f"Cannot export: the file would be larger than {MAX_BYTES // 1_000_000} MB; export fewer presets."
         )
+    data = dump_json(document)
+    if len(data) > MAX_BYTES:  # readable layout does not fit: the compact one does (MAX_PRESET_BYTES)
+        data = dump_json(document, compact=True)
     try:
         atomic_write(path, data)
     except OSError as exc:
@@ -230,12 +280,17 @@ def read_importable(path: str | Path) -> SettingsDocument:
         obj = parse_json(data)
     except BadContent:
         return parse_settings(data, path.name)  # refused with the settings file's own message
-    if isinstance(obj, dict) and "format" not in obj and "name" in obj:
-        try:
-            return SettingsDocument((Preset.from_dict(obj),))
-        except PresetError as exc:
-            raise LibraryError(f"{path.name} is refused: it is a preset file, but {exc}.") from None
+    if is_preset_file(obj):
+        problems = preset_problems(obj)
+        if problems:
+            raise LibraryError(f"{path.name} is refused: it is a preset file, but {_joined(problems)}.")
+        return SettingsDocument((Preset.from_dict(obj),))
     return _parse_object(obj, path.name)
+
+
+def is_preset_file(obj: Any) -> bool:
+    """Whether a parsed JSON value is a single preset's plain form (as :func:`export_preset_file` writes)."""
+    return isinstance(obj, dict) and "format" not in obj and "name" in obj
 
 
 def parse_settings(data: bytes, source: str = "the settings file") -> SettingsDocument:
@@ -274,14 +329,26 @@ def _parse_object(obj: Any, source: str) -> SettingsDocument:
         raise LibraryError(f"{source} is refused: {exc}.") from None
 
 
+def _presets_size(presets: list[dict[str, Any]]) -> int:
+    return len(dump_json(presets, compact=True))
+
+
 def _document_from(document: dict[str, Any], written_version: int) -> SettingsDocument:
-    presets = []
+    presets, problems = [], []
     for index, item in enumerate(document["presets"]):
         try:
             presets.append(Preset.from_dict(item))
-        except PresetError as exc:
-            raise LibraryError(f"presets[{index}] ({str(item.get('name'))[:120]!r}): {exc}") from None
+        except PresetError:
+            found = "; ".join(preset_problems(item))
+            problems.append(f"presets[{index}] ({shown(item.get('name'), 60)}): {found}")
+    if problems:
+        raise LibraryError(_joined(problems))
     _check_unique(presets)
+    if _presets_size([p.to_dict() for p in presets]) > MAX_PRESET_BYTES:
+        raise LibraryError(
+            f"its presets take more than {MAX_PRESET_BYTES / 1_000_000:.3f} MB when written out, so they "
+            f"could not be exported again within {MAX_BYTES // 1_000_000} MB; split the file"
+        )
     return SettingsDocument(
         tuple(presets),
         document["exported_by"],
@@ -314,7 +381,8 @@ def check_file(path: str | Path) -> str:
     Raises:
         LibraryError: for an unreadable, oversized, non-JSON or unknown file, or
             a settings/library file that breaks its rules.
-        PresetError: for a single preset file with an invalid value or unknown key.
+        PresetError: for a single preset file with an invalid value or unknown key
+            (every one of them in the message).
     """
     path = Path(path)
     data = _read_bytes(path)
@@ -339,6 +407,10 @@ def check_file(path: str | Path) -> str:
             f"saved by {record.modified_by} at {record.modified_at}"
         )
     if isinstance(obj, dict) and "format" not in obj:
+        problems = preset_problems(obj)
+        if problems:
+            field = problems[0].split(":", 1)[0]
+            raise PresetError(field, _joined(problems)[len(field) + 2 :])
         preset = Preset.from_dict(obj)
         return f"{path.name}: a valid preset '{preset.name}' ({preset.describe()})"
     raise LibraryError(f"{path.name} is not a Samplewright file: {foreign_reason(obj)}.")

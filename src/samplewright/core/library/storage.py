@@ -10,7 +10,12 @@
   the person to wait for.
 - :func:`explain_os_error` turns an ``OSError`` into a :class:`LibraryError`
   whose message says what happened and what to do.
-- :func:`parse_json` reads untrusted JSON strictly (no NaN, no duplicate keys).
+- :func:`parse_json` reads untrusted JSON strictly (no NaN, no duplicate keys, at most
+  :data:`MAX_DEPTH` levels deep, only valid Unicode).
+- :func:`make_folder`, :func:`atomic_write` and :func:`move` are the only ways the
+  library changes files (changes.py undoes them when a later step fails);
+  :func:`refuse_link` keeps every write inside the library folder.
+- :func:`remove_leftovers` deletes what killed saves leave behind.
 
 Nothing here imports Qt or torch.
 """
@@ -32,10 +37,16 @@ import filelock
 
 from ..errors import LibraryError
 from ..presets import now_iso
+from ..text_rules import shown, surrogate_problem
 
 LOCK_NAME = ".samplewright.lock"
 OWNER_NOTE_NAME = ".samplewright.lock.owner"
 TEMP_SUFFIX = ".partial"
+#: No file of ours nests deeper than 4 levels; deeper documents are refused before they are
+#: checked (jsonschema's messages recurse and would fail on ~1,000 levels).
+MAX_DEPTH = 16
+#: A temporary file this old was left by a killed save (a save takes well under a second).
+LEFTOVER_AGE_S = 300.0
 
 # Read once: os.umask can only be read by setting it.
 _UMASK = os.umask(0o022)
@@ -87,7 +98,7 @@ def _unique_keys(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
     out: dict[str, Any] = {}
     for key, value in pairs:
         if key in out:
-            raise BadContent(f"the key {key[:60]!r} appears twice in one object")
+            raise BadContent(f"the key {shown(key, 60)} appears twice in one object")
         out[key] = value
     return out
 
@@ -103,22 +114,60 @@ def parse_json(data: bytes) -> Any:
     except UnicodeDecodeError:
         raise BadContent("not UTF-8 text") from None
     try:
-        return json.loads(text, parse_constant=_reject_constant, parse_int=_bounded_int, object_pairs_hook=_unique_keys)
+        value = json.loads(
+            text, parse_constant=_reject_constant, parse_int=_bounded_int, object_pairs_hook=_unique_keys
+        )
     except json.JSONDecodeError as exc:
         raise BadContent(f"not valid JSON ({exc.msg} at line {exc.lineno}, column {exc.colno})") from None
     except RecursionError:
         raise BadContent("not usable JSON (nested too deeply)") from None
     except ValueError as exc:  # our own checks above, or an integer with too many digits
         raise BadContent(f"not usable JSON ({str(exc)[:120]})") from None
+    problem = structure_problem(value)
+    if problem:
+        raise BadContent(problem)
+    return value
 
 
-def dump_json(obj: Any) -> bytes:
-    """Human-readable, diff-friendly JSON bytes: sorted keys, indent 2, final newline."""
-    text = json.dumps(obj, indent=2, sort_keys=True, ensure_ascii=False) + "\n"
+def _place(path: tuple[str | int, ...]) -> str:
+    out = ""
+    for part in path:
+        out += f"[{part}]" if isinstance(part, int) else (f".{part}" if out else part)
+    return out or "the top level"
+
+
+def structure_problem(value: Any) -> str | None:
+    """Why a parsed JSON value is unusable, or None: nested deeper than :data:`MAX_DEPTH`, or
+    text (a key or a value) that is not valid Unicode, named by its place (``presets[0].name``)."""
+    stack: list[tuple[Any, int, tuple[str | int, ...]]] = [(value, 1, ())]
+    while stack:
+        item, depth, path = stack.pop()
+        if isinstance(item, (dict, list)) and depth > MAX_DEPTH:
+            return f"nested more than {MAX_DEPTH} levels deep (at {shown(_place(path), 60)})"
+        if isinstance(item, dict):
+            for key, inner in item.items():
+                problem = surrogate_problem(key)
+                if problem:
+                    return f"a key at {shown(_place(path), 60)} is refused: {problem}"
+                stack.append((inner, depth + 1, (*path, key)))
+        elif isinstance(item, list):
+            stack.extend((inner, depth + 1, (*path, index)) for index, inner in enumerate(item))
+        elif isinstance(item, str):
+            problem = surrogate_problem(item)
+            if problem:
+                return f"the text at {shown(_place(path), 60)} is refused: {problem}"
+    return None
+
+
+def dump_json(obj: Any, compact: bool = False) -> bytes:
+    """Human-readable, diff-friendly JSON bytes: sorted keys, indent 2, final newline
+    (``compact``: no indentation or spaces, for a file that must stay small)."""
+    layout: dict[str, Any] = {"separators": (",", ":")} if compact else {"indent": 2}
+    text = json.dumps(obj, sort_keys=True, ensure_ascii=False, **layout) + "\n"
     try:
         return text.encode("utf-8")
     except UnicodeEncodeError:  # a lone surrogate: only an escaped form is valid UTF-8
-        return (json.dumps(obj, indent=2, sort_keys=True, ensure_ascii=True) + "\n").encode("ascii")
+        return (json.dumps(obj, sort_keys=True, ensure_ascii=True, **layout) + "\n").encode("ascii")
 
 
 def fsync_folder(folder: Path) -> None:
@@ -167,6 +216,54 @@ def _set_shared_mode(temp: str, target: Path) -> None:
         mode = 0o666 & ~_UMASK
     with contextlib.suppress(OSError, NotImplementedError):
         os.chmod(temp, mode)
+
+
+def make_folder(path: Path) -> None:
+    """Create one folder (its parent must exist).
+
+    Raises:
+        OSError: when it cannot be created (FileExistsError when something is there).
+    """
+    os.mkdir(path)
+    fsync_folder(Path(path).parent)
+
+
+def refuse_link(library: Path, path: Path) -> None:
+    """Refuse to write at ``path`` when it, or a folder between ``library`` and it, is a
+    symbolic link: a write must never land outside the library folder.
+
+    Raises:
+        LibraryError: naming the link and where it points.
+    """
+    library, path = Path(library), Path(path)
+    relative = path.relative_to(library)
+    current = library
+    for part in relative.parts:
+        current = current / part
+        if current.is_symlink():
+            target = os.readlink(current)
+            raise LibraryError(
+                f"{current} is a symbolic link (to {shown(target, 120)}); Samplewright never writes "
+                "through a link in the library folder. Nothing in the library was changed; replace "
+                "the link with a real folder or file."
+            )
+
+
+def remove_leftovers(folders: list[Path], older_than: float = LEFTOVER_AGE_S) -> int:
+    """Delete temporary files (``*.partial``) older than ``older_than`` seconds that killed saves
+    left in ``folders``; call it holding the lock. Returns how many were removed."""
+    import time
+
+    removed, limit = 0, time.time() - older_than
+    for folder in folders:
+        with contextlib.suppress(OSError):
+            for entry in os.scandir(folder):
+                if entry.name.startswith(".") and entry.name.endswith(TEMP_SUFFIX):
+                    with contextlib.suppress(OSError):
+                        if entry.stat(follow_symlinks=False).st_mtime < limit:
+                            os.unlink(entry.path)
+                            removed += 1
+    return removed
 
 
 def move(source: Path, target: Path) -> None:
@@ -245,7 +342,15 @@ def hold_lock(folder: Path, timeout: float, user: str) -> Iterator[None]:
     # filelock would create a missing folder: that would hide an unplugged drive.
     if not folder.is_dir():
         raise folder_missing_error(folder)
-    lock = filelock.FileLock(str(folder / LOCK_NAME), timeout=timeout)
+    lock_path = folder / LOCK_NAME
+    for path in (lock_path, folder / OWNER_NOTE_NAME):
+        if path.is_symlink():
+            raise LibraryError(
+                f"Could not lock the library for writing: {path} is a symbolic link, which Samplewright "
+                "does not follow. Nothing in the library was changed; delete that link (nothing "
+                "needs it) and try again."
+            )
+    lock = filelock.FileLock(str(lock_path), timeout=timeout)
     try:
         lock.acquire()
     except filelock.Timeout:
@@ -258,7 +363,7 @@ def hold_lock(folder: Path, timeout: float, user: str) -> Iterator[None]:
             f"Try again in a moment; your changes are still open."
         ) from None
     except OSError as exc:
-        raise explain_os_error(exc, folder, "lock the library for writing") from exc
+        raise explain_os_error(exc, lock_path, "lock the library for writing") from exc
     try:
         atomic_write(folder / OWNER_NOTE_NAME, dump_json(_owner_note(user)))
     except OSError as exc:
