@@ -132,12 +132,13 @@ class RestoreCommand(_LibraryCommand):
     def __init__(self, library, trashed: PresetRecord, report):
         super().__init__(library, f"restore '{trashed.name}'", report)
         self.record_id = trashed.id
+        self.revision: int | None = trashed.revision  # the chosen one of the preset's deleted revisions
         self.restored: PresetRecord | None = None
 
     def redo(self):
         def act():
-            self.restored = self.library.restore(self.record_id)
-            self.record_id = self.restored.id
+            self.restored = self.library.restore(self.record_id, self.revision)
+            self.record_id, self.revision = self.restored.id, self.restored.revision
 
         self._safely(act)
 

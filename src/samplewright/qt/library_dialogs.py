@@ -228,7 +228,8 @@ class HistoryDialog(_FollowingDialog):
 
 
 class TrashDialog(_FollowingDialog):
-    """Lists the library's deleted presets, with a button to restore the chosen one.
+    """Lists every deleted revision in the library's trash (a preset deleted twice shows both),
+    with a button to restore the chosen one.
 
     Args:
         library: the PresetLibrary.
@@ -243,9 +244,9 @@ class TrashDialog(_FollowingDialog):
         self.note.setWordWrap(True)
         self.note.setAccessibleName("Trash summary")
         self.table = RecordTable(
-            ["Preset", "Last saved", "By"],
+            ["Preset", "Revision", "Last saved", "By"],
             "Deleted presets",
-            "Presets deleted from this library; they can be brought back",
+            "Each deleted revision of the library's presets; any of them can be brought back",
         )
         self.restore_button = QPushButton("&Restore")
         self.restore_button.setAccessibleName("Restore the chosen preset")
@@ -269,9 +270,11 @@ class TrashDialog(_FollowingDialog):
         """Read the trash again."""
         deleted = self.library.trash()
         self.note.setText(
-            f"{len(deleted)} deleted preset(s). Choose one and press Restore." if deleted else "The trash is empty."
+            f"{len(deleted)} deleted revision(s). Choose one and press Restore." if deleted else "The trash is empty."
         )
-        self.table.set_records(deleted, lambda r: (r.name, when_text(r.modified_at), r.modified_by or "—"))
+        self.table.set_records(
+            deleted, lambda r: (r.name, str(r.revision), when_text(r.modified_at), r.modified_by or "—")
+        )
         self.table.selectRow(0)
         self._update_button()
 
