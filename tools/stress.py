@@ -156,7 +156,7 @@ def read_folder(folder: Path) -> tuple[dict[tuple[str, int], set[str]], int, lis
     return found, corrupt, names
 
 
-def check(folder: Path, logs: list[Path]) -> dict[str, int | bool]:
+def check(folder: Path, logs: list[Path]) -> dict[str, object]:
     """Compare what the workers were told with what the folder holds."""
     entries = [json.loads(line) for log in logs for line in log.read_text("utf-8").splitlines()]
     reported = [e for e in entries if "digest" in e]
@@ -185,12 +185,31 @@ def check(folder: Path, logs: list[Path]) -> dict[str, int | bool]:
         "succeeded": len([t for t in timings if t["outcome"] == "ok"]),
         "conflicts": len([e for e in entries if e["op"] == "conflict"]),
         "refused": len([t for t in timings if t["outcome"].startswith("refused")]),
+        "refused, by reason": refusal_reasons(timings),
         "lost": lost,
         "corrupt": corrupt,
         "unreported writes": unreported,
         "names unique": len(names) == len(set(names)),
         "latency": [t["seconds"] for t in timings],  # type: ignore[dict-item]
     }
+
+
+REASONS = {
+    "name taken": "is already in the library",
+    "restored by someone first": "restored by someone else first",
+    "no longer in the trash": "any more (someone restored or removed it)",
+    "library busy": "is busy",
+}
+
+
+def refusal_reasons(timings: list[dict]) -> str:
+    """How many refusals of each kind (all but "other" are correct answers to a race)."""
+    counts = dict.fromkeys([*REASONS, "other"], 0)
+    for timing in timings:
+        if timing["outcome"].startswith("refused"):
+            kind = next((k for k, words in REASONS.items() if words in timing["outcome"]), "other")
+            counts[kind] += 1
+    return ", ".join(f"{kind} {n}" for kind, n in counts.items())
 
 
 def cpu_model() -> str:

@@ -87,6 +87,21 @@ def test_a_second_delete_keeps_the_first_trashed_revision(lib, folder):
     assert ana.trash() == []
 
 
+def test_a_revision_number_is_never_given_twice(lib, folder):
+    # Found by tools/stress.py: a revision restored as a copy left the trash, and a colleague's
+    # stale save over the deletion took its revision number again.
+    record = lib.add(PIER)
+    stale = PresetLibrary(folder, user="ben", seed=False)
+    second = lib.save(record.edited(PIER.replace(top_k=3)))
+    lib.delete(second.id)
+    lib.add(PIER.replace(temperature=0.3))  # the name is taken: a restore comes back as a copy
+    assert lib.restore(second.id).name == "Pier notice (restored)"
+    with pytest.raises(SaveConflict) as conflict:
+        stale.save(stale.get(record.id).edited(PIER.replace(name="Pier notice (ben)", top_k=9)))
+    assert stale.resolve_conflict(conflict.value, "overwrite").revision == 3
+    assert [(r.revision, r.preset.top_k) for r in lib.history(record.id)] == [(2, 3), (1, 0)]
+
+
 # -- 2. a refused save must leave every file as it was ---------------------------------------------
 
 

@@ -7,7 +7,10 @@ Layout inside a library folder (see docs/library.md)::
 
 Each trashed revision keeps its own file, so deleting a preset a second time
 (after a colleague saved over its deletion) never replaces the first deleted
-revision. A same-named entry gets ``.2``, ``.3``, ... before ``.json``.
+revision. A same-named entry gets ``.2``, ``.3``, ... before ``.json``. A
+revision number is given once per preset: a save takes one more than any
+revision of that preset in the folder, its history or the trash, and an entry
+restored as a copy moves into the history rather than disappearing.
 Libraries written before this layout hold ``.trash/<id>.json``; those are read too.
 
 The writing functions take a :class:`~.changes.FileChanges`, so a failure at
@@ -80,6 +83,20 @@ def keep_history(changes: FileChanges, library: Path, previous: PresetRecord, li
         target = folder / f"{previous.revision}.{n}.json"
     for _revision, old in sorted(kept)[:-limit]:
         changes.remove_later(old)
+
+
+def move_into_history(changes: FileChanges, library: Path, record: PresetRecord, source: Path) -> None:
+    """Move a trash entry of ``record`` into its preset's history (when it was restored as a
+    copy): it stays kept, and its revision number is never given to another save."""
+    folder = library / HISTORY_DIR / record.id
+    changes.make_folder(library / HISTORY_DIR)
+    changes.make_folder(folder)
+    target = folder / f"{record.revision}.json"
+    for n in itertools.count(2):
+        if not os.path.lexists(target):
+            break
+        target = folder / f"{record.revision}.{n}.json"
+    changes.move(source, target)
 
 
 def trash_files(library: Path) -> list[tuple[PresetRecord, Path]]:

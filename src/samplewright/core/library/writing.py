@@ -23,7 +23,14 @@ from typing import Literal
 from ..errors import LibraryError
 from ..presets import MAX_TEXT, Preset, now_iso
 from .changes import FileChanges
-from .history_trash import HISTORY_LIMIT, keep_history, latest_known_revision, move_to_trash, trash_files
+from .history_trash import (
+    HISTORY_LIMIT,
+    keep_history,
+    latest_known_revision,
+    move_into_history,
+    move_to_trash,
+    trash_files,
+)
 from .records import PresetRecord, encode_record, new_id, read_record_file, record_file_name
 from .storage import BadContent
 
@@ -133,7 +140,7 @@ class Batch:
         if owner is not None and owner != mine.id:
             raise LibraryError(f"A preset named '{preset.name}' is already in the library; choose another name.")
         latest = max(expected, mine.revision)
-        if theirs is None and mine.revision > 0:  # saved again after a deletion: never reuse a number
+        if latest > 0:  # never reuse a number, e.g. after a deletion or a restored older revision
             latest = max(latest, latest_known_revision(self.folder, mine.id))
         now = now_iso()
         stamped = preset.replace(created=preset.created or now, modified=now)
@@ -198,7 +205,7 @@ class Batch:
         trashed, source = max(entries, key=lambda item: item[0].revision)
         if (self.folder / trashed.file_name).exists() or trashed.name in self.names:
             record = self.add(trashed.preset, copy_label="restored")
-            self.changes.remove_later(source)
+            move_into_history(self.changes, self.folder, trashed, source)
             return record
         self.changes.move(source, self.folder / trashed.file_name)
         self.names[trashed.name] = trashed.id
