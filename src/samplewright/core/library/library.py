@@ -25,13 +25,12 @@ import time
 from collections.abc import Iterator
 from pathlib import Path
 
-import platformdirs
-
 from ..errors import LibraryError
 from ..events import Emitter
 from ..presets import Preset, differences
 from . import scanning
 from .changes import changing
+from .folders import default_library_dir, starter_presets
 from .history_trash import HISTORY_DIR, HISTORY_LIMIT, TRASH_DIR, read_history, trash_files
 from .records import PresetRecord
 from .scanning import ChangeReport, FolderSnapshot, SkippedFile
@@ -56,26 +55,6 @@ __all__ = [
 
 #: Leftovers of killed saves are looked for at most this often (seconds) per library.
 _LEFTOVER_CHECK_S = 60.0
-
-
-def starter_presets() -> tuple[Preset, ...]:
-    """The presets a new library starts with: invented examples for a ferry company's
-    communications team, read from ``resources/presets/starter.json`` (itself a settings
-    file, so the same schema and rules check it)."""
-    from importlib import resources
-
-    from .settings_file import parse_settings  # jsonschema loads only when needed
-
-    data = (resources.files("samplewright") / "resources" / "presets" / "starter.json").read_bytes()
-    return parse_settings(data, "starter.json").presets
-
-
-def default_library_dir() -> Path:
-    """The personal library folder: ``$SAMPLEWRIGHT_LIBRARY_DIR``, else ``<user data>/samplewright/library``."""
-    override = os.environ.get("SAMPLEWRIGHT_LIBRARY_DIR")
-    if override:
-        return Path(override).expanduser()
-    return Path(platformdirs.user_data_dir("samplewright", appauthor=False)) / "library"
 
 
 class PresetLibrary:

@@ -17,23 +17,18 @@ the migrators registered with :func:`register_migrator`.
 from __future__ import annotations
 
 import dataclasses
-import functools
-import itertools
-import json
 from collections.abc import Callable, Iterable
-from importlib import resources
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 from ..errors import LibraryError
-from ..presets import Preset, PresetError, now_iso, validate_field
-from ..text_rules import shown, shown_plain
+from ..presets import Preset, PresetError, now_iso
+from ..text_rules import shown
 from ..version import VERSION
 from .records import RECORD_FORMAT, SETTINGS_FORMAT, decode_record, foreign_reason
+from .settings_problems import joined, preset_problems, schema_problem
+from .settings_problems import schema as schema  # importable from here, where it was
 from .storage import BadContent, atomic_write, current_user, dump_json, explain_os_error, parse_json, read_limited
-
-if TYPE_CHECKING:
-    import jsonschema
 
 FORMAT = SETTINGS_FORMAT
 FORMAT_VERSION = 1
@@ -42,8 +37,6 @@ MAX_BYTES = 5_000_000
 #: header (who, when, which model: under 1 kB), so that every file that is read can be
 #: exported again within MAX_BYTES, and every exported file can be read again.
 MAX_PRESET_BYTES = MAX_BYTES - 4096
-#: How many problems one message lists at most.
-MAX_PROBLEMS = 8
 
 Migrator = Callable[[dict[str, Any]], dict[str, Any]]
 #: from_version -> function turning a document of that version into one of from_version + 1.
@@ -101,74 +94,6 @@ class SettingsDocument:
     tool_version: str = ""
     model: str | None = None
     format_version: int = FORMAT_VERSION
-
-
-@functools.lru_cache(maxsize=1)
-def schema() -> dict[str, Any]:
-    """The settings file's JSON Schema (``resources/settings.schema.json``)."""
-    text = (resources.files("samplewright") / "resources" / "settings.schema.json").read_text("utf-8")
-    return json.loads(text)
-
-
-@functools.lru_cache(maxsize=1)
-def _validator() -> jsonschema.Draft202012Validator:
-    import jsonschema  # here, not at module level: it takes a noticeable share of the CLI's start-up
-
-    return jsonschema.Draft202012Validator(schema())
-
-
-def schema_problem(document: Any) -> str | None:
-    """Every way ``document`` breaks the schema (up to :data:`MAX_PROBLEMS`, the most relevant
-    first), each with its place (``presets[2].top_p``), joined by "; "; or None."""
-    from jsonschema.exceptions import best_match, relevance
-
-    errors = list(itertools.islice(_validator().iter_errors(document), 200))
-    if not errors:
-        return None
-    first = best_match(errors)
-    ordered = [first] + sorted((e for e in errors if e is not first), key=relevance)
-    problems: list[str] = []
-    for error in ordered:
-        problem = f"{_place(error.absolute_path)}: {_cut(error.message, 160)}"
-        if problem not in problems:
-            problems.append(problem)
-    more = len(problems) - MAX_PROBLEMS
-    return "; ".join(problems[:MAX_PROBLEMS]) + (f"; and {more} more" if more > 0 else "")
-
-
-def _place(path: Iterable[Any]) -> str:
-    place = ""
-    for part in path:
-        place += (
-            f"[{part}]" if isinstance(part, int) else (f".{shown_plain(part, 60)}" if place else shown_plain(part, 60))
-        )
-    return place or "the top level"
-
-
-def _cut(message: str, limit: int) -> str:
-    # jsonschema quotes the offending value whole; a million characters must not reach a terminal.
-    return shown_plain(message, limit)
-
-
-def preset_problems(mapping: Any) -> list[str]:
-    """Every invalid value or unknown key of a single preset's plain-JSON form (empty when
-    :meth:`Preset.from_dict` would accept it), each as "field: why"."""
-    if not isinstance(mapping, dict):
-        return [f"preset: expected a JSON object, got {type(mapping).__name__}"]
-    problems = [] if "name" in mapping else ["name: a preset needs a name"]
-    for field, value in mapping.items():
-        try:
-            if field in ("created", "modified") and value == "":
-                continue
-            validate_field(str(field), value)
-        except PresetError as exc:
-            problems.append(str(exc))
-    return problems
-
-
-def _joined(problems: list[str]) -> str:
-    more = len(problems) - MAX_PROBLEMS
-    return "; ".join(problems[:MAX_PROBLEMS]) + (f"; and {more} more" if more > 0 else "")
 
 
 def _check_unique(presets: Iterable[Preset]) -> None:
@@ -283,7 +208,7 @@ def read_importable(path: str | Path) -> SettingsDocument:
     if is_preset_file(obj):
         problems = preset_problems(obj)
         if problems:
-            raise LibraryError(f"{path.name} is refused: it is a preset file, but {_joined(problems)}.")
+            raise LibraryError(f"{path.name} is refused: it is a preset file, but {joined(problems)}.")
         return SettingsDocument((Preset.from_dict(obj),))
     return _parse_object(obj, path.name)
 
@@ -342,7 +267,7 @@ def _document_from(document: dict[str, Any], written_version: int) -> SettingsDo
             found = "; ".join(preset_problems(item))
             problems.append(f"presets[{index}] ({shown(item.get('name'), 60)}): {found}")
     if problems:
-        raise LibraryError(_joined(problems))
+        raise LibraryError(joined(problems))
     _check_unique(presets)
     if _presets_size([p.to_dict() for p in presets]) > MAX_PRESET_BYTES:
         raise LibraryError(
@@ -410,7 +335,7 @@ def check_file(path: str | Path) -> str:
         problems = preset_problems(obj)
         if problems:
             field = problems[0].split(":", 1)[0]
-            raise PresetError(field, _joined(problems)[len(field) + 2 :])
+            raise PresetError(field, joined(problems)[len(field) + 2 :])
         preset = Preset.from_dict(obj)
         return f"{path.name}: a valid preset '{preset.name}' ({preset.describe()})"
     raise LibraryError(f"{path.name} is not a Samplewright file: {foreign_reason(obj)}.")
