@@ -42,7 +42,6 @@ def _add_common(parser: argparse.ArgumentParser) -> None:
         metavar="DIR",
         help="preset library folder (default: the one last chosen in the window, else your own)",
     )
-    parser.add_argument("--top", type=int, default=10, metavar="N", help="top tokens to show (default 10)")
     parser.add_argument("--json", action="store_true", help="print one JSON object instead of text")
 
 
@@ -68,6 +67,7 @@ def build_parser() -> argparse.ArgumentParser:
         default="",
         help="text already generated after the passage (the step comes after it)",
     )
+    step.add_argument("--top", type=int, default=10, metavar="N", help="top tokens to show (default 10)")
     step.set_defaults(handler=run_step)
 
     check = sub.add_parser("check", help="validate a preset file or a settings file")
@@ -83,10 +83,11 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _passage(args) -> str:
-    from .core.engine.passages import demo_passages, read_passage
+    """The passage to continue, checked before the model is loaded (loading takes seconds)."""
+    from .core.engine.passages import demo_passages, read_passage, require_text
 
     if args.text is not None:
-        return args.text
+        return require_text(args.text)
     if args.passage:
         return read_passage(args.passage)
     return next(iter(demo_passages().values()))
@@ -182,16 +183,31 @@ def run_audition(args) -> int:
             )
         )
         return 0
-    _print_audition(report, presets, result)
+    _print_audition(report, presets, result, engine)
     return 0
 
 
-def _print_audition(report, presets, result) -> None:
-    if result.passage_dropped:
-        print(
-            f"(the passage was longer than the model's context: its first {result.passage_dropped} "
-            "tokens were left out)"
+def passage_cut_note(dropped: int, window: int, context_length: int, max_passage_tokens: int) -> str:
+    """Why the first ``dropped`` tokens of a passage were left out, naming the limit that applied."""
+    if window >= max_passage_tokens:
+        why = (
+            f"the passage window of {window:,} tokens (Samplewright keeps at most {max_passage_tokens:,} "
+            "passage tokens, since every sample holds its own copy of the passage's cache)"
         )
+    else:
+        why = (
+            f"the passage window of {window:,} tokens (the model's context of {context_length:,} tokens, "
+            "less the room kept for the sample)"
+        )
+    return f"(the passage is longer than {why}: its first {dropped:,} tokens were left out)"
+
+
+def _print_audition(report, presets, result, engine) -> None:
+    from .core.engine.engine import MAX_PASSAGE_TOKENS
+
+    if result.passage_dropped:
+        context = engine.loaded.context_length
+        print(passage_cut_note(result.passage_dropped, engine.passage_limit, context, MAX_PASSAGE_TOKENS))
     for entry, preset in zip(report, presets, strict=False):
         print(f"\n== {entry['name']} ({preset.describe()})")
         for i, sample in enumerate(entry["samples"], 1):

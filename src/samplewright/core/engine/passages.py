@@ -58,3 +58,14 @@ def demo_passages() -> dict[str, str]:
     folder = resources.files("samplewright") / "resources" / "passages"
     files = sorted((f for f in folder.iterdir() if f.name.endswith(".txt")), key=lambda f: f.name)
     return {f.name[:-4]: _clean(f.read_text(encoding="utf-8")) for f in files}
+
+
+def require_text(text: str) -> str:
+    """``text`` when it holds something to continue; checked before a model is loaded.
+
+    Raises:
+        PassageError: the passage is empty or only white space.
+    """
+    if not text.strip():
+        raise PassageError("The passage is empty: write or paste a draft for the model to continue.")
+    return text

@@ -155,10 +155,7 @@ def export_settings(
     data = dump_json(document)
     if len(data) > MAX_BYTES:  # readable layout does not fit: the compact one does (MAX_PRESET_BYTES)
         data = dump_json(document, compact=True)
-    try:
-        atomic_write(path, data)
-    except OSError as exc:
-        raise explain_os_error(exc, path.parent, f"write {path.name}", "No file was written") from exc
+    write_file(path, data)
     return _document_from(document, FORMAT_VERSION)
 
 
@@ -172,11 +169,25 @@ def export_preset_file(preset: Preset, path: str | Path) -> Path:
         LibraryError: when the file cannot be written (the old file, if any, is untouched).
     """
     path = Path(path)
+    write_file(path, dump_json(preset.to_dict()))
+    return path
+
+
+def write_file(path: Path, data: bytes) -> None:
+    """Write an exported file atomically, outside any library.
+
+    Raises:
+        LibraryError: when its folder is missing (saying so) or cannot be written; no file was written.
+    """
+    if not path.parent.is_dir():
+        raise LibraryError(
+            f"Could not write {path.name}: the folder {path.parent} does not exist. No file was "
+            "written; create the folder or choose another place."
+        )
     try:
-        atomic_write(path, dump_json(preset.to_dict()))
+        atomic_write(path, data)
     except OSError as exc:
         raise explain_os_error(exc, path.parent, f"write {path.name}", "No file was written") from exc
-    return path
 
 
 def read_settings(path: str | Path) -> SettingsDocument:
