@@ -19,7 +19,7 @@ import pytest
 
 from samplewright import Preset, PresetError
 from samplewright.core.errors import LibraryError
-from samplewright.core.library.importing import apply_import, preview_import
+from samplewright.core.library.importing import ImportStopped, apply_import, preview_import
 from samplewright.core.library.library import HISTORY_LIMIT, PresetLibrary, SaveConflict
 from samplewright.core.library.settings_file import (
     MAX_BYTES,
@@ -432,3 +432,21 @@ def test_a_file_that_can_be_read_can_be_exported_again(tmp_path, written_out):
     out = tmp_path / "again.json"
     export_settings(document.presets, out)
     assert out.stat().st_size <= MAX_BYTES and read_settings(out).presets == document.presets
+
+
+def test_an_import_over_a_colleagues_newer_save_is_refused_whole(lib, folder):
+    # Defect 6: the plan is checked whole against the folder as it is, before the first write.
+    record = lib.add(PIER)
+    document = parse_settings(
+        settings_bytes(
+            {"name": "Ramp notice"}, {"name": "Pier notice", "temperature": 0.7, "top_p": 0.9, "notes": "updated"}
+        )
+    )
+    plan = preview_import(document, lib)
+    assert [i.action for i in plan.items] == ["add", "update"]
+    colleague = PresetLibrary(folder, user="tomas", seed=False)
+    colleague.save(colleague.get(record.id).edited(PIER.replace(top_k=4)))
+    before = snapshot(folder)
+    with pytest.raises(ImportStopped, match="tomas changed 'Pier notice'.*since the preview.*Nothing was imported"):
+        apply_import(plan, lib, "overwrite")
+    assert snapshot(folder) == before

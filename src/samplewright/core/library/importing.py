@@ -24,7 +24,7 @@ from ..presets import PARAMETERS, Preset
 from .library import PresetLibrary
 from .records import PresetRecord, new_id
 from .settings_file import SettingsDocument
-from .writing import Batch, PendingSave
+from .writing import Batch, PendingSave, SaveConflict
 
 #: keep_both: the incoming preset is added as "<name> (copy)"; take_theirs / skip: the library's
 #: preset stays as it is; overwrite: the incoming preset becomes the library preset's next revision.
@@ -182,6 +182,12 @@ def apply_import(
                     pending[plan.items.index(item)] = prepared
             current = ""
             return tuple(batch.write(pending[index]) for index in sorted(pending))
+    except SaveConflict as exc:
+        who = f"{exc.theirs.modified_by or 'someone'} changed" if exc.theirs else "someone deleted"
+        raise ImportStopped(
+            f"The import was refused: {who} '{exc.mine.name}' in the library since the preview. "
+            "Nothing was imported; preview the import again."
+        ) from exc
     except LibraryError as exc:
         at = f" at '{current}'" if current else ""
         raise ImportStopped(f"The import was refused{at}: {exc} Nothing was imported.") from exc
