@@ -249,3 +249,35 @@ def test_an_unwritable_folder_is_reported_as_such_not_as_busy(tmp_path, monkeypa
         assert "busy" not in str(err.value)
     finally:
         holder.communicate("done\n", timeout=30)
+
+
+RESTORER = textwrap.dedent("""
+    import json, sys
+    from samplewright.core.errors import LibraryError
+    from samplewright.core.library.library import PresetLibrary
+    lib = PresetLibrary(sys.argv[1], user=sys.argv[2], seed=False, lock_timeout=20)
+    chosen = lib.trash()[0]  # as the trash window listed it
+    print("ready", flush=True)
+    sys.stdin.readline()
+    try:
+        print(json.dumps({"restored": lib.restore(chosen.id, chosen.revision).name}), flush=True)
+    except LibraryError as exc:
+        print(json.dumps({"refused": str(exc)}), flush=True)
+""")
+
+
+def test_two_processes_restoring_one_preset_the_second_is_told_plainly(tmp_path):
+    # Issue 8, defect 3: the loser wrote a "(restored)" copy, then said the folder was not there.
+    lib = PresetLibrary(tmp_path, seed=False)
+    record = lib.add(BASE)
+    lib.delete(record.id)
+    workers = [spawn(RESTORER, tmp_path, who) for who in ("ana", "ben")]
+    for worker in workers:
+        assert worker.stdout.readline().strip() == "ready", worker.stderr.read()
+    for worker in workers:
+        worker.stdin.write("go\n")
+        worker.stdin.flush()
+    outcomes = sorted((json.loads(w.communicate(timeout=60)[0]) for w in workers), key=lambda o: "refused" in o)
+    assert outcomes[0] == {"restored": "Pier notice"}
+    assert "restored by someone else first" in outcomes[1]["refused"] and "not there" not in outcomes[1]["refused"]
+    assert [r.name for r in PresetLibrary(tmp_path, seed=False).records()] == ["Pier notice"]
