@@ -7,7 +7,7 @@ STAMP  := $(VENV)/.installed-stamp
 export HF_HUB_OFFLINE := 1
 export TRANSFORMERS_OFFLINE := 1
 
-.PHONY: run test test-core lint benchmark screenshots clean
+.PHONY: run test test-core lint benchmark stress screenshots clean
 
 $(STAMP): pyproject.toml Makefile tools/ensure-qt-libs.sh
 	bash tools/ensure-qt-libs.sh
@@ -37,6 +37,10 @@ test-core: $(STAMP)
 
 benchmark: $(STAMP)
 	$(PY) benchmarks/audition_speed.py
+
+# Concurrent saves, conflicts, deletes and restores on one folder; prints lost/corrupt counts.
+stress: $(STAMP)
+	$(PY) tools/stress.py --processes 8 --operations 200
 
 screenshots: $(STAMP)
 	QT_QPA_PLATFORM=offscreen $(PY) -m samplewright.qt.screenshots docs/screenshots
