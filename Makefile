@@ -45,5 +45,15 @@ stress: $(STAMP)
 screenshots: $(STAMP)
 	QT_QPA_PLATFORM=offscreen $(PY) -m samplewright.qt.screenshots docs/screenshots
 
+# The standalone bundle and its archive in dist/ (minutes); installer/smoke.sh checks it installed.
+.PHONY: installer installer-test
+installer: $(STAMP)
+	$(PY) -m pip install --quiet -e '.[bundle]'
+	$(PY) installer/build.py
+
+installer-test: $(STAMP)
+	$(PY) -m pip install --quiet -e '.[bundle]'
+	PY=$(PY) bash installer/smoke.sh
+
 clean:
 	rm -rf $(VENV) build *.egg-info .pytest_cache

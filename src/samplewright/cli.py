@@ -20,6 +20,7 @@ from pathlib import Path
 from . import cli_exchange
 from .core.errors import SamplewrightError
 from .core.presets import Preset
+from .core.version import VERSION
 
 EXIT_ERROR = 2
 
@@ -49,6 +50,12 @@ def build_parser() -> argparse.ArgumentParser:
     """The argument parser with every subcommand."""
     parser = argparse.ArgumentParser(
         prog="samplewright", description=("Audition sampling presets on a draft passage with a local model.")
+    )
+    parser.add_argument("--version", action="version", version=f"samplewright {VERSION}")
+    parser.add_argument(
+        "--self-test",
+        action="store_true",
+        help="open the window offscreen, wait for the model, render it and exit (0 = all well)",
     )
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
 
@@ -298,6 +305,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     os.environ.setdefault("HF_HUB_OFFLINE", "1")
     parser = build_parser()
     args = parser.parse_args(argv)
+    if args.self_test:
+        from .qt.self_test import run as self_test
+
+        return self_test()
     if not getattr(args, "handler", None):
         parser.print_help()
         return 0

@@ -10,6 +10,9 @@ from PySide6.QtGui import QGuiApplication
 from PySide6.QtWidgets import QApplication, QMessageBox
 
 from ..core.errors import SamplewrightError
+from . import first_start
+
+DESKTOP_ID = "org.samplewright.Samplewright"
 
 
 def make_app(argv: Sequence[str] | None = None) -> QApplication:
@@ -21,6 +24,7 @@ def make_app(argv: Sequence[str] | None = None) -> QApplication:
         app = QApplication(list(argv or sys.argv[:1]))
         app.setApplicationName("Samplewright")
         app.setOrganizationName("Samplewright")
+        app.setDesktopFileName(DESKTOP_ID)  # the desktop entry installer/install.sh puts in the menu
     return app
 
 
@@ -29,10 +33,12 @@ def main(argv: Sequence[str] | None = None) -> int:
     app = make_app(argv)
     from .main_window import MainWindow
 
+    first_start.offer_cache_folder()
     try:
         window = MainWindow()
     except SamplewrightError as error:
         QMessageBox.critical(None, "Samplewright cannot start", str(error))
         return 1
     window.show()
+    progress = first_start.watch_first_conversion(window)  # noqa: F841 (kept alive while it shows)
     return app.exec()
