@@ -12,14 +12,17 @@ from fnmatch import fnmatch
 from pathlib import Path
 
 #: Model families whose classes the bundle keeps: the default model is a Llama-architecture model;
-#: auto maps names to classes; encoder_decoder is imported by the auto classes themselves.
-KEPT_MODEL_FAMILIES = ("auto", "llama", "encoder_decoder")
+#: auto maps names to classes; encoder_decoder is imported by the auto classes themselves; the GGUF
+#: tokenizer converter (integrations/gguf/gguf_tokenizer_mapping.py) imports the tokenizers of gemma,
+#: gpt2, qwen2, qwen3_5 and t5.
+KEPT_MODEL_FAMILIES = ("auto", "llama", "encoder_decoder", "gemma", "gpt2", "qwen2", "qwen3_5", "t5")
 #: transformers sub-packages for training, serving and exporting, which the engine never uses.
-UNUSED_TRANSFORMERS = ("commands", "cli", "pipelines", "onnx", "data", "trainer", "sagemaker", "kernels")
+UNUSED_TRANSFORMERS = ("commands", "cli", "pipelines", "onnx", "data", "trainer", "sagemaker", "kernels", "exporters")
 
 #: Modules left out of the analysis: development tools, plotting, notebooks, and torch's parts for
-#: training tools, benchmarks, C++ extensions and TensorBoard. (scipy, sympy and torch._dynamo stay:
-#: torch and transformers import them while loading the model.)
+#: training tools, benchmarks, C++ extensions and TensorBoard; scipy (only transformers' object-detection
+#: losses would use it), hf_xet (downloads), Qt's network module, pyqtgraph's 3D, notebook and example
+#: parts. (sympy and torch._dynamo stay: torch imports them while loading the model.)
 EXCLUDED_MODULES = (
     "tkinter",
     "matplotlib",
@@ -53,6 +56,12 @@ EXCLUDED_MODULES = (
     "flax",
     "llm",
     "llama_cpp",
+    "scipy",
+    "hf_xet",
+    "PySide6.QtNetwork",
+    "pyqtgraph.examples",
+    "pyqtgraph.jupyter",
+    "pyqtgraph.opengl",
     "torch.utils.tensorboard",
     "torch.utils.benchmark",
     "torch.utils.bottleneck",
@@ -76,6 +85,7 @@ UNNEEDED_FILES = (
     "torch/test/*",
     "*.a",
     "*.pyi",
+    "torch/lib/libtorchbind_test.so",
     # Qt: translations (the window is in English), plugins for displays and services the window
     # never uses (VNC, framebuffer, EGL full-screen, SQL, TLS, network state, QML tooling, Designer)
     "PySide6/Qt/translations/*",
@@ -118,10 +128,14 @@ def wanted_transformers_module(name: str) -> bool:
     return len(parts) < 2 or parts[1] not in UNUSED_TRANSFORMERS
 
 
+#: Files kept although a pattern above matches them: torch will not import without this helper.
+NEEDED_FILES = ("torch/bin/torch_shm_manager", "torch/bin/torch_shm_manager.exe")
+
+
 def is_unneeded(dest: str) -> bool:
     """Whether a file bound for ``dest`` (a path inside the bundle) is left out."""
     dest = dest.replace("\\", "/")
-    return any(fnmatch(dest, pattern) for pattern in UNNEEDED_FILES)
+    return dest not in NEEDED_FILES and any(fnmatch(dest, pattern) for pattern in UNNEEDED_FILES)
 
 
 def keep_needed(toc):

@@ -55,8 +55,13 @@ for size in scalable 16x16 32x32 48x48 64x64 128x128 256x256 512x512; do
   ls "$data/icons/hicolor/$size/apps/$id".* >/dev/null 2>&1 || fail "icon $size missing"
 done
 pass "icons installed (SVG and PNG sizes)"
-[ -s "$app/THIRD-PARTY-NOTICES.txt" ] && grep -q "PySide6" "$app/THIRD-PARTY-NOTICES.txt" && grep -q "^Name: torch" "$app/THIRD-PARTY-NOTICES.txt" \
-  && grep -q "SmolLM2-135M-Instruct" "$app/THIRD-PARTY-NOTICES.txt" && pass "third-party notices name Qt, torch and the model" || fail "third-party notices incomplete"
+notices="$app/THIRD-PARTY-NOTICES.txt"
+missing=""
+for name in torch transformers numpy PySide6_Essentials shiboken6; do grep -qx "$name" "$notices" || missing="$missing $name"; done
+grep -q "Replacing the Qt libraries" "$notices" || missing="$missing (how to replace Qt)"
+grep -q "SmolLM2-135M-Instruct" "$notices" || missing="$missing (the model)"
+[ -z "$missing" ] && pass "third-party notices cover Qt (and how to replace it), torch, transformers, numpy, the model" \
+  || fail "third-party notices lack:$missing"
 linked=$(find "$app/bundle" -type f -name '*.so*' -print0 | xargs -0 -n 64 ldd 2>/dev/null | grep -E '/\.venv/|/\.pyenv/' | sort -u || true)
 [ -z "$linked" ] && pass "bundle's libraries need nothing from a Python installation" || fail "libraries outside the bundle: $linked"
 

@@ -93,3 +93,5 @@ def test_unneeded_files_are_left_out_and_needed_ones_kept():
     assert not bundle_filters.is_unneeded("PySide6/Qt/plugins/platforms/libqxcb.so")
     assert not bundle_filters.is_unneeded("PySide6/Qt/plugins/platforms/libqoffscreen.so")
     assert not bundle_filters.is_unneeded("torch/lib/libtorch_cpu.so")
+    assert bundle_filters.is_unneeded("torch/bin/test_jit")
+    assert not bundle_filters.is_unneeded("torch/bin/torch_shm_manager")  # torch/__init__.py requires it
