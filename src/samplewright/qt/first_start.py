@@ -164,7 +164,7 @@ class ConversionProgress(QProgressDialog):
 
 def watch_first_conversion(window) -> ConversionProgress | None:
     """Show :class:`ConversionProgress` over ``window`` when its first model load converts the model."""
-    if not conversion_pending(window.settings.value("model/source", "") or None):
+    if not conversion_pending(window.models.saved_source()):
         return None
     dialog = ConversionProgress(window.engine.worker, window)
     dialog.show()

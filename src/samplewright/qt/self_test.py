@@ -32,7 +32,7 @@ def run(timeout_s: float = TIMEOUT_S) -> int:
     problems: list[str] = []
     with tempfile.TemporaryDirectory(prefix="samplewright-self-test-") as scratch:
         window = MainWindow(config_dir=Path(scratch) / "config", library_dir=Path(scratch) / "library")
-        window.show_error = lambda message, detail=None: problems.append(detail or message)  # type: ignore[method-assign]
+        window.prompts.show_error = lambda message, detail=None: problems.append(detail or message)  # type: ignore[method-assign]
         dialog = first_start.watch_first_conversion(window)
         window.show()
 
