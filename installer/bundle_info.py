@@ -39,6 +39,15 @@ def package_version() -> str:
     return metadata.version("samplewright")
 
 
+def runtime_requirements() -> list[str]:
+    """Names of the distributions pyproject.toml's ``dependencies`` list (extras left out)."""
+    names = []
+    for requirement in metadata.requires("samplewright") or []:
+        if "extra ==" not in requirement:
+            names.append(re.split(r"[ ;<>=!~\[]", requirement, maxsplit=1)[0])
+    return names
+
+
 def desktop_version(path: Path = DESKTOP_FILE) -> str:
     """The program version the desktop entry names."""
     parser = configparser.ConfigParser(interpolation=None)

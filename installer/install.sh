@@ -30,6 +30,7 @@ $missing"; d=$(dirname "$d"); done
 }
 
 make_dir "$app"
+rm -rf "$app/bundle"  # a copy left by an interrupted install (no list of files was written)
 cp -R "$here/samplewright" "$app/bundle"
 cp "$here/uninstall.sh" "$here/THIRD-PARTY-NOTICES.txt" "$app/"
 files="$app/uninstall.sh
