@@ -25,7 +25,7 @@ bash tools/ensure-qt-libs.sh
 stem=$("$PY" -c 'import sys; sys.path.insert(0, "installer"); import bundle_info as b; print(b.archive_stem(b.checked_version()))')
 version=${stem#samplewright-}; version=${version%-*-*}
 archive="dist/$stem.tar.gz"
-if [ ! -f "$archive" ] || [ -n "$(find src installer pyproject.toml -type f -newer "$archive" -print -quit)" ]; then
+if [ ! -f "$archive" ] || [ -n "$(find src installer pyproject.toml -type f -newer "$archive" -not -path '*/__pycache__/*' -not -path '*.egg-info/*' -not -name smoke.sh -not -name '*.md' -print -quit)" ]; then
   "$PY" installer/build.py
 fi
 
