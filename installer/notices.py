@@ -75,12 +75,13 @@ def _pip_licenses(names: list[str]) -> str:
 
 def _system_libraries(analysis) -> str:
     """Debian packages of the system libraries in the bundle, with their copyright files."""
-    prefix = Path(sys.prefix).resolve()
+    # Files of the virtualenv and of the Python installation are covered by the sections above.
+    prefixes = {Path(sys.prefix).resolve(), Path(sys.base_prefix).resolve()}
     sources = sorted(
         {
             Path(src).resolve()
             for _, src, kind in analysis.binaries
-            if src and not Path(src).resolve().is_relative_to(prefix)
+            if src and not any(Path(src).resolve().is_relative_to(prefix) for prefix in prefixes)
         }
     )
     if not sources or not shutil.which("dpkg"):
