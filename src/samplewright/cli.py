@@ -18,6 +18,7 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from . import cli_exchange
+from .core import limits
 from .core.errors import SamplewrightError
 from .core.presets import Preset
 from .core.version import VERSION
@@ -61,9 +62,27 @@ def build_parser() -> argparse.ArgumentParser:
 
     aud = sub.add_parser("audition", help="write samples of the passage for several presets")
     _add_common(aud)
-    aud.add_argument("--samples", type=int, default=3, metavar="N", help="samples per preset (default 3)")
-    aud.add_argument("--tokens", type=int, default=48, metavar="N", help="new tokens per sample (default 48)")
-    aud.add_argument("--seed", type=int, default=0, metavar="N", help="run seed shared by all presets (default 0)")
+    aud.add_argument(
+        "--samples",
+        type=int,
+        default=limits.DEFAULT_SAMPLES,
+        metavar="N",
+        help=f"samples per preset, 1 to {limits.MAX_SAMPLES} (default {limits.DEFAULT_SAMPLES})",
+    )
+    aud.add_argument(
+        "--tokens",
+        type=int,
+        default=limits.DEFAULT_NEW_TOKENS,
+        metavar="N",
+        help=f"new tokens per sample, 1 to {limits.MAX_NEW_TOKENS} (default {limits.DEFAULT_NEW_TOKENS})",
+    )
+    aud.add_argument(
+        "--seed",
+        type=int,
+        default=limits.DEFAULT_SEED,
+        metavar="N",
+        help=f"run seed shared by all presets (default {limits.DEFAULT_SEED})",
+    )
     aud.set_defaults(handler=run_audition)
 
     step = sub.add_parser("step", help="show how each preset reshapes the next-token distribution")
@@ -158,8 +177,8 @@ def run_audition(args) -> int:
     from .core.results import AuditionRequest
     from .core.sampling.metrics import preset_metrics
 
-    _check_range("samples", args.samples, 1, 16)
-    _check_range("tokens", args.tokens, 1, 512)
+    _check_range("samples", args.samples, 1, limits.MAX_SAMPLES)
+    _check_range("tokens", args.tokens, 1, limits.MAX_NEW_TOKENS)
     if args.seed < 0:
         raise SamplewrightError(f"--seed must be a whole number 0 or more, got {args.seed}")
     passage, presets = _passage(args), _presets(args)

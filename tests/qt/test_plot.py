@@ -8,10 +8,13 @@ import sys
 from pathlib import Path
 
 import numpy as np
+from PySide6.QtCore import Qt
 
 from samplewright.core.presets import Preset
+from samplewright.core.sampling import registry
+from samplewright.qt import palette
 from samplewright.qt.distribution_plot import DistributionPlot, token_label
-from samplewright.qt.palette import OKABE_ITO, PRESET_COLOURS, STAGE_LETTERS
+from samplewright.qt.palette import OKABE_ITO, PRESET_COLOURS
 
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "examples"))
@@ -40,7 +43,7 @@ def test_items_are_built_once_and_updated_in_place(qtbot):
     assert list(widths) == sorted(widths, reverse=True)
 
 
-def test_cut_tokens_carry_the_letter_of_the_stage_that_cut_them(qtbot):
+def test_cut_tokens_carry_the_mark_of_the_stage_that_cut_them(qtbot):
     plot = DistributionPlot(top_n=20)
     qtbot.addWidget(plot)
     view = views(1, seed=3)[0]
@@ -57,7 +60,13 @@ def test_cut_tokens_carry_the_letter_of_the_stage_that_cut_them(qtbot):
     assert steady.top[0].cut_by is None and steady_cut and set(steady_cut) == {"top_p"}
     points = plot._cuts[1].points()
     assert len(points) == len(short_list.top) - 3
-    assert all(point.symbol() is plot._symbols["top_k"] for point in points)
+    top_k = registry.stage("top_k").mark
+    assert all(point.symbol() == palette.stage_symbol("top_k") for point in points)
+    assert all(point.brush().color().name().upper() == top_k.colour for point in points)
+    # The cut tokens' outline bars are hatched in top-k's pattern; the kept ones are not filled.
+    brushes = plot._ghosts[1].opts["brushes"]
+    assert [b.style() for b in brushes[3 : len(short_list.top)]] == [palette.stage_pattern("top_k")] * len(points)
+    assert all(b.style() == Qt.BrushStyle.NoBrush for b in brushes[:3])
 
 
 def test_only_the_newest_requested_step_is_drawn(qtbot):
@@ -70,13 +79,20 @@ def test_only_the_newest_requested_step_is_drawn(qtbot):
     assert plot.shown is requested[-1]
 
 
-def test_palette_is_okabe_ito_and_stage_letters_are_distinct():
+def test_palette_is_okabe_ito_and_stage_marks_are_distinct():
     # Okabe & Ito (2008) published hex values (from memory of the CUD page): orange E69F00, sky blue 56B4E9,
     # bluish green 009E73, yellow F0E442, blue 0072B2, vermillion D55E00, reddish purple CC79A7.
     assert OKABE_ITO["vermillion"] == "#D55E00" and OKABE_ITO["bluish_green"] == "#009E73"
     assert set(PRESET_COLOURS) <= set(OKABE_ITO.values())
     assert len(set(PRESET_COLOURS)) == 6
-    assert len(set(STAGE_LETTERS.values())) == len(STAGE_LETTERS)
+    # Each stage's mark differs from every other's in shape, hatch and colour, so any one cue is enough.
+    marks = [s.mark for s in registry.stages()]
+    for cue in ("shape", "hatch", "colour", "glyph"):
+        assert len({getattr(m, cue) for m in marks}) == len(marks), cue
+    # No stage is named by a single letter anywhere in the legend (issue 10: trade names only).
+    legend = palette.stage_legend()
+    assert all(s.label in legend for s in registry.stages())
+    assert not any(len(word) == 1 and word.isalpha() for word in legend.replace("·", " ").split())
 
 
 def test_token_labels_show_invisible_characters():

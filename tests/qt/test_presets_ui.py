@@ -41,7 +41,7 @@ def test_invalid_value_shows_reason_and_is_not_saved(window, qtbot, field, typed
             validate_field(field, value)
         assert label.text() == str(expected.value)
     else:
-        assert field in label.text() and FIELDS[field][2] in label.text()
+        assert field in label.text() and FIELDS[field].allowed in label.text()
     assert not editor.save_button.isEnabled()
     window.menu_actions["save"].trigger()
     assert window.library.get(record.id) == record
@@ -75,7 +75,7 @@ def test_stage_order_can_be_reordered_and_saved(window, qtbot):
 def test_every_parameter_shows_its_explanation(window):
     for field, widget in window.editor.inputs.items():
         if field in FIELDS:
-            assert FIELDS[field][3] in widget.toolTip()
+            assert FIELDS[field].help in widget.toolTip()
 
 
 def test_undo_restores_a_deleted_preset(window):

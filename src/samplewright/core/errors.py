@@ -1,7 +1,8 @@
 """Errors meant for the user: each message says what went wrong and what to do.
 
 The CLI prints them as one line; the window shows them in a message box.
-``PresetError`` (also a ``ValueError``) lives in ``presets.py``.
+``PresetError`` is also importable as ``samplewright.PresetError`` and from
+``core/presets.py``.
 """
 
 
@@ -26,3 +27,15 @@ class RequestError(SamplewrightError, ValueError):
 
     Also a ``ValueError``, so callers that caught that before keep working.
     """
+
+
+class PresetError(SamplewrightError, ValueError):
+    """A preset field holds a value outside its allowed range, or an unknown key.
+
+    ``field`` names the offending field (the user-facing name). Also a
+    ``ValueError``, as it was before it joined the user-facing errors.
+    """
+
+    def __init__(self, field: str, message: str):
+        super().__init__(f"{field}: {message}")
+        self.field = field

@@ -7,73 +7,34 @@ before a token is drawn. Its meaning is defined executably by
 This module imports neither torch nor Qt, so editing, storing and exporting
 presets stays fast.
 
-References for each parameter are in ``core/stages.py``.
+Each numeric parameter's range, default and neutral value is one typed
+:class:`~.fields.NumberField`: the stages' own in the stage registry
+(``core/sampling/registry.py``), the token limit here. References for each
+stage are in ``core/sampling/stages.py`` and the registry.
 """
 
 from __future__ import annotations
 
 import dataclasses
-import math
 import re
 from collections.abc import Mapping
 from datetime import datetime, timezone
 from typing import Any
 
-from .errors import SamplewrightError
+from . import limits
+from .errors import PresetError
+from .fields import Field, ListField, NumberField
+from .sampling import registry
 from .text_rules import character_problem, shown, shown_plain
 
 #: Stage names of the chain, in the order transformers' ``generate()`` applies
-#: them (penalties first, then temperature, top-k, top-p, min-p, typical).
-DEFAULT_ORDER: tuple[str, ...] = ("penalties", "temperature", "top_k", "top_p", "min_p", "typical_p")
+#: them (penalties first, then temperature, top-k, top-p, min-p, typical): the
+#: built-in stages in the order the registry holds them.
+DEFAULT_ORDER: tuple[str, ...] = registry.names()
 
 MAX_TEXT = {"name": 120, "description": 2000, "notes": 10000, "tag": 60, "stop": 200}
 MAX_TAGS = 32
-#: Larger than any vocabulary; the bound keeps absurd values out of tensors.
-MAX_TOP_K = 1_000_000
 MAX_STOPS = 16
-
-
-class PresetError(SamplewrightError, ValueError):
-    """A preset field holds a value outside its allowed range, or an unknown key.
-
-    ``field`` names the offending field (the user-facing name). Also a
-    ``ValueError``, as it was before it joined the user-facing errors.
-    """
-
-    def __init__(self, field: str, message: str):
-        super().__init__(f"{field}: {message}")
-        self.field = field
-
-
-def _is_number(value: Any) -> bool:
-    return isinstance(value, (int, float)) and not isinstance(value, bool)
-
-
-def _fits_float(value: Any) -> bool:
-    try:
-        return math.isfinite(float(value))
-    except OverflowError:  # an int too large for a float
-        return False
-
-
-def _number(field: str, value: Any, low: float, high: float, *, low_open=False, high_open=False, allowed: str) -> float:
-    if not _is_number(value) or not _fits_float(value):
-        raise PresetError(field, f"{shown(value)} is not a finite number; allowed: {allowed}")
-    too_low = value <= low if low_open else value < low
-    too_high = value >= high if high_open else value > high
-    if too_low or too_high:
-        raise PresetError(field, f"{shown(value)} is out of range; allowed: {allowed}")
-    return float(value)
-
-
-def _integer(field: str, value: Any, low: int, high: int | None, allowed: str) -> int:
-    if isinstance(value, float) and math.isfinite(value) and value.is_integer():
-        value = int(value)
-    if not isinstance(value, int) or isinstance(value, bool):
-        raise PresetError(field, f"{shown(value)} is not a whole number; allowed: {allowed}")
-    if value < low or (high is not None and value > high):
-        raise PresetError(field, f"{shown(value)} is out of range; allowed: {allowed}")
-    return value
 
 
 def _text(field: str, value: Any, limit: int, kind: str = "text") -> str:
@@ -124,8 +85,9 @@ def _order(value: Any) -> tuple[str, ...]:
     if isinstance(value, str) or not isinstance(value, (list, tuple)):
         raise PresetError("order", f"{shown(value)} is not a list of stage names")
     order = tuple(value)
-    if sorted(map(str, order)) != sorted(DEFAULT_ORDER) or len(order) != len(DEFAULT_ORDER):
-        raise PresetError("order", f"{shown(list(order))} must name each of {list(DEFAULT_ORDER)} exactly once")
+    known = registry.names()  # read each time: a stage registered later counts too
+    if sorted(map(str, order)) != sorted(known) or len(order) != len(known):
+        raise PresetError("order", f"{shown(list(order))} must name each of {list(known)} exactly once")
     return order
 
 
@@ -146,84 +108,38 @@ def _timestamp(field: str, value: Any) -> str:
     return value
 
 
-#: Per field: (validator, default, allowed range in words, one-sentence explanation).
-FIELDS: dict[str, tuple[Any, Any, str, str]] = {
-    "temperature": (
-        lambda v: _number("temperature", v, 0.0, 5.0, allowed="0 to 5"),
-        1.0,
-        "0 to 5",
-        "Divides the logits before the softmax: below 1 sharpens, above 1 flattens, 0 always takes the top token.",
-    ),
-    "top_k": (
-        lambda v: _integer("top_k", v, 0, MAX_TOP_K, "a whole number from 0 to 1000000 (0 = off)"),
-        0,
-        "whole number 0 to 1000000 (0 = off)",
-        "Keeps only the k most probable tokens.",
-    ),
-    "top_p": (
-        lambda v: _number("top_p", v, 0.0, 1.0, low_open=True, allowed="above 0 up to 1 (1 = off)"),
-        1.0,
-        "above 0 up to 1 (1 = off)",
-        "Nucleus sampling: keeps the most probable tokens until their probabilities add up to p.",
-    ),
-    "min_p": (
-        lambda v: _number("min_p", v, 0.0, 1.0, high_open=True, allowed="0 up to, not including, 1 (0 = off)"),
-        0.0,
-        "0 up to, not including, 1 (0 = off)",
-        "Drops every token less likely than this fraction of the top token's probability.",
-    ),
-    "typical_p": (
-        lambda v: _number("typical_p", v, 0.0, 1.0, low_open=True, allowed="above 0 up to 1 (1 = off)"),
-        1.0,
-        "above 0 up to 1 (1 = off)",
-        "Typical sampling: keeps the tokens whose surprise is closest to the average until they hold this mass.",
-    ),
-    "repetition_penalty": (
-        lambda v: _number("repetition_penalty", v, 0.0, 10.0, low_open=True, allowed="above 0 up to 10 (1 = off)"),
-        1.0,
-        "above 0 up to 10 (1 = off)",
-        "Makes every token already in the passage or sample less likely (above 1) or more likely (below 1).",
-    ),
-    "frequency_penalty": (
-        lambda v: _number("frequency_penalty", v, -2.0, 2.0, allowed="-2 to 2 (0 = off)"),
-        0.0,
-        "-2 to 2 (0 = off)",
-        "Lowers a token's logit by this much for each time the sample already used it.",
-    ),
-    "presence_penalty": (
-        lambda v: _number("presence_penalty", v, -2.0, 2.0, allowed="-2 to 2 (0 = off)"),
-        0.0,
-        "-2 to 2 (0 = off)",
-        "Lowers a token's logit by this much once the sample has used it at all.",
-    ),
-    "no_repeat_ngram_size": (
-        lambda v: _integer("no_repeat_ngram_size", v, 0, 32, "a whole number from 0 to 32 (0 = off)"),
-        0,
-        "whole number 0 to 32 (0 = off)",
-        "Forbids any token that would repeat a run of this many tokens already in the text.",
-    ),
-    "max_new_tokens": (
-        lambda v: _integer("max_new_tokens", v, 1, 512, "a whole number from 1 to 512"),
-        64,
-        "whole number 1 to 512",
-        "The longest continuation this preset writes.",
-    ),
-    "stop": (
-        _stop,
-        (),
-        "up to 16 non-empty strings",
-        "Text that ends a sample as soon as it appears in the continuation.",
-    ),
-    "order": (
-        _order,
-        DEFAULT_ORDER,
-        "each stage name exactly once",
-        "The order the stages reshape the distribution in; each stage sees the previous stage's result.",
-    ),
-}
+#: Every parameter's typed description: the stages' own fields (from the stage registry, stage by
+#: stage in the default order), then the token limit, the stop strings and the order.
+FIELDS: dict[str, Field] = {f.name: f for f in registry.stage_fields()}
+FIELDS["max_new_tokens"] = NumberField(
+    "max_new_tokens",
+    1,
+    limits.MAX_NEW_TOKENS,
+    64,
+    "The longest continuation this preset writes.",
+    integer=True,
+)
+FIELDS["stop"] = ListField(
+    "stop",
+    (),
+    f"up to {MAX_STOPS} non-empty strings",
+    "Text that ends a sample as soon as it appears in the continuation.",
+    _stop,
+)
+FIELDS["order"] = ListField(
+    "order",
+    DEFAULT_ORDER,
+    "each stage name exactly once",
+    "The order the stages reshape the distribution in; each stage sees the previous stage's result.",
+    _order,
+)
 PARAMETERS = tuple(FIELDS)
 METADATA = ("name", "description", "tags", "notes", "created", "modified")
 ALL_KEYS = METADATA + PARAMETERS
+
+
+def _default(field: str) -> Any:
+    return FIELDS[field].default
 
 
 def validate_field(field: str, value: Any) -> Any:
@@ -233,7 +149,7 @@ def validate_field(field: str, value: Any) -> Any:
         PresetError: naming the field, the bad value and the allowed range.
     """
     if field in FIELDS:
-        return FIELDS[field][0](value)
+        return FIELDS[field].check(value)
     if field == "name":
         return _name(value)
     if field in ("description", "notes"):
@@ -267,17 +183,17 @@ class Preset:
     notes: str = ""
     created: str = ""
     modified: str = ""
-    temperature: float = 1.0
-    top_k: int = 0
-    top_p: float = 1.0
-    min_p: float = 0.0
-    typical_p: float = 1.0
-    repetition_penalty: float = 1.0
-    frequency_penalty: float = 0.0
-    presence_penalty: float = 0.0
-    no_repeat_ngram_size: int = 0
-    max_new_tokens: int = 64
-    stop: tuple[str, ...] = ()
+    temperature: float = _default("temperature")
+    top_k: int = _default("top_k")
+    top_p: float = _default("top_p")
+    min_p: float = _default("min_p")
+    typical_p: float = _default("typical_p")
+    repetition_penalty: float = _default("repetition_penalty")
+    frequency_penalty: float = _default("frequency_penalty")
+    presence_penalty: float = _default("presence_penalty")
+    no_repeat_ngram_size: int = _default("no_repeat_ngram_size")
+    max_new_tokens: int = _default("max_new_tokens")
+    stop: tuple[str, ...] = _default("stop")
     order: tuple[str, ...] = DEFAULT_ORDER
 
     def __post_init__(self):
@@ -328,20 +244,10 @@ class Preset:
     def describe(self) -> str:
         """A short one-line summary of the parameters that are not at their neutral value."""
         parts = []
-        for field in (
-            "temperature",
-            "top_k",
-            "top_p",
-            "min_p",
-            "typical_p",
-            "repetition_penalty",
-            "frequency_penalty",
-            "presence_penalty",
-            "no_repeat_ngram_size",
-        ):
-            value = getattr(self, field)
-            if value != FIELDS[field][1] or field == "temperature":
-                parts.append(f"{field}={value:g}")
+        for field in registry.stage_fields():
+            value = getattr(self, field.name)
+            if value != field.neutral or field.name == "temperature":
+                parts.append(f"{field.name}={value:g}")
         if self.order != DEFAULT_ORDER:
             parts.append("order=" + ">".join(self.order))
         return ", ".join(parts)

@@ -7,6 +7,7 @@ import dataclasses
 
 import numpy as np
 
+from .limits import DEFAULT_NEW_TOKENS, DEFAULT_SAMPLES, DEFAULT_SEED
 from .presets import Preset
 
 #: Why a sample ended.
@@ -61,9 +62,9 @@ class AuditionRequest:
 
     passage: str
     presets: list[Preset]
-    samples: int = 4
-    max_new_tokens: int = 64  # budget; a row writes min(budget, preset.max_new_tokens)
-    seed: int = 0
+    samples: int = DEFAULT_SAMPLES
+    max_new_tokens: int = DEFAULT_NEW_TOKENS  # budget; a row writes min(budget, preset.max_new_tokens)
+    seed: int = DEFAULT_SEED
 
 
 @dataclasses.dataclass

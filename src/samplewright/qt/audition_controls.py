@@ -4,21 +4,31 @@ from __future__ import annotations
 
 from PySide6.QtWidgets import QCheckBox, QHBoxLayout, QLabel, QProgressBar, QPushButton, QSpinBox, QVBoxLayout, QWidget
 
+from ..core.limits import DEFAULT_NEW_TOKENS, DEFAULT_SAMPLES, DEFAULT_SEED, MAX_NEW_TOKENS, MAX_SAMPLES
+
 
 class QtAuditionControls(QWidget):
     """The run's sizes and seed, the Generate and Stop buttons and the progress bar, over ``grid``."""
 
     def __init__(self, grid: QWidget, parent: QWidget | None = None):
         super().__init__(parent)
-        self.samples_spin = _spin(1, 16, 4, "Samples per preset", "How many samples each preset writes (1–16)")
+        self.samples_spin = _spin(
+            1,
+            MAX_SAMPLES,
+            DEFAULT_SAMPLES,
+            "Samples per preset",
+            f"How many samples each preset writes (1–{MAX_SAMPLES})",
+        )
         self.tokens_spin = _spin(
             1,
-            512,
-            48,
+            MAX_NEW_TOKENS,
+            DEFAULT_NEW_TOKENS,
             "New tokens",
             "The longest continuation, in tokens; a preset's own max_new_tokens can make it shorter",
         )
-        self.seed_spin = _spin(0, 2**31 - 1, 1234, "Seed", "The random seed; the same seed gives the same samples")
+        self.seed_spin = _spin(
+            0, 2**31 - 1, DEFAULT_SEED, "Seed", "The random seed; the same seed gives the same samples"
+        )
         self.new_seed_box = QCheckBox("new seed each run")
         self.new_seed_box.setToolTip("Pick a fresh seed for every run instead of keeping this one")
         self.generate_button = QPushButton("Generate all")

@@ -3,9 +3,11 @@
 Tokens are rows, ranked by raw probability from the top; each row holds a
 group of horizontal bars: the raw distribution (grey) and each auditioned
 preset's shaped distribution (its column colour). A token that a preset's
-chain removed gets a dashed outline as long as its raw probability and the
-letter of the stage that cut it, so the stage can be told apart without
-colour. The token the inspected sample drew is shaded and arrowed.
+chain removed gets a dashed outline as long as its raw probability, hatched
+in the pattern and colour of the stage that cut it, and that stage's mark (a
+shape in its colour) beside it, so the stage can be told apart without
+colour. The marks come from the stage registry. The token the inspected
+sample drew is shaded and arrowed.
 
 Every plot item is built once; :meth:`DistributionPlot.show_step` only stores
 the newest step and a ~30 Hz timer redraws with ``setOpts``/``setData``.
@@ -19,13 +21,14 @@ from collections.abc import Sequence
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, QTimer
-from PySide6.QtGui import QFont, QPainterPath, QTransform
+from PySide6.QtGui import QBrush, QColor
 from PySide6.QtWidgets import QLabel, QSizePolicy, QVBoxLayout, QWidget
 
+from ..core.limits import MAX_PRESETS
 from ..core.results import StepView
+from ..core.sampling import registry
 from . import palette
 
-MAX_PRESETS = 6
 REDRAW_MS = 33
 GROUP_HEIGHT = 0.84
 
@@ -42,18 +45,9 @@ def _bits(value: float) -> str:
     return f"{max(0.0, value):.2f}"
 
 
-def _letter_path(letter: str) -> QPainterPath:
-    """A unit-sized glyph outline usable as a scatter symbol."""
-    font = QFont()
-    font.setBold(True)
-    path = QPainterPath()
-    path.addText(0, 0, font, letter)
-    box = path.boundingRect()
-    scale = 1.0 / max(box.width(), box.height())
-    transform = QTransform()
-    transform.scale(scale, scale)
-    transform.translate(-box.x() - box.width() / 2, -box.y() - box.height() / 2)
-    return transform.map(path)
+def _hatch_brush(stage: str) -> QBrush:
+    """The brush filling the outline of a token that ``stage`` cut: its hatch in its colour."""
+    return QBrush(QColor(registry.stage(stage).mark.colour), palette.stage_pattern(stage))
 
 
 class DistributionPlot(QWidget):
@@ -72,7 +66,7 @@ class DistributionPlot(QWidget):
         self.shown: StepView | None = None
         self.drawn_row: int | None = None
         self.redraws = 0
-        self._symbols = {stage: _letter_path(letter) for stage, letter in palette.STAGE_LETTERS.items()}
+        self._hatches: dict[str, QBrush] = {}
         self._build_plot()
         self._summary = QLabel(self)
         self._summary.setObjectName("stepSummary")
@@ -97,7 +91,8 @@ class DistributionPlot(QWidget):
         self.plot_widget.setAccessibleName("Next-token distribution plot")
         self.plot_widget.setToolTip(
             "Top tokens by raw probability. Grey: the model as it is. Coloured: after each preset. "
-            "Dashed outline with a letter: the token was cut, the letter names the stage."
+            "Hatched outline with a mark: the token was cut; the mark and hatch name the stage. "
+            + palette.stage_legend()
         )
         item = self.plot_widget.getPlotItem()
         item.invertY(True)
@@ -140,7 +135,7 @@ class DistributionPlot(QWidget):
                 brush=pg.mkBrush(None),
                 pen=pg.mkPen(colour, width=1.2, style=Qt.DashLine),
             )
-            cut = pg.ScatterPlotItem(size=13, pen=pg.mkPen(colour), brush=pg.mkBrush(colour), pxMode=True)
+            cut = pg.ScatterPlotItem(size=11, pen=pg.mkPen("#303030", width=0.6), pxMode=True)
             item.addItem(ghost)
             item.addItem(cut)
             self._ghosts.append(ghost)
@@ -196,7 +191,7 @@ class DistributionPlot(QWidget):
         self.plot_widget.setYRange(-0.5, self.top_n - 0.5, padding=0)
         self._summary.setText(
             "<i>Generate, then click a token in a sample to see the distribution "
-            "it was drawn from.</i><br>" + html.escape(palette.stage_legend())
+            "it was drawn from.</i><br>Cut by: " + palette.stage_legend_html()
         )
 
     # -- drawing ------------------------------------------------------------------
@@ -217,8 +212,8 @@ class DistributionPlot(QWidget):
             active = index < series - 1
             step = view.presets[index] if active else None
             ys = rows + (offsets[index + 1] if active else 0)
-            # Letters of different presets sit in their own columns so they never overlap.
-            self._draw_preset(index, step, n, ys, bar_h, letter_x=peak * (0.045 + 0.055 * index))
+            # Marks of different presets sit in their own columns so they never overlap.
+            self._draw_preset(index, step, n, ys, bar_h, mark_x=peak * (0.045 + 0.055 * index))
         self._draw_drawn_mark(view, n, peak)
         labels = [(float(r), token_label(t)) for r, t in enumerate(view.top_texts[:n])]
         if self.drawn_row is not None:
@@ -228,23 +223,33 @@ class DistributionPlot(QWidget):
         self.plot_widget.setXRange(0, max(peak, 1e-6) * 1.08, padding=0)
         self._summary.setText(self._summary_html(view, names))
 
-    def _draw_preset(self, index: int, step, n: int, ys: np.ndarray, bar_h: float, letter_x: float) -> None:
+    def _draw_preset(self, index: int, step, n: int, ys: np.ndarray, bar_h: float, mark_x: float) -> None:
         shaped = np.zeros(self.top_n)
         ghost = np.zeros(self.top_n)
-        cut_x, cut_y, cut_symbols = [], [], []
+        hatches: list[QBrush | None] = [None] * self.top_n
+        cut_x, cut_y, cut_symbols, cut_brushes = [], [], [], []
         if step is not None:
             for r, row in enumerate(step.top[:n]):
                 shaped[r] = row.p
                 if row.cut_by:
                     ghost[r] = row.raw_p
-                    cut_x.append(letter_x)
+                    hatches[r] = self._hatch(row.cut_by)
+                    cut_x.append(mark_x)
                     cut_y.append(ys[r])
-                    cut_symbols.append(self._symbols.get(row.cut_by, "x"))
+                    cut_symbols.append(palette.stage_symbol(row.cut_by))
+                    cut_brushes.append(pg.mkBrush(registry.stage(row.cut_by).mark.colour))
         self._bars[index + 1].setOpts(y=ys, height=bar_h * 0.9, width=shaped)
-        self._ghosts[index].setOpts(y=ys, height=bar_h * 0.9, width=ghost)
+        self._ghosts[index].setOpts(
+            y=ys, height=bar_h * 0.9, width=ghost, brushes=[b or QBrush(Qt.BrushStyle.NoBrush) for b in hatches]
+        )
         self._bars[index + 1].setVisible(step is not None)
         self._ghosts[index].setVisible(step is not None and bool(ghost.any()))
-        self._cuts[index].setData(x=cut_x, y=cut_y, symbol=cut_symbols or "o")
+        self._cuts[index].setData(x=cut_x, y=cut_y, symbol=cut_symbols or "o", brush=cut_brushes or None)
+
+    def _hatch(self, stage: str) -> QBrush:
+        if stage not in self._hatches:
+            self._hatches[stage] = _hatch_brush(stage)
+        return self._hatches[stage]
 
     def _draw_drawn_mark(self, view: StepView, n: int, peak: float) -> None:
         self.drawn_row = None
@@ -277,7 +282,7 @@ class DistributionPlot(QWidget):
                 f"<td align='right'>{step.kept_raw_mass:.2f}</td></tr>"
             )
         parts.append("<table cellspacing='6'>" + "".join(rows) + "</table>")
-        parts.append("<small>Cut by: " + html.escape(palette.stage_legend()) + "</small>")
+        parts.append("<small>Cut by: " + palette.stage_legend_html() + "</small>")
         return "<br>".join(parts[:-2]) + "".join(parts[-2:])
 
     def _drawn_html(self, view: StepView) -> str:

@@ -28,10 +28,11 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from ..core.limits import MAX_PRESETS
 from ..core.presets import Preset
 from .library_commands import AddPresetCommand, DeletePresetCommand, RenamePresetCommand
 
-MAX_CHOSEN = 6
+MAX_CHOSEN = MAX_PRESETS
 ALL_TAGS = "All tags"
 STAR, NO_STAR = "★", "☆"
 

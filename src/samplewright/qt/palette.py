@@ -5,12 +5,18 @@ Design (CUD): How to make figures and presentations that are friendly to
 colorblind people" (J*Fly, University of Tokyo), which stays distinguishable
 under the common forms of colour-vision deficiency. Colour is never the only
 cue: each preset column carries its number, and each stage that cuts a token
-is marked by its own letter.
+is marked by its own shape and hatch as well as its colour. How each stage
+marks a cut comes from the stage registry (``core/sampling/registry.py``);
+this module only turns those plain names into Qt and pyqtgraph terms.
 """
 
 from __future__ import annotations
 
-from ..core.presets import DEFAULT_ORDER
+import html
+
+from PySide6.QtCore import Qt
+
+from ..core.sampling import registry
 
 #: Okabe & Ito (2008) colours, by their published names.
 OKABE_ITO = {
@@ -38,30 +44,34 @@ PRESET_COLOURS = (
     OKABE_ITO["sky_blue"],
 )
 
-#: One letter per stage: the second cue for "which stage cut this token".
-STAGE_LETTERS = {
-    "penalties": "R",
-    "temperature": "T",
-    "top_k": "K",
-    "top_p": "P",
-    "min_p": "M",
-    "typical_p": "Y",
+#: pyqtgraph symbol of each mark shape of the registry.
+SHAPE_SYMBOLS = {
+    "circle": "o",
+    "square": "s",
+    "triangle": "t1",
+    "diamond": "d",
+    "cross": "x",
+    "star": "star",
+    "hexagon": "h",
+    "plus": "+",
 }
 
-#: Plain names of the stages, for legends and tooltips.
-STAGE_NAMES = {
-    "penalties": "repetition penalties",
-    "temperature": "temperature",
-    "top_k": "top-k",
-    "top_p": "top-p",
-    "min_p": "min-p",
-    "typical_p": "typical sampling",
+#: Qt brush pattern of each hatch of the registry.
+HATCH_PATTERNS = {
+    "diagonal": Qt.BrushStyle.FDiagPattern,
+    "back_diagonal": Qt.BrushStyle.BDiagPattern,
+    "horizontal": Qt.BrushStyle.HorPattern,
+    "vertical": Qt.BrushStyle.VerPattern,
+    "grid": Qt.BrushStyle.CrossPattern,
+    "dots": Qt.BrushStyle.Dense6Pattern,
+    "diagonal_grid": Qt.BrushStyle.DiagCrossPattern,
 }
 
 #: Background of the token a sample drew at the current step.
 DRAWN_HIGHLIGHT = "#F0E442"
 
-assert set(STAGE_LETTERS) == set(DEFAULT_ORDER), "every stage needs a letter"
+assert set(SHAPE_SYMBOLS) == set(registry.MARK_SHAPES), "every mark shape needs a symbol"
+assert set(HATCH_PATTERNS) == set(registry.HATCHES), "every hatch needs a pattern"
 
 
 def preset_colour(index: int) -> str:
@@ -69,9 +79,37 @@ def preset_colour(index: int) -> str:
     return PRESET_COLOURS[index % len(PRESET_COLOURS)]
 
 
+def stage_symbol(name: str) -> str:
+    """The pyqtgraph symbol marking a token that stage ``name`` cut."""
+    return SHAPE_SYMBOLS[registry.stage(name).mark.shape]
+
+
+def stage_pattern(name: str) -> Qt.BrushStyle:
+    """The brush pattern filling the outline of a token that stage ``name`` cut."""
+    return HATCH_PATTERNS[registry.stage(name).mark.hatch]
+
+
 def stage_legend() -> str:
-    """One line explaining the stage letters, e.g. ``K = top-k · P = top-p``."""
-    return " · ".join(f"{STAGE_LETTERS[s]} = {STAGE_NAMES[s]}" for s in DEFAULT_ORDER)
+    """One line of plain text naming each stage's mark, e.g. ``■ top-k · ▲ top-p``."""
+    return " · ".join(f"{s.mark.glyph} {s.label}" for s in registry.stages())
+
+
+def stage_legend_html() -> str:
+    """The stage legend as rich text, each mark in its stage's colour."""
+    return " · ".join(
+        f"<span style='color:{s.mark.colour}'>{s.mark.glyph}</span> {html.escape(s.label)}" for s in registry.stages()
+    )
+
+
+def step_view_help() -> str:
+    """What the step view's bars and marks mean (the Help menu shows it)."""
+    return (
+        "Grey bars: the model's own distribution. Coloured bars: the distribution after each preset "
+        "(numbered as in the audition columns).\n\nA hatched outline marks a token a preset removed; "
+        "the mark beside it, its shape, colour and hatch, names the stage that removed it:\n"
+        + stage_legend()
+        + "\n\nThe shaded row with ▶ is the token the inspected sample drew."
+    )
 
 
 #: Background and border of the pale notices (the review caution, library and editor notices).

@@ -3,7 +3,10 @@
 Each field is checked by :func:`samplewright.core.presets.validate_field`, the
 same check the core applies, so the editor and the library can never
 disagree. An invalid value shows the reason and the allowed range beside the
-field, and Save stays disabled until every field is valid.
+field, and Save stays disabled until every field is valid. The fields, their
+help and "Allowed:" text come from the core's typed field descriptions
+(``core/presets.py`` ``FIELDS``); the stage list names each stage by its label
+from the stage registry.
 """
 
 from __future__ import annotations
@@ -25,16 +28,15 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from ..core.fields import NumberField
 from ..core.presets import FIELDS, Preset, PresetError, validate_field
+from ..core.sampling import registry
 from . import palette
 from .difference_view import value_text
 
-#: The core's numeric parameters, in its order: a whole-number default marks a whole-number field,
-#: so a field added to the core appears here without an edit.
-NUMBER_FIELDS = tuple(
-    f for f, spec in FIELDS.items() if isinstance(spec[1], (int, float)) and not isinstance(spec[1], bool)
-)
-WHOLE_NUMBERS = tuple(f for f in NUMBER_FIELDS if isinstance(FIELDS[f][1], int))
+#: The core's numeric parameters, in its order, so a field added to the core appears here without an edit.
+NUMBER_FIELDS = tuple(name for name, spec in FIELDS.items() if isinstance(spec, NumberField))
+WHOLE_NUMBERS = tuple(name for name in NUMBER_FIELDS if getattr(FIELDS[name], "integer", False))
 ERROR_STYLE = "color: #B00020;"
 HELP_STYLE = "color: #505050;"
 
@@ -58,7 +60,7 @@ def parse_field(field: str, text: str) -> Any:
 def _number(field: str, text: str) -> Any:
     """The number typed for ``field``: a decimal comma is read as a point in fractional fields only,
     and only without a point, so a thousands separator is never misread."""
-    allowed = FIELDS[field][2]
+    allowed = FIELDS[field].allowed
     if "," in text or "_" in text:
         if field in WHOLE_NUMBERS:
             raise PresetError(field, f"'{text}': write whole numbers without separators; allowed: {allowed}")
@@ -122,8 +124,8 @@ class QtPresetEditor(QWidget):
         self._add_line("description", "Description", "One line on when to use this preset.")
         self._add_line("tags", "Tags", "Words to find the preset by, separated by commas.")
         for field in NUMBER_FIELDS:
-            self._add_line(field, field, FIELDS[field][3], FIELDS[field][2])
-        self._add_text("stop", "stop", FIELDS["stop"][3] + " One per line; write \\n for a line break.")
+            self._add_line(field, field, FIELDS[field].help, FIELDS[field].allowed)
+        self._add_text("stop", "stop", FIELDS["stop"].help + " One per line; write \\n for a line break.")
         self._add_order()
         self._add_text("notes", "Notes", "Anything the team should know: what it was tuned for, by whom.")
         scroll = QScrollArea()
@@ -201,7 +203,7 @@ class QtPresetEditor(QWidget):
         column.addWidget(down)
         column.addStretch(1)
         row.addLayout(column)
-        self._add_row("order", "Stage order", holder, FIELDS["order"][3] + " Drag a stage, or use the buttons.")
+        self._add_row("order", "Stage order", holder, FIELDS["order"].help + " Drag a stage, or use the buttons.")
         self.order_list.setAccessibleName("Stage order")
 
     # -- model → widgets ------------------------------------------------------------
@@ -225,8 +227,11 @@ class QtPresetEditor(QWidget):
         self.order_list.blockSignals(True)
         self.order_list.clear()
         for stage in shown.order:
-            self.order_list.addItem(f"{palette.STAGE_LETTERS[stage]}  {stage}")
-            self.order_list.item(self.order_list.count() - 1).setData(Qt.UserRole, stage)
+            entry = registry.stage(stage)
+            self.order_list.addItem(f"{entry.label}  ({stage})")
+            item = self.order_list.item(self.order_list.count() - 1)
+            item.setData(Qt.UserRole, stage)
+            item.setToolTip(entry.summary)
         self.order_list.blockSignals(False)
         self.title.setText(
             f"<b>Editing:</b> {preset.name}" if preset else "<i>Choose a preset in the list to edit it.</i>"

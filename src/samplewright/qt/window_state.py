@@ -10,6 +10,7 @@ from typing import Any, cast
 from PySide6.QtCore import QByteArray, QSettings
 from PySide6.QtWidgets import QMainWindow, QSplitter
 
+from ..core.limits import DEFAULT_NEW_TOKENS, DEFAULT_SAMPLES, DEFAULT_SEED
 from .audition_controls import QtAuditionControls
 from .library_folder import LibraryInUse
 from .library_panel import QtLibraryList
@@ -61,9 +62,9 @@ class WindowState:
             self.passage.set_text(text, _setting_str(s, "passage/source") or None)
         self.fill_example_passage()
         for key, spin, default in (
-            ("audition/samples", self.controls.samples_spin, 4),
-            ("audition/new_tokens", self.controls.tokens_spin, 48),
-            ("audition/seed", self.controls.seed_spin, 1234),
+            ("audition/samples", self.controls.samples_spin, DEFAULT_SAMPLES),
+            ("audition/new_tokens", self.controls.tokens_spin, DEFAULT_NEW_TOKENS),
+            ("audition/seed", self.controls.seed_spin, DEFAULT_SEED),
         ):
             spin.setValue(min(max(_setting_int(s, key, default), spin.minimum()), spin.maximum()))
         self.controls.new_seed_box.setChecked(s.value("audition/new_seed", "false") == "true")

@@ -24,6 +24,7 @@ from typing import Any
 import torch
 
 from ..errors import PassageError, RequestError
+from ..limits import MAX_NEW_TOKENS
 from ..presets import Preset
 from ..results import AuditionRequest, AuditionResult, StepView, TokenEvent
 from ..sampling import inspection
@@ -31,7 +32,7 @@ from . import batch
 from .model import LoadedModel
 
 #: Tokens of context kept free for the sample (the largest max_new_tokens).
-GENERATION_ROOM = 512
+GENERATION_ROOM = MAX_NEW_TOKENS
 #: Default upper bound of the passage window (memory: one cache copy per row).
 MAX_PASSAGE_TOKENS = 1024
 

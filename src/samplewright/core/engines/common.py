@@ -12,7 +12,8 @@ from typing import Any
 import numpy as np
 import torch
 
-from ..presets import DEFAULT_ORDER, FIELDS, Preset
+from ..presets import DEFAULT_ORDER, Preset
+from ..sampling import registry
 from ..sampling.chain import RowHistory, RowParams, run_chain
 from .cuts import cut_on_tie
 
@@ -59,19 +60,8 @@ class Reading:
 
 
 def active_stages(preset: Preset) -> set[str]:
-    """Stage names whose parameters are not neutral in ``preset``."""
-    active = set()
-    if (
-        preset.repetition_penalty != 1
-        or preset.frequency_penalty != 0
-        or preset.presence_penalty != 0
-        or preset.no_repeat_ngram_size
-    ):
-        active.add("penalties")
-    for name in ("temperature", "top_k", "top_p", "min_p", "typical_p"):
-        if getattr(preset, name) != FIELDS[name][1]:
-            active.add(name)
-    return active
+    """Stage names whose parameters are not neutral in ``preset`` (neutral values: the stage registry)."""
+    return {stage.name for stage in registry.stages() if not stage.is_off(preset)}
 
 
 def order_reasons(preset: Preset, engine_order: Sequence[str], engine: str) -> list[str]:

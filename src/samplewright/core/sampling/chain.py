@@ -5,66 +5,58 @@ preset; rows sharing a stage order are processed together. :func:`shape` is
 the single-row, float64 definition of what a preset means; the engine's
 batched sampling calls the same ``run_chain``, so the two cannot drift apart.
 
-The default order is transformers' (``generate()`` builds repetition penalty
-and no-repeat n-gram first, then temperature, top-k, top-p, min-p, typical).
+Which stages exist, their functions and their neutral values come from the
+stage registry (``core/sampling/registry.py``). The default order is
+transformers' (``generate()`` builds repetition penalty and no-repeat n-gram
+first, then temperature, top-k, top-p, min-p, typical).
 """
 
 from __future__ import annotations
 
 import dataclasses
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Mapping, Sequence
 
 import numpy as np
 import torch
 
 from ..presets import Preset
-from . import stages
-
-PENALTY_PARTS = ("repetition", "frequency_presence", "no_repeat_ngram")
+from . import registry, stages
 
 
 @dataclasses.dataclass
 class RowParams:
-    """Per-row parameter tensors (length = rows) for a batch of presets."""
+    """Per-row parameter tensors (length = rows) for a batch of presets.
 
-    temperature: torch.Tensor
-    top_k: torch.Tensor
-    top_p: torch.Tensor
-    min_p: torch.Tensor
-    typical_p: torch.Tensor
-    repetition_penalty: torch.Tensor
-    frequency_penalty: torch.Tensor
-    presence_penalty: torch.Tensor
-    no_repeat_ngram_size: list[int]
+    ``values`` holds one tensor per field of every registered stage (integer
+    fields as ``torch.long``, the rest float64); ``params.top_p`` reads
+    ``params.values["top_p"]``. ``orders`` holds each row's stage order.
+    """
+
+    values: dict[str, torch.Tensor]
     orders: list[tuple[str, ...]]
 
     @classmethod
     def from_presets(cls, presets: Sequence[Preset]) -> RowParams:
         """Stack the parameters of ``presets``, one row each."""
+        values = {
+            field.name: torch.tensor(
+                [getattr(p, field.name) for p in presets], dtype=torch.long if field.integer else torch.float64
+            )
+            for field in registry.stage_fields()
+        }
+        return cls(values=values, orders=[tuple(p.order) for p in presets])
 
-        def col(name, dtype=torch.float64):
-            return torch.tensor([getattr(p, name) for p in presets], dtype=dtype)
-
-        return cls(
-            temperature=col("temperature"),
-            top_k=col("top_k", torch.long),
-            top_p=col("top_p"),
-            min_p=col("min_p"),
-            typical_p=col("typical_p"),
-            repetition_penalty=col("repetition_penalty"),
-            frequency_penalty=col("frequency_penalty"),
-            presence_penalty=col("presence_penalty"),
-            no_repeat_ngram_size=[p.no_repeat_ngram_size for p in presets],
-            orders=[tuple(p.order) for p in presets],
-        )
+    def __getattr__(self, name: str) -> torch.Tensor:
+        # Only called when normal lookup fails: a stage field by name.
+        values = self.__dict__.get("values", {})
+        if name in values:
+            return values[name]
+        raise AttributeError(name)
 
     def select(self, rows: Sequence[int]) -> RowParams:
         """The parameters of the given rows only."""
         index = torch.as_tensor(list(rows), dtype=torch.long)
-        out = {f.name: getattr(self, f.name) for f in dataclasses.fields(self)}
-        for name, value in out.items():
-            out[name] = value[index] if isinstance(value, torch.Tensor) else [value[i] for i in rows]
-        return RowParams(**out)
+        return RowParams({name: value[index] for name, value in self.values.items()}, [self.orders[i] for i in rows])
 
 
 @dataclasses.dataclass
@@ -119,42 +111,14 @@ def _checked_ids(ids: Iterable[int], vocab: int) -> list[int]:
     return ids
 
 
-def _penalties(logits, params: RowParams, history: RowHistory) -> torch.Tensor:
-    # Inside the stage: repetition, then frequency/presence, then no-repeat n-gram.
-    out = stages.repetition_penalty(logits, params.repetition_penalty, history.seen)
-    out = stages.frequency_presence(out, params.frequency_penalty, params.presence_penalty, history.counts)
-    return stages.no_repeat_ngram(out, history.banned)
-
-
-STAGES = {
-    "penalties": _penalties,
-    "temperature": lambda z, p, h: stages.temperature(z, p.temperature),
-    "top_k": lambda z, p, h: stages.top_k(z, p.top_k),
-    "top_p": lambda z, p, h: stages.top_p(z, p.top_p),
-    "min_p": lambda z, p, h: stages.min_p(z, p.min_p),
-    "typical_p": lambda z, p, h: stages.typical_p(z, p.typical_p),
-}
-
-
-def _is_neutral(name: str, params: RowParams, history: RowHistory) -> bool:
-    """True when every row's parameters leave this stage a no-op, so the batch
-    can skip it (the sorts in top-k, top-p and typical are the chain's cost)."""
-    if name == "penalties":
-        return (
-            bool((params.repetition_penalty == 1).all())
-            and bool((params.frequency_penalty == 0).all())
-            and bool((params.presence_penalty == 0).all())
-            and not bool(history.banned.any())
-        )
-    neutral = {
-        "temperature": (params.temperature, 1),
-        "top_k": (params.top_k, 0),
-        "top_p": (params.top_p, 1),
-        "min_p": (params.min_p, 0),
-        "typical_p": (params.typical_p, 1),
-    }
-    values, off = neutral[name]
-    return bool((values == off).all())
+def _is_neutral(name: str, params: RowParams) -> bool:
+    """True when every row's parameters sit at the stage's neutral values, so
+    the batch can skip it (the sorts in top-k, top-p and typical are the
+    chain's cost). The neutral values come from the stage registry."""
+    neutral = registry.stage(name).neutral
+    if not neutral:
+        return False  # a stage without fields always runs
+    return all(bool((params.values[field] == value).all()) for field, value in neutral.items())
 
 
 def _keep_one_if_empty(before: torch.Tensor, after: torch.Tensor) -> torch.Tensor:
@@ -203,7 +167,7 @@ def run_chain(logits: torch.Tensor, params: RowParams, history: RowHistory, keep
     if len(groups) == 1:
         return _run_group(logits, params, history, next(iter(groups)), keep_stages)
     final = torch.empty_like(logits)
-    after = {name: torch.empty_like(logits) for name in STAGES} if keep_stages else None
+    after = {name: torch.empty_like(logits) for name in _stages_named(groups)} if keep_stages else None
     for order, rows in groups.items():
         index = torch.as_tensor(rows, dtype=torch.long)
         part = _run_group(logits[index], params.select(rows), history.select(rows), order, keep_stages)
@@ -214,12 +178,18 @@ def run_chain(logits: torch.Tensor, params: RowParams, history: RowHistory, keep
     return ChainOutput(final, after)
 
 
+def _stages_named(groups: Mapping[tuple[str, ...], list[int]]) -> list[str]:
+    """Every stage named in any of the groups' orders, once each."""
+    return list(dict.fromkeys(name for order in groups for name in order))
+
+
 def _run_group(logits, params, history, order, keep_stages) -> ChainOutput:
     after: dict[str, torch.Tensor] | None = {} if keep_stages else None
     current = logits
     for name in order:
-        if not _is_neutral(name, params, history):
-            current = _keep_one_if_empty(current, _greedy_if_infinite(STAGES[name](current, params, history)))
+        if not _is_neutral(name, params):
+            stage = registry.stage(name)
+            current = _keep_one_if_empty(current, _greedy_if_infinite(stage.apply(current, params, history)))
         if after is not None:
             after[name] = current
     return ChainOutput(current, after)

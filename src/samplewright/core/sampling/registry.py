@@ -1,0 +1,349 @@
+"""The stage registry: everything about each sampling stage, in one entry.
+
+An entry (:class:`Stage`) holds the stage's name in a preset's ``order``, its
+label (the trade's name), how the step view marks a token the stage cut, its
+parameters with their ranges and neutral values (:class:`~..fields.NumberField`),
+the published source, and the function that applies it. The chain, the
+neutral-stage skip, the plot's legend and marks, the preset editor and the
+settings-file schema test all read from here.
+
+Adding a stage means one :func:`register` call (an entry below) plus its
+function. A stage that brings a new parameter also adds that parameter to
+:class:`~..presets.Preset` and to ``resources/settings.schema.json``: the
+preset and the file format are published contracts, and tests fail until
+both match the entry (see docs/architecture.md).
+
+A stage function takes ``(logits, params, history)``: float64 logits (rows ×
+vocab, ``-inf`` = removed), the rows' parameters (``params.values[field]``,
+one value per row) and what the rows have seen (``RowHistory``); it returns
+new logits and never modifies its input. At the neutral values of all its
+fields it must return its input unchanged (the chain then skips it).
+
+This module imports neither torch nor Qt (the stage functions import torch
+when they first run), so presets can check their ``order`` cheaply.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Callable
+from typing import TYPE_CHECKING, Any
+
+from ..fields import NumberField
+
+if TYPE_CHECKING:
+    import torch
+
+    from .chain import RowHistory, RowParams
+
+StageFunction = Callable[["torch.Tensor", "RowParams", "RowHistory"], "torch.Tensor"]
+
+#: Shapes a stage's mark can take; the Qt layer maps each to a plot symbol.
+MARK_SHAPES = ("circle", "square", "triangle", "diamond", "cross", "star", "hexagon", "plus")
+#: Hatches a cut token's outline bar can be filled with; the Qt layer maps each to a brush pattern.
+HATCHES = ("diagonal", "back_diagonal", "horizontal", "vertical", "grid", "dots", "diagonal_grid")
+
+
+@dataclasses.dataclass(frozen=True)
+class StageMark:
+    """How the step view marks a token this stage cut.
+
+    Attributes:
+        colour: hex colour of the mark and the hatch.
+        shape: one of :data:`MARK_SHAPES`, drawn beside the cut token's bar.
+        hatch: one of :data:`HATCHES`, filling the cut token's outline bar.
+        glyph: the shape as a text character, for legends written in text.
+    """
+
+    colour: str
+    shape: str
+    hatch: str
+    glyph: str
+
+
+@dataclasses.dataclass(frozen=True)
+class Stage:
+    """One sampling stage.
+
+    Attributes:
+        name: the stage's name in a preset's ``order`` (``top_p``).
+        label: the trade's name, shown to the user (``top-p``).
+        summary: one plain sentence on what the stage does.
+        source: the published source of the method (author, year, title).
+        mark: how the step view marks a token this stage cut.
+        fields: the stage's parameters, each with its range and neutral value.
+        apply: the stage function, ``(logits, params, history) -> logits``.
+    """
+
+    name: str
+    label: str
+    summary: str
+    source: str
+    mark: StageMark
+    fields: tuple[NumberField, ...]
+    apply: StageFunction
+
+    @property
+    def neutral(self) -> dict[str, float]:
+        """The value of each field at which the stage changes nothing."""
+        return {f.name: f.neutral for f in self.fields if f.neutral is not None}
+
+    def is_off(self, preset: Any) -> bool:
+        """True when every field holds its neutral value in ``preset`` (a stage without fields always acts)."""
+        return bool(self.fields) and all(getattr(preset, f.name) == f.neutral for f in self.fields)
+
+
+_STAGES: dict[str, Stage] = {}
+
+
+def register(stage: Stage) -> Stage:
+    """Add a stage at the end of the registry; returns it.
+
+    Raises:
+        ValueError: a stage of that name exists, a field name is taken, a field
+            has no neutral value, or the mark's shape or hatch is unknown.
+    """
+    if stage.name in _STAGES:
+        raise ValueError(f"a stage named {stage.name!r} is registered already")
+    taken = {f.name for s in _STAGES.values() for f in s.fields}
+    for field in stage.fields:
+        if field.name in taken:
+            raise ValueError(f"field {field.name!r} of stage {stage.name!r} belongs to another stage")
+        if field.neutral is None:
+            raise ValueError(f"field {field.name!r} of stage {stage.name!r} needs a neutral value")
+    if stage.mark.shape not in MARK_SHAPES or stage.mark.hatch not in HATCHES:
+        raise ValueError(f"stage {stage.name!r}: mark shape must be one of {MARK_SHAPES}, hatch one of {HATCHES}")
+    _STAGES[stage.name] = stage
+    return stage
+
+
+def unregister(name: str) -> None:
+    """Remove a stage (tests use this to take away a throwaway stage)."""
+    del _STAGES[name]
+
+
+def stages() -> tuple[Stage, ...]:
+    """Every registered stage, in registration order (the built-in ones in the default order)."""
+    return tuple(_STAGES.values())
+
+
+def names() -> tuple[str, ...]:
+    """The names of every registered stage, in registration order."""
+    return tuple(_STAGES)
+
+
+def stage(name: str) -> Stage:
+    """The stage called ``name``; KeyError if there is none."""
+    return _STAGES[name]
+
+
+def stage_fields() -> tuple[NumberField, ...]:
+    """Every stage's parameters, stage by stage in registration order."""
+    return tuple(f for s in _STAGES.values() for f in s.fields)
+
+
+# -- the built-in stages' functions ---------------------------------------------------------------
+# Each imports the torch kernels of core/sampling/stages.py when it first runs.
+
+
+def _penalties(logits, params, history):
+    from . import stages as kernels
+
+    # Inside the stage: repetition, then frequency/presence, then no-repeat n-gram.
+    out = kernels.repetition_penalty(logits, params.values["repetition_penalty"], history.seen)
+    out = kernels.frequency_presence(
+        out, params.values["frequency_penalty"], params.values["presence_penalty"], history.counts
+    )
+    return kernels.no_repeat_ngram(out, history.banned)
+
+
+def _temperature(logits, params, history):
+    from . import stages as kernels
+
+    return kernels.temperature(logits, params.values["temperature"])
+
+
+def _top_k(logits, params, history):
+    from . import stages as kernels
+
+    return kernels.top_k(logits, params.values["top_k"])
+
+
+def _top_p(logits, params, history):
+    from . import stages as kernels
+
+    return kernels.top_p(logits, params.values["top_p"])
+
+
+def _min_p(logits, params, history):
+    from . import stages as kernels
+
+    return kernels.min_p(logits, params.values["min_p"])
+
+
+def _typical_p(logits, params, history):
+    from . import stages as kernels
+
+    return kernels.typical_p(logits, params.values["typical_p"])
+
+
+# -- the built-in stages, in the default order ----------------------------------------------------
+# Mark colours: the "muted" qualitative scheme of Tol (2021), "Colour Schemes", SRON technical
+# note SRON/EPS/TN/09-002 (hex values from memory), kept apart from the Okabe & Ito colours that
+# tell the presets apart; shape and hatch are the second and third cues, so colour is never the only one.
+
+register(
+    Stage(
+        name="penalties",
+        label="repetition penalties",
+        summary="Makes tokens already used less likely, or forbids repeating a run of tokens.",
+        source=(
+            "Keskar et al. (2019), CTRL, arXiv:1909.05858 (repetition penalty); Paulus, Xiong & Socher (2017), "
+            "arXiv:1705.04304 (no-repeat n-gram); frequency/presence: a hosted-API convention, no paper"
+        ),
+        mark=StageMark(colour="#882255", shape="cross", hatch="grid", glyph="✕"),
+        fields=(
+            NumberField(
+                "repetition_penalty",
+                0.0,
+                10.0,
+                1.0,
+                "Makes every token already in the passage or sample less likely (above 1) or more likely (below 1).",
+                low_open=True,
+                neutral=1.0,
+            ),
+            NumberField(
+                "frequency_penalty",
+                -2.0,
+                2.0,
+                0.0,
+                "Lowers a token's logit by this much for each time the sample already used it.",
+                neutral=0.0,
+            ),
+            NumberField(
+                "presence_penalty",
+                -2.0,
+                2.0,
+                0.0,
+                "Lowers a token's logit by this much once the sample has used it at all.",
+                neutral=0.0,
+            ),
+            NumberField(
+                "no_repeat_ngram_size",
+                0,
+                32,
+                0,
+                "Forbids any token that would repeat a run of this many tokens already in the text.",
+                integer=True,
+                neutral=0,
+            ),
+        ),
+        apply=_penalties,
+    )
+)
+register(
+    Stage(
+        name="temperature",
+        label="temperature",
+        summary="Sharpens (below 1) or flattens (above 1) the whole distribution; 0 always takes the top token.",
+        source="Ackley, Hinton & Sejnowski (1985), A Learning Algorithm for Boltzmann Machines",
+        mark=StageMark(colour="#999933", shape="circle", hatch="dots", glyph="●"),
+        fields=(
+            NumberField(
+                "temperature",
+                0.0,
+                5.0,
+                1.0,
+                "Divides the logits before the softmax: below 1 sharpens, above 1 flattens, "
+                "0 always takes the top token.",
+                neutral=1.0,
+            ),
+        ),
+        apply=_temperature,
+    )
+)
+register(
+    Stage(
+        name="top_k",
+        label="top-k",
+        summary="Keeps only the k most probable tokens.",
+        source="Fan, Lewis & Dauphin (2018), Hierarchical Neural Story Generation",
+        mark=StageMark(colour="#332288", shape="square", hatch="vertical", glyph="■"),
+        fields=(
+            NumberField(
+                "top_k",
+                0,
+                1_000_000,  # larger than any vocabulary; the bound keeps absurd values out of tensors
+                0,
+                "Keeps only the k most probable tokens.",
+                integer=True,
+                neutral=0,
+            ),
+        ),
+        apply=_top_k,
+    )
+)
+register(
+    Stage(
+        name="top_p",
+        label="top-p",
+        summary="Keeps the most probable tokens until their probabilities add up to p.",
+        source="Holtzman, Buys, Du, Forbes & Choi (2020), The Curious Case of Neural Text Degeneration, eq. 2",
+        mark=StageMark(colour="#44AA99", shape="triangle", hatch="diagonal", glyph="▲"),
+        fields=(
+            NumberField(
+                "top_p",
+                0.0,
+                1.0,
+                1.0,
+                "Nucleus sampling: keeps the most probable tokens until their probabilities add up to p.",
+                low_open=True,
+                neutral=1.0,
+            ),
+        ),
+        apply=_top_p,
+    )
+)
+register(
+    Stage(
+        name="min_p",
+        label="min-p",
+        summary="Drops every token less likely than a fraction of the top token's probability.",
+        source="Nguyen et al. (2024), Turning Up the Heat: Min-p Sampling for Creative and Coherent LLM Outputs",
+        mark=StageMark(colour="#CC6677", shape="diamond", hatch="horizontal", glyph="◆"),
+        fields=(
+            NumberField(
+                "min_p",
+                0.0,
+                1.0,
+                0.0,
+                "Drops every token less likely than this fraction of the top token's probability.",
+                high_open=True,
+                neutral=0.0,
+            ),
+        ),
+        apply=_min_p,
+    )
+)
+register(
+    Stage(
+        name="typical_p",
+        label="typical",
+        summary="Keeps the tokens whose surprise is closest to the average until they hold a share of the mass.",
+        source="Meister, Pimentel, Wiher & Cotterell (2023), Locally Typical Sampling",
+        mark=StageMark(colour="#AA4499", shape="star", hatch="back_diagonal", glyph="★"),
+        fields=(
+            NumberField(
+                "typical_p",
+                0.0,
+                1.0,
+                1.0,
+                "Typical sampling: keeps the tokens whose surprise is closest to the average "
+                "until they hold this mass.",
+                low_open=True,
+                neutral=1.0,
+            ),
+        ),
+        apply=_typical_p,
+    )
+)
