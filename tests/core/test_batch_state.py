@@ -11,7 +11,7 @@ from samplewright.core.sampling import stages
 @given(st.lists(st.integers(0, 5), max_size=60), st.lists(st.integers(0, 5), max_size=30), st.integers(0, 5))
 def test_incremental_ngram_bans_equal_a_full_rescan_at_every_step(passage, sample, n):
     # stages.banned_ngram_tokens is checked against transformers' NoRepeatNGramLogitsProcessor in
-    # test_stages_reference.py; a small alphabet (0..5) makes repeated n-grams common.
+    # tests/core/test_stages_reference.py; a small alphabet (0..5) makes repeated n-grams common.
     bans = _copy_bans(NgramBans(passage, n)) if n else None
     history = list(passage)
     if bans is None:

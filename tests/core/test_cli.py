@@ -136,17 +136,18 @@ def test_check_accepts_a_preset_file(capsys, preset_files):
     [
         (["audition", "--text", "x", "--samples", "0"], "--samples"),
         (["audition", "--text", "x", "--tokens", "999"], "--tokens"),
-        (["audition", "--passage", "/nonexistent/draft.txt"], "draft.txt"),
+        (["audition", "--passage", "MISSING/draft.txt"], "draft.txt"),
         (["audition", "--text", "x", "--preset", "No Such Preset Anywhere"], "No Such Preset Anywhere"),
-        (["step", "--text", "x", "--model", "/nonexistent/model-folder"], "model-folder"),
-        (["check", "/nonexistent/file.json"], "file.json"),
+        (["step", "--text", "x", "--model", "MISSING/model-folder"], "model-folder"),
+        (["check", "MISSING/file.json"], "file.json"),
         (["audition", "--text", "x", "--seed", "-1"], "--seed"),
         (["step", "--text", "x", "--after", "the pier " * 400, "--model", "TINY"], "context"),
     ],
 )
 def test_errors_are_one_line_with_status_2(capsys, tmp_path, monkeypatch, tiny_folder, argv, words):
     monkeypatch.setenv("SAMPLEWRIGHT_LIBRARY_DIR", str(tmp_path / "library"))
-    argv = [tiny_folder if a == "TINY" else a for a in argv]
+    # MISSING: a folder that does not exist, inside the test's own temporary folder.
+    argv = [tiny_folder if a == "TINY" else a.replace("MISSING", str(tmp_path / "missing")) for a in argv]
     code, out, err = run(capsys, *argv)
     assert code == 2
     assert len(err.strip().splitlines()) == 1 and words in err

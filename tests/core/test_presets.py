@@ -165,7 +165,7 @@ def test_round_trip_is_exact_through_json(preset):
 
 
 def test_core_never_imports_qt():
-    # The headless split (STYLE.md): importing the whole core must not load Qt.
+    # The headless split (DEVELOPERS.md, "Rules of the code"): importing the whole core must not load Qt.
     code = (
         "import sys, samplewright, samplewright.core.sampling.chain, samplewright.core.sampling.metrics, "
         "samplewright.core.presets, samplewright.cli\n"
@@ -178,6 +178,6 @@ def test_core_never_imports_qt():
 
 
 def test_presets_module_stays_light():
-    # Editing and storing presets must not pay for torch (STYLE.md).
+    # Editing and storing presets must not pay for torch (DEVELOPERS.md, "Rules of the code").
     code = "import sys, samplewright; assert 'torch' not in sys.modules, 'torch imported'"
     subprocess.run([sys.executable, "-c", code], check=True)

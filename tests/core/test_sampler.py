@@ -12,7 +12,9 @@ from samplewright.core.sampling import sampler
 
 
 def test_gumbel_worked_example():
-    # REFERENCES.md §11 worked example: p = [0.5, 0.3, 0.2], u = [0.3, 0.8, 0.5].
+    # Gumbel-max: argmax(log p + g), g = -log(-log u) (Gumbel 1954, "Statistical Theory of Extreme
+    # Values and Some Practical Applications"; as a sampler, Maddison, Tarlow & Minka 2014, "A*
+    # Sampling"). Worked example in docs/sampling-chain.md: p = [0.5, 0.3, 0.2], u = [0.3, 0.8, 0.5].
     g = sampler.gumbel([0.3, 0.8, 0.5])
     assert g.tolist() == pytest.approx([-0.185627, 1.499940, 0.366513], abs=1e-6)
     log_p = torch.tensor([[0.5, 0.3, 0.2]], dtype=torch.float64).log()
@@ -21,8 +23,8 @@ def test_gumbel_worked_example():
 
 @pytest.mark.parametrize("top_k, expected", [(2, 1), (1, 0)])
 def test_truncation_worked_example(top_k, expected):
-    # REFERENCES.md §11: with top_k 2 the scores shift by a constant on ids 0, 1
-    # (still token 1); with top_k 1 only token 0 can win.
+    # On the kept set log p' = log p - const, so with top_k 2 the scores shift by a constant on ids 0, 1
+    # (still token 1); with top_k 1 only token 0 can win (docs/sampling-chain.md, "Drawing a token").
     logits = np.log([0.5, 0.3, 0.2])
     shaped = torch.from_numpy(shape(logits, Preset("k", top_k=top_k))).unsqueeze(0)
     g = sampler.gumbel([0.3, 0.8, 0.5]).unsqueeze(0)
@@ -30,7 +32,7 @@ def test_truncation_worked_example(top_k, expected):
 
 
 def test_uniforms_stay_strictly_inside_the_unit_interval():
-    # REFERENCES.md §11 edge case: u = 0 or u = 1 would give infinite noise.
+    # -log(-log u) is -inf at u = 0 and +inf at u = 1 (Gumbel 1954), so u must stay inside (0, 1).
     u = sampler.uniforms(0, 0, 0, 200_000)
     assert u.min() > 0 and u.max() < 1
     assert torch.isfinite(sampler.gumbel(np.array([0.0, 1.0]).clip(sampler.U_MIN, sampler.U_MAX))).all()
@@ -80,8 +82,9 @@ def test_chi_square_would_notice_a_wrong_distribution():
 
 
 def test_truncation_keeps_the_coupled_choice_when_it_survives():
-    # REFERENCES.md §11 consequence: at the same temperature, a top-k preset
-    # picks the untruncated preset's token whenever that token survives the cut.
+    # A direct consequence of the Gumbel-max form (Maddison, Tarlow & Minka 2014, "A* Sampling"):
+    # truncation only removes ids and shifts the kept scores by a constant, so at the same
+    # temperature a top-k preset picks the untruncated preset's token whenever it survives the cut.
     rng = np.random.default_rng(3)
     logits = rng.normal(0, 2, 300)
     plain = torch.from_numpy(shape(logits, Preset("plain"))).log()

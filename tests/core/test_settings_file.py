@@ -15,6 +15,7 @@ from hypothesis import strategies as st
 
 from samplewright import Preset, PresetError, __version__
 from samplewright.core.errors import LibraryError
+from samplewright.core.fields import NumberField
 from samplewright.core.library import settings_file, storage
 from samplewright.core.library.importing import ImportStopped, apply_import, preview_import
 from samplewright.core.library.library import PresetLibrary
@@ -28,8 +29,13 @@ from samplewright.core.library.settings_file import (
     read_settings,
     schema,
 )
-from samplewright.core.presets import DEFAULT_ORDER, MAX_TEXT
+from samplewright.core.presets import DEFAULT_ORDER, FIELDS, MAX_TEXT
+from samplewright.core.sampling import registry
 from samplewright.core.text_rules import BIDI_CONTROLS
+
+#: The numeric parameters' typed descriptions (src/samplewright/core/fields.py; the stages' own from the stage
+#: registry, src/samplewright/core/sampling/registry.py).
+NUMBER_FIELDS = [f for f in FIELDS.values() if isinstance(f, NumberField)]
 
 VALIDATOR = jsonschema.Draft202012Validator
 
@@ -77,6 +83,27 @@ def test_schema_text_limits_match_the_preset_limits():
     assert item["notes"]["maxLength"] == MAX_TEXT["notes"]
     assert item["tags"]["items"]["maxLength"] == MAX_TEXT["tag"]
     assert item["stop"]["items"]["maxLength"] == MAX_TEXT["stop"]
+
+
+@pytest.mark.parametrize("field", NUMBER_FIELDS, ids=[f.name for f in NUMBER_FIELDS])
+def test_schema_bounds_match_the_typed_field_descriptions(field):
+    # JSON Schema draft 2020-12 validation vocabulary: minimum/maximum include the bound,
+    # exclusiveMinimum/exclusiveMaximum exclude it; "integer" admits 5.0 as well as 5.
+    item = schema()["$defs"]["preset"]["properties"][field.name]
+    assert item["type"] == ("integer" if field.integer else "number")
+    low_key = "exclusiveMinimum" if field.low_open else "minimum"
+    high_key = "exclusiveMaximum" if field.high_open else "maximum"
+    assert item[low_key] == field.low and item[high_key] == field.high
+    assert {"minimum", "exclusiveMinimum", "maximum", "exclusiveMaximum"} & set(item) == {low_key, high_key}
+    assert item["default"] == field.default
+
+
+def test_schema_order_names_exactly_the_registered_stages():
+    item = schema()["$defs"]["preset"]["properties"]["order"]
+    assert item["items"]["enum"] == list(registry.names()) == item["default"]
+    assert item["minItems"] == item["maxItems"] == len(registry.names())
+    # Every stage field and the preset's other parameters are properties of the schema.
+    assert set(FIELDS) <= set(schema()["$defs"]["preset"]["properties"])
 
 
 def test_export_writes_a_schema_valid_file_that_reads_back(tmp_path):
@@ -204,16 +231,14 @@ presets = st.builds(
     description=text(200),
     notes=text(300),
     tags=st.lists(text(MAX_TEXT["tag"], LINE_CHARACTERS), max_size=5).map(tuple),
-    temperature=st.floats(0, 5),
-    top_k=st.integers(0, 10**6),
-    top_p=st.floats(0, 1, exclude_min=True),
-    min_p=st.floats(0, 1, exclude_max=True),
-    typical_p=st.floats(0, 1, exclude_min=True),
-    repetition_penalty=st.floats(0, 10, exclude_min=True),
-    frequency_penalty=st.floats(-2, 2),
-    presence_penalty=st.floats(-2, 2),
-    no_repeat_ngram_size=st.integers(0, 32),
-    max_new_tokens=st.integers(1, 512),
+    **{
+        f.name: (
+            st.integers(int(f.low), int(f.high))
+            if f.integer
+            else st.floats(f.low, f.high, exclude_min=f.low_open, exclude_max=f.high_open)
+        )
+        for f in NUMBER_FIELDS
+    },
     stop=st.lists(st.text(TEXT_CHARACTERS, min_size=1, max_size=MAX_TEXT["stop"]), max_size=4).map(tuple),
     order=st.permutations(DEFAULT_ORDER).map(tuple),
 )
@@ -248,21 +273,17 @@ FIELD_VALUES = {
     ),
     "description": st.one_of(st.text(max_size=3), st.just("d" * 2001), ODD),
     "tags": st.one_of(st.lists(st.text(max_size=3), max_size=3), st.just(["t" * 61]), st.just(["t"] * 33), ODD),
-    "temperature": st.one_of(_near(0, 5), ODD),
+    # Each numeric field near and on its bounds, read from its typed description.
+    **{f.name: st.one_of(_near(f.low, f.high), ODD) for f in NUMBER_FIELDS},
     "top_k": st.one_of(_near(0, 10**6), st.sampled_from([2.0, 2.5]), ODD),
     "top_p": st.one_of(_near(0, 1), st.just(-0.0), ODD),
-    "min_p": st.one_of(_near(0, 1), ODD),
-    "typical_p": st.one_of(_near(0, 1), ODD),
-    "repetition_penalty": st.one_of(_near(0, 10), ODD),
-    "frequency_penalty": st.one_of(_near(-2, 2), ODD),
-    "presence_penalty": st.one_of(_near(-2, 2), ODD),
-    "no_repeat_ngram_size": st.one_of(_near(0, 32), ODD),
-    "max_new_tokens": st.one_of(_near(1, 512), ODD),
     "stop": st.one_of(st.lists(st.text(max_size=2), max_size=3), st.just(["s"] * 17), ODD),
     "order": st.one_of(
         st.permutations(DEFAULT_ORDER).map(list),
         st.just(list(DEFAULT_ORDER[:5]) + ["top_k"]),
-        st.lists(st.sampled_from(DEFAULT_ORDER + ("typical",)), min_size=6, max_size=6),
+        st.lists(
+            st.sampled_from(DEFAULT_ORDER + ("typical",)), min_size=len(DEFAULT_ORDER), max_size=len(DEFAULT_ORDER)
+        ),
         ODD,
     ),
     "colour": ODD,

@@ -1,8 +1,9 @@
 """``samplewright.shape`` on hand-worked examples of the published definitions,
 boundaries included, and on facts of the trade.
 
-Worked numbers come from /work/shared/REFERENCES.md (computed there with
-numpy in float64); the section is named beside each check.
+Each check names its published source beside it; the worked numbers are
+written out, with the same sources, under "Worked examples" in
+docs/sampling-chain.md (computed with numpy in float64).
 """
 
 import numpy as np
@@ -22,7 +23,9 @@ def close(a, b):
     np.testing.assert_allclose(a, b, atol=1e-6)
 
 
-# --- Temperature (REFERENCES §1; Ackley, Hinton & Sejnowski 1985) -----------------
+# --- Temperature: Ackley, Hinton & Sejnowski (1985), "A Learning Algorithm for Boltzmann Machines";
+# p_T = softmax(z / T), eq. 1 of Hinton, Vinyals & Dean (2015), "Distilling the Knowledge in a Neural
+# Network" (equation number from memory). Numbers: docs/sampling-chain.md, temperature table.
 @pytest.mark.parametrize(
     "t, expected, bits",
     [
@@ -38,11 +41,13 @@ def test_temperature_worked(t, expected, bits):
 
 
 def test_temperature_zero_is_greedy_ties_to_lower_id():
-    # REFERENCES §1: [1, 3, 3, 0] at T = 0 -> one-hot on id 1 (first arg-max).
+    # T -> 0 tends to the one-hot on the arg-max (the limit of softmax(z / T)); [1, 3, 3, 0] ties ids 1
+    # and 2, and the first arg-max (as torch.argmax documents) is id 1.
     close(shape([1.0, 3.0, 3.0, 0.0], Preset("g", temperature=0)), [0, 1, 0, 0])
 
 
-# --- Top-k (REFERENCES §2; Fan, Lewis & Dauphin 2018) -------------------------------
+# --- Top-k: Fan, Lewis & Dauphin (2018), "Hierarchical Neural Story Generation", ACL 2018 --------
+# Numbers: docs/sampling-chain.md, top-k table.
 def test_top_k_worked():
     close(shape([1, 3, 2, 0.5], Preset("k", top_k=2)), [0, 0.731059, 0.268941, 0])
     close(shape([1, 3, 2, 0.5], Preset("k", top_k=5)), [0.085369, 0.630796, 0.232057, 0.051779])
@@ -52,7 +57,8 @@ def test_top_k_tie_keeps_exactly_k_lower_ids():
     close(shape([2, 1, 2, 2], Preset("k", top_k=2)), [0.5, 0, 0.5, 0])
 
 
-# --- Top-p (REFERENCES §3; Holtzman et al. 2020, eq. 2) -----------------------------
+# --- Top-p: Holtzman, Buys, Du, Forbes & Choi (2020), "The Curious Case of Neural Text Degeneration",
+# ICLR 2020, eq. 2. Numbers: docs/sampling-chain.md, top-p table.
 def test_top_p_reached_exactly_keeps_the_token_that_reaches_it():
     # 0.5 + 0.3 = 0.8 exactly: with the 1e-6 tolerance id 1 reaches p, id 2 is cut.
     close(shape(P4, Preset("p", top_p=0.8)), [0.625, 0.375, 0, 0])
@@ -63,13 +69,15 @@ def test_top_p_worked():
     close(shape(P4, Preset("p", top_p=0.4)), [1, 0, 0, 0])
 
 
-# --- Min-p (REFERENCES §4; Nguyen et al. 2024) -------------------------------------
+# --- Min-p: Nguyen et al. (2024), "Turning Up the Heat: Min-p Sampling for Creative and Coherent LLM
+# Outputs", arXiv:2407.01082. Numbers: docs/sampling-chain.md, min-p table.
 def test_min_p_worked():
     close(shape(P4, Preset("m", min_p=0.2)), [0.526316, 0.315789, 0.157895, 0])
     close(shape(P4, Preset("m", min_p=0.7)), [1, 0, 0, 0])
 
 
-# --- Typical (REFERENCES §5; Meister et al. 2023) ----------------------------------
+# --- Typical: Meister, Pimentel, Wiher & Cotterell (2023), "Locally Typical Sampling", TACL 11.
+# Numbers: docs/sampling-chain.md, typical table (H = 1.142120 nats for p = [0.5, 0.3, 0.15, 0.05]).
 @pytest.mark.parametrize(
     "mass, expected",
     [
@@ -82,15 +90,16 @@ def test_typical_worked(mass, expected):
     close(shape(P4, Preset("y", typical_p=mass)), expected)
 
 
-# --- Penalties (REFERENCES §6-8) ----------------------------------------------------
+# --- Penalties: numbers in docs/sampling-chain.md, "Repetition penalty" to "No-repeat n-gram" ----
 def test_repetition_penalty_worked():
-    # Keskar et al. 2019, sign-aware form: z = [2, -1, 0.5, 3], history [0, 1, 1], theta 2.
+    # Keskar et al. (2019), "CTRL: A Conditional Transformer Language Model for Controllable
+    # Generation", penalized sampling, sign-aware form: z = [2, -1, 0.5, 3], history [0, 1, 1], theta 2.
     p = shape([2.0, -1.0, 0.5, 3.0], Preset("r", repetition_penalty=2.0), history=[0, 1, 1])
     close(p, [0.110554, 0.005504, 0.067054, 0.816888])
 
 
 def test_frequency_presence_count_generated_tokens_only():
-    # REFERENCES §7 (hosted-API convention, no paper): counted tokens [2, 2, 3].
+    # No paper: the additive form is a hosted-API convention (common practice); counted tokens [2, 2, 3].
     preset = Preset("f", frequency_penalty=0.5, presence_penalty=0.25)
     close(shape([1.0] * 4, preset, generated=[2, 2, 3]), [0.362467, 0.362467, 0.103849, 0.171217])
     # The passage alone (history, not generated) is not counted.
@@ -99,7 +108,8 @@ def test_frequency_presence_count_generated_tokens_only():
 
 @pytest.mark.parametrize("n, banned", [(3, {9}), (2, {9}), (4, set()), (1, {4, 7, 9})])
 def test_no_repeat_ngram_worked(n, banned):
-    # REFERENCES §8 (Paulus, Xiong & Socher 2017): history [4, 7, 9, 4, 7].
+    # Paulus, Xiong & Socher (2017), "A Deep Reinforced Model for Abstractive Summarization": a token
+    # may not complete an n-gram already in the history; history [4, 7, 9, 4, 7].
     p = shape(np.zeros(12), Preset("n", no_repeat_ngram_size=n), history=[4, 7, 9, 4, 7])
     assert {i for i in range(12) if p[i] == 0} == banned
 
@@ -110,7 +120,8 @@ def test_stage_that_removes_everything_keeps_the_most_probable():
     close(p, [0, 1, 0])
 
 
-# --- Order (REFERENCES §9) -----------------------------------------------------------
+# --- Order: each truncation stage renormalises what the stage before left (transformers' generate()
+# chains its processors so). Numbers: docs/sampling-chain.md, "Order". ---------------------------
 def test_order_changes_the_result():
     z = np.log([0.4, 0.3, 0.2, 0.1])
     default = Preset("o", top_k=2, top_p=0.55)
@@ -203,7 +214,8 @@ def test_temperature_one_leaves_the_distribution_unchanged(z):
 @settings(max_examples=60, deadline=None)
 @given(logit_vectors, st.floats(0.1, 2.0), st.floats(0.1, 2.0))
 def test_entropy_rises_with_temperature(z, t1, t2):
-    # Common practice (dH/d(1/T) = -Var(z)/T^2 <= 0, REFERENCES §1).
+    # Common practice: dH/d(1/T) = -Var_p(z)/T^2 <= 0, a standard result on the Boltzmann distribution
+    # (Ackley, Hinton & Sejnowski 1985), so entropy never falls as T rises.
     low, high = sorted((t1, t2))
     h_low = scipy_entropy(shape(z, Preset("a", temperature=low)), base=2)
     h_high = scipy_entropy(shape(z, Preset("b", temperature=high)), base=2)

@@ -1,8 +1,9 @@
 """Each stage, and the default chain, against transformers' logits processors.
 
 Reference library: transformers ``generation/logits_process.py`` (installed
-version). Deliberate differences, documented in core/stages.py and
-docs/parameters.md:
+version). Deliberate differences, documented in
+src/samplewright/core/sampling/stages.py and docs/sampling-chain.md
+("Decisions where the papers are silent"):
 - ties at a cut: we keep lower ids first (exactly k for top-k); transformers
   keeps every token tied with the k-th and follows torch.sort elsewhere;
 - top-p and typical sampling reach their mass within 1e-6; transformers has
@@ -146,8 +147,9 @@ def test_shape_default_order_matches_transformers_chain(preset):
 
 
 def test_documented_tie_difference_top_k():
-    # REFERENCES.md §2: logits [2, 1, 2, 2], k = 2: we keep exactly two (ids 0, 2);
-    # transformers keeps every token tied with the k-th (three tokens).
+    # Top-k as Fan, Lewis & Dauphin (2018), "Hierarchical Neural Story Generation", define it keeps k
+    # tokens: logits [2, 1, 2, 2], k = 2: we keep exactly two (ids 0, 2); transformers'
+    # TopKLogitsWarper keeps every token tied with the k-th (three tokens). docs/sampling-chain.md, top-k.
     z = torch.tensor([[2.0, 1.0, 2.0, 2.0]], dtype=torch.float64)
     ours = torch.softmax(stages.top_k(z, row(2, torch.long)), -1)[0]
     theirs = torch.softmax(tlp.TopKLogitsWarper(2)(None, z.clone()), -1)[0]

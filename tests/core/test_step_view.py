@@ -92,7 +92,8 @@ def test_step_view_agrees_with_shape_and_scipy(engine, tiny_model):
     "preset, stage", [(Preset("one", top_k=1), "top_k"), (Preset("greedy", temperature=0), "temperature")]
 )
 def test_single_survivor_cuts_everything_else(engine, preset, stage):
-    # By hand: top_k = 1 and temperature 0 each keep only the most probable token.
+    # By hand from the definitions: top_k = 1 keeps the k = 1 most probable tokens (Fan, Lewis &
+    # Dauphin 2018) and temperature 0 is the one-hot on the arg-max (limit of softmax(z / T)).
     step = engine.step(PASSAGE, [preset], top=8).presets[0]
     assert step.kept == 1 and step.entropy_bits == 0.0
     assert step.top[0].cut_by is None and step.top[0].p == 1.0
@@ -101,9 +102,10 @@ def test_single_survivor_cuts_everything_else(engine, preset, stage):
 
 
 def test_cut_by_follows_the_preset_order(engine):
-    # By hand: with min_p between the 2nd and 3rd token's share of the top
-    # probability, min_p (run first) cuts the 3rd token onwards and top_k = 1
-    # then cuts the 2nd; in the default order top_k cuts them all first.
+    # By hand from the definitions (min-p: Nguyen et al. 2024, "Turning Up the Heat: Min-p Sampling
+    # for Creative and Coherent LLM Outputs"; top-k: Fan, Lewis & Dauphin 2018): with min_p between
+    # the 2nd and 3rd token's share of the top probability, min_p (run first) cuts the 3rd token
+    # onwards and top_k = 1 then cuts the 2nd; in the default order top_k cuts them all first.
     raw = engine.step(PASSAGE, [], top=3)
     r0, r1, r2 = (raw.raw_probs[i] for i in raw.top_ids)
     assert r1 > r2
@@ -145,13 +147,15 @@ def test_step_view_of_plain_logits_shapes_like_shape_and_names_the_cutting_stage
     assert view.top_ids == [0, 1, 2] and view.top_texts == ["a", "b", "c"]
     assert view.drawn_id == 2 and view.context_tokens == 7
     np.testing.assert_allclose(view.raw_probs, [0.4, 0.3, 0.2, 0.1])
-    # top_k=1 keeps the single most probable token (Fan et al. 2018), so top_k cuts the rest;
-    # temperature 0 is greedy (common practice), so temperature cuts them.
+    # top_k=1 keeps the single most probable token (Fan, Lewis & Dauphin 2018, "Hierarchical Neural
+    # Story Generation"), so top_k cuts the rest; temperature 0 is greedy (the T -> 0 limit of the
+    # softmax with temperature, Ackley, Hinton & Sejnowski 1985), so temperature cuts them.
     assert [row.cut_by for row in view.presets[0].top] == [None, "top_k", "top_k"]
     assert [row.cut_by for row in view.presets[1].top] == [None, "temperature", "temperature"]
     for step, preset in zip(view.presets, presets, strict=False):
         np.testing.assert_array_equal(step.probs, shape(logits, preset, history=[0], generated=[0]))
-    # CTRL's penalty (Keskar et al. 2019) multiplies a seen token's negative logit by the penalty:
+    # The repetition penalty of Keskar et al. (2019), "CTRL: A Conditional Transformer Language Model
+    # for Controllable Generation", sign-aware form, multiplies a seen token's negative logit by it:
     # log(0.4) * 2 = log(0.16), below id 1's log(0.3), so id 0 falls behind id 1.
     rep = view.presets[2]
     assert rep.probs[0] < rep.probs[1] and rep.kept == 4

@@ -50,12 +50,14 @@ def test_cut_tokens_carry_the_mark_of_the_stage_that_cut_them(qtbot):
     plot.show_step(view, [p.name for p in PRESETS])
     plot.flush()
     steady, short_list = view.presets
-    # top_k=3 keeps exactly three tokens (Fan et al. 2018 definition), the three of highest raw
+    # top_k=3 keeps exactly three tokens (Fan, Lewis & Dauphin 2018, "Hierarchical Neural Story
+    # Generation"), the three of highest raw
     # probability (temperature 1 keeps the ranking), so every other listed token is cut by top_k.
     assert short_list.kept == 3
     assert [row.cut_by for row in short_list.top] == [None] * 3 + ["top_k"] * (len(short_list.top) - 3)
     # Temperature 0.7 only rescales the logits and never removes a token, so every token Steady
-    # drops is cut by its top_p=0.9 (Holtzman et al. 2020), and the most probable one survives.
+    # drops is cut by its top_p=0.9 (Holtzman et al. 2020, "The Curious Case of Neural Text
+    # Degeneration", eq. 2), and the most probable one survives.
     steady_cut = [row.cut_by for row in steady.top if row.cut_by]
     assert steady.top[0].cut_by is None and steady_cut and set(steady_cut) == {"top_p"}
     points = plot._cuts[1].points()
@@ -80,7 +82,8 @@ def test_only_the_newest_requested_step_is_drawn(qtbot):
 
 
 def test_palette_is_okabe_ito_and_stage_marks_are_distinct():
-    # Okabe & Ito (2008) published hex values (from memory of the CUD page): orange E69F00, sky blue 56B4E9,
+    # Okabe & Ito (2008), "Color Universal Design (CUD): How to make figures and presentations that are
+    # friendly to colorblind people", published hex values (from memory): orange E69F00, sky blue 56B4E9,
     # bluish green 009E73, yellow F0E442, blue 0072B2, vermillion D55E00, reddish purple CC79A7.
     assert OKABE_ITO["vermillion"] == "#D55E00" and OKABE_ITO["bluish_green"] == "#009E73"
     assert set(PRESET_COLOURS) <= set(OKABE_ITO.values())

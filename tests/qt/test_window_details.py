@@ -174,7 +174,7 @@ def test_damaged_settings_file_falls_back_to_defaults(make_window, tmp_path):
     config.mkdir()
     (config / SETTINGS_FILE).write_text(
         "[window]\ngeometry=not-a-geometry\n[splitters]\nmain=@Variant(garbage\n"
-        "[passage]\nrecent={broken json\ntext=Dear passengers\nsource=/nowhere/letter.txt\n"
+        "[passage]\nrecent={broken json\ntext=Dear passengers\nsource=missing/letter.txt\n"
         "[audition]\nsamples=four\nnew_tokens=99999999999999999999\nseed=1,2\nchosen=[unclosed\n",
         encoding="utf-8",
     )

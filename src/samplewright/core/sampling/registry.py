@@ -11,7 +11,7 @@ Adding a stage means one :func:`register` call (an entry below) plus its
 function. A stage that brings a new parameter also adds that parameter to
 :class:`~..presets.Preset` and to ``resources/settings.schema.json``: the
 preset and the file format are published contracts, and tests fail until
-both match the entry (see docs/architecture.md).
+both match the entry (see docs/sampling-chain.md, "Adding a stage").
 
 A stage function takes ``(logits, params, history)``: float64 logits (rows ×
 vocab, ``-inf`` = removed), the rows' parameters (``params.values[field]``,
