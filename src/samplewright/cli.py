@@ -270,6 +270,8 @@ def _progress_bar(wanted: bool):
 
 def run_step(args) -> int:
     """Print the next-token distribution raw and under each preset."""
+    from .core.sampling import registry
+
     _check_range("top", args.top, 1, 200)
     passage, presets = _passage(args), _presets(args)
     engine = _engine(args)
@@ -298,7 +300,7 @@ def run_step(args) -> int:
             f"of the raw mass; entropy {entry['raw_entropy_bits']:.2f} -> {entry['entropy_bits']:.2f} bits"
         )
         for row in entry["top"]:
-            cut = f"cut by {row['cut_by']}" if row["cut_by"] else ""
+            cut = f"cut by {registry.stage(row['cut_by']).label}" if row["cut_by"] else ""
             print(f"  {row['text']!r:>16}  raw {row['raw_p']:.3f}  -> {row['p']:.3f}  {cut}")
     return 0
 

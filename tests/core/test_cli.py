@@ -108,6 +108,15 @@ def test_step_json_ranks_by_raw_probability_and_names_the_cutting_stage(capsys, 
         assert entry["top"][0]["cut_by"] is None and entry["top"][0]["p"] == pytest.approx(1.0)
 
 
+def test_step_text_names_the_cutting_stage_by_its_trade_name(capsys, tiny_folder, preset_files):
+    # Issue 10: the stage that cut a token is named as the trade names it (top-k, Fan, Lewis &
+    # Dauphin 2018), never by a code; top_k = 1 cuts every listed token but the first.
+    _, narrow, _ = preset_files
+    code, out, err = run(capsys, "step", "--text", PASSAGE, "--model", tiny_folder, "--preset", narrow, "--top", 3)
+    assert code == 0, err
+    assert out.count("cut by top-k") == 2 and "top_k" not in out
+
+
 def test_step_agrees_with_shape(capsys, tiny_folder, tmp_path, tiny_model):
     # The CLI's shaped probabilities are samplewright.shape() of the model's raw logits.
     import torch

@@ -8,9 +8,11 @@ import sys
 from pathlib import Path
 
 import numpy as np
+import pytest
+import torch
 from PySide6.QtCore import Qt
 
-from samplewright.core.presets import Preset
+from samplewright.core.presets import DEFAULT_ORDER, Preset
 from samplewright.core.sampling import registry
 from samplewright.qt import palette
 from samplewright.qt.distribution_plot import DistributionPlot, token_label
@@ -115,3 +117,36 @@ def test_plot_demo_runs():
     )
     assert done.returncode == 0, done.stderr
     assert "drew 5 steps" in done.stdout
+
+
+@pytest.fixture
+def throwaway_stage():
+    # A stage invented for this test (no paper): it removes the live token with the highest id.
+    def drop_highest_id(logits, params, history):
+        ids = torch.arange(logits.shape[-1]).expand_as(logits)
+        highest = torch.where(torch.isneginf(logits), -1, ids).max(dim=-1, keepdim=True).values
+        return logits.masked_fill(ids == highest, float("-inf"))
+
+    mark = registry.StageMark(colour="#777777", shape="hexagon", hatch="diagonal_grid", glyph="⬢")
+    stage = registry.register(
+        registry.Stage("drop_highest_id", "drop highest id", "A test stage.", "none", mark, (), drop_highest_id)
+    )
+    yield stage
+    registry.unregister(stage.name)
+
+
+def test_a_registered_stage_gets_its_mark_and_legend_entry(qtbot, throwaway_stage):
+    # One registry entry plus its function (src/samplewright/core/sampling/registry.py) is all the
+    # plot needs: the legend names the new stage and its cuts carry its shape and hatch.
+    preset = Preset("new stage", order=DEFAULT_ORDER + (throwaway_stage.name,))
+    rows = len(plot_demo.WORDS)  # every token is a row, so the highest id is among them
+    view = plot_demo.synthetic_view(np.random.default_rng(1), [preset], top=rows)
+    plot = DistributionPlot(top_n=rows)
+    qtbot.addWidget(plot)
+    plot.show_step(view, [preset.name])
+    plot.flush()
+    cut = [r for r, row in enumerate(view.presets[0].top) if row.cut_by == throwaway_stage.name]
+    assert len(cut) == 1  # exactly one token, the highest id, is removed
+    assert [p.symbol() for p in plot._cuts[0].points()] == [palette.SHAPE_SYMBOLS["hexagon"]]
+    assert plot._ghosts[0].opts["brushes"][cut[0]].style() == Qt.BrushStyle.DiagCrossPattern
+    assert "⬢ drop highest id" in palette.stage_legend()

@@ -157,34 +157,16 @@ def _penalties(logits, params, history):
     return kernels.no_repeat_ngram(out, history.banned)
 
 
-def _temperature(logits, params, history):
-    from . import stages as kernels
+def _one_parameter(name: str) -> StageFunction:
+    """The function of a stage with one parameter, named like the stage and its kernel in stages.py."""
 
-    return kernels.temperature(logits, params.values["temperature"])
+    def apply(logits, params, history):
+        from . import stages as kernels
 
+        return getattr(kernels, name)(logits, params.values[name])
 
-def _top_k(logits, params, history):
-    from . import stages as kernels
-
-    return kernels.top_k(logits, params.values["top_k"])
-
-
-def _top_p(logits, params, history):
-    from . import stages as kernels
-
-    return kernels.top_p(logits, params.values["top_p"])
-
-
-def _min_p(logits, params, history):
-    from . import stages as kernels
-
-    return kernels.min_p(logits, params.values["min_p"])
-
-
-def _typical_p(logits, params, history):
-    from . import stages as kernels
-
-    return kernels.typical_p(logits, params.values["typical_p"])
+    apply.__name__ = f"_{name}"
+    return apply
 
 
 # -- the built-in stages, in the default order ----------------------------------------------------
@@ -259,7 +241,7 @@ register(
                 neutral=1.0,
             ),
         ),
-        apply=_temperature,
+        apply=_one_parameter("temperature"),
     )
 )
 register(
@@ -280,7 +262,7 @@ register(
                 neutral=0,
             ),
         ),
-        apply=_top_k,
+        apply=_one_parameter("top_k"),
     )
 )
 register(
@@ -301,7 +283,7 @@ register(
                 neutral=1.0,
             ),
         ),
-        apply=_top_p,
+        apply=_one_parameter("top_p"),
     )
 )
 register(
@@ -322,7 +304,7 @@ register(
                 neutral=0.0,
             ),
         ),
-        apply=_min_p,
+        apply=_one_parameter("min_p"),
     )
 )
 register(
@@ -344,6 +326,6 @@ register(
                 neutral=1.0,
             ),
         ),
-        apply=_typical_p,
+        apply=_one_parameter("typical_p"),
     )
 )
