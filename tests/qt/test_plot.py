@@ -12,6 +12,7 @@ import pytest
 import torch
 from PySide6.QtCore import Qt
 
+from samplewright.core.limits import MAX_PRESETS
 from samplewright.core.presets import DEFAULT_ORDER, Preset
 from samplewright.core.sampling import registry
 from samplewright.qt import palette
@@ -89,7 +90,7 @@ def test_palette_is_okabe_ito_and_stage_marks_are_distinct():
     # bluish green 009E73, yellow F0E442, blue 0072B2, vermillion D55E00, reddish purple CC79A7.
     assert OKABE_ITO["vermillion"] == "#D55E00" and OKABE_ITO["bluish_green"] == "#009E73"
     assert set(PRESET_COLOURS) <= set(OKABE_ITO.values())
-    assert len(set(PRESET_COLOURS)) == 6
+    assert len(set(PRESET_COLOURS)) == MAX_PRESETS  # one colour per preset an audition can compare
     # Each stage's mark differs from every other's in shape, hatch and colour, so any one cue is enough.
     marks = [s.mark for s in registry.stages()]
     for cue in ("shape", "hatch", "colour", "glyph"):

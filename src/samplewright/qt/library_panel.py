@@ -92,7 +92,7 @@ class QtLibraryList(QWidget):
         self.tree.header().setStretchLastSection(False)
         self.tree.header().setSectionResizeMode(0, QHeaderView.Stretch)
         self.tree.header().setSectionResizeMode(1, QHeaderView.ResizeToContents)
-        self.tree.setToolTip("Tick up to six presets to compare them. Click ★ to mark a favourite.")
+        self.tree.setToolTip(f"Tick up to {MAX_CHOSEN} presets to compare them. Click ★ to mark a favourite.")
         filters = QHBoxLayout()
         filters.addWidget(self.tag_filter, 1)
         filters.addWidget(self.favourites_only)
