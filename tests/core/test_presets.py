@@ -10,7 +10,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from samplewright import Preset, PresetError
-from samplewright.core.presets import DEFAULT_ORDER, PARAMETERS, differences, validate_field
+from samplewright.core.fields import NumberField
+from samplewright.core.presets import DEFAULT_ORDER, FIELDS, PARAMETERS, differences, validate_field
 
 BAD_VALUES = {
     "temperature": [-0.1, 5.01, math.nan, math.inf, "1", True, None, 10**400],
@@ -69,6 +70,32 @@ def test_message_names_value_and_allowed_range(field, value, allowed):
     message = str(err.value)
     assert message.startswith(f"{field}: ") and repr(value) in message
     assert f"allowed: {allowed}" in message or f"allowed: a whole number from {allowed}" in message
+
+
+NUMBER_FIELDS = [f for f in FIELDS.values() if isinstance(f, NumberField)]
+
+
+@pytest.mark.parametrize("field", NUMBER_FIELDS, ids=[f.name for f in NUMBER_FIELDS])
+def test_range_check_and_message_come_from_the_typed_field_description(field):
+    # One description (src/samplewright/core/fields.py) gives the check and the words: an end is
+    # accepted exactly when it is not open, a value past either end is refused, and the message
+    # quotes the description's own "allowed" text (the editor shows the same text).
+    step = 1 if field.integer else 1e-9
+    for end, is_open, outside in (
+        (field.low, field.low_open, field.low - step),
+        (field.high, field.high_open, field.high + step),
+    ):
+        end = int(end) if field.integer else end
+        if is_open:
+            with pytest.raises(PresetError):
+                validate_field(field.name, end)
+        else:
+            assert validate_field(field.name, end) == end
+        with pytest.raises(PresetError) as err:
+            validate_field(field.name, int(outside) if field.integer else outside)
+        assert str(err.value).endswith(f"allowed: {field.allowed}")
+    if field.neutral is not None:
+        assert field.allowed.endswith(f"({field.neutral:g} = off)")
 
 
 def test_preset_errors_are_user_facing_and_still_value_errors():
