@@ -21,6 +21,7 @@ from PySide6.QtWidgets import QStatusBar
 from ..core.engine.session import AuditionSession, SampleRef
 from ..core.library.draft import Draft
 from ..core.library.records import PresetRecord
+from ..core.limits import MAX_PRESETS
 from ..core.presets import Preset
 from ..core.results import AuditionRequest
 from .audition_controls import QtAuditionControls
@@ -189,7 +190,7 @@ class AuditionController(QObject):
         if not self.passage.text().strip():
             return "The passage is empty. Type or paste a draft passage, or open one with Ctrl+O."
         if not self.library_list.chosen:
-            return "No preset is ticked. Tick up to six presets in the list on the left."
+            return f"No preset is ticked. Tick up to {MAX_PRESETS} presets in the list on the left."
         return None
 
     def update_buttons(self) -> None:

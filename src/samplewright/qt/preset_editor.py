@@ -187,7 +187,8 @@ class QtPresetEditor(QWidget):
     def _add_order(self) -> None:
         self.order_list = QListWidget()
         self.order_list.setDragDropMode(QAbstractItemView.InternalMove)
-        self.order_list.setFixedHeight(self.order_list.fontMetrics().lineSpacing() * 6 + 16)
+        rows = len(registry.names())  # every stage visible without scrolling
+        self.order_list.setFixedHeight(self.order_list.fontMetrics().lineSpacing() * rows + 16)
         self.order_list.model().rowsMoved.connect(lambda *_: self._on_order_changed())
         up, down = QPushButton("Move up"), QPushButton("Move down")
         up.setToolTip("Apply the selected stage earlier")
