@@ -149,9 +149,9 @@ def test_export_refuses_to_replace_a_file_without_force(team, tmp_path, capsys):
     assert code == 0 and len(read_importable(target).presets) == 2
 
 
-def test_an_empty_passage_is_refused_before_the_model_is_loaded(capsys):
+def test_an_empty_passage_is_refused_before_the_model_is_loaded(capsys, tmp_path):
     # A model folder that does not exist: loading it first would give a message about the model.
-    code, _, err = run(capsys, "audition", "--text", "  ", "--model", "/nonexistent/model-folder")
+    code, _, err = run(capsys, "audition", "--text", "  ", "--model", str(tmp_path / "missing" / "model-folder"))
     assert code == 2 and "passage is empty" in err and "model-folder" not in err
 
 
