@@ -8,6 +8,12 @@ probability. A cut token is attributed to the first stage, in the preset's
 order, after which its probability is zero; stages only ever remove tokens
 (``-inf`` stays ``-inf``, and the top token is never removed, so a tiny
 probability cannot come back), so that stage is the one that cut it.
+
+Ranks are raw ranks: 1 is the token the unshaped model finds most probable
+(ties go to the lower id). A preset's kept set ends at the raw rank of its last
+kept token; its curve (``PresetStep.ranked``) and running mass
+(``PresetStep.cumulative``) follow the raw ranking, so every preset is read on
+the same axis as the model itself.
 """
 
 from __future__ import annotations
@@ -17,7 +23,7 @@ from collections.abc import Callable, Mapping, Sequence
 import numpy as np
 
 from ..presets import Preset
-from ..results import PresetStep, StepView, TokenRow
+from ..results import PresetStep, StageEffect, StepView, TokenRow
 
 TokenTexts = Callable[[int], str] | Sequence[str]
 
@@ -48,6 +54,43 @@ def top_ids(probs, n: int) -> list[int]:
     """The ``n`` most probable token ids, most probable first (ties: lower id first)."""
     probs = np.asarray(probs, dtype=np.float64)
     return [int(i) for i in np.argsort(-probs, kind="stable")[: max(0, n)]]
+
+
+def ranking(probs) -> np.ndarray:
+    """Every token id by raw rank: most probable first, ties to the lower id."""
+    return np.argsort(-np.asarray(probs, dtype=np.float64), kind="stable")
+
+
+def cut_codes(after_stage: Mapping[str, np.ndarray], order: Sequence[str]) -> np.ndarray:
+    """For every token id, the index in ``order`` of the first stage after which it is removed (-1: kept)."""
+    codes: np.ndarray | None = None
+    for index, name in enumerate(order):
+        removed = softmax(after_stage[name]) == 0
+        if codes is None:
+            codes = np.full(removed.shape, -1, dtype=np.int8)
+        codes[removed & (codes < 0)] = index
+    return codes if codes is not None else np.zeros(0, dtype=np.int8)
+
+
+def stage_effects(
+    after_stage: Mapping[str, np.ndarray], order: Sequence[str], raw_probs: np.ndarray
+) -> tuple[StageEffect, ...]:
+    """How many tokens, and how much raw mass, are left after each stage in ``order``."""
+    effects = []
+    for name in order:
+        kept = softmax(after_stage[name]) > 0
+        effects.append(StageEffect(name, int(kept.sum()), float(raw_probs[kept].sum())))
+    return tuple(effects)
+
+
+def table_ids(view: StepView, extra: Sequence[int] = (), head: int = 12) -> list[int]:
+    """The token ids a table of the step lists, by raw rank: the ``head`` most probable,
+    the drawn token and ``extra`` (e.g. a token picked in the plot), wherever they rank."""
+    wanted = {int(i) for i in view.ranked_ids[:head]}
+    wanted.update(int(i) for i in extra)
+    if view.drawn_id is not None:
+        wanted.add(int(view.drawn_id))
+    return sorted(wanted, key=view.rank_of)
 
 
 def cut_by(after_stage: Mapping[str, np.ndarray], order: Sequence[str], ids: Sequence[int]) -> list[str | None]:
@@ -96,6 +139,9 @@ def preset_step(
     """
     kept = probs > 0
     cuts = cut_by(after_stage, order, ids)
+    by_rank = ranking(raw_probs)
+    ranked = probs[by_rank]
+    codes = cut_codes(after_stage, order) if order else np.full(probs.shape, -1, np.int8)
     rows = [
         TokenRow(id=int(i), text=t, raw_p=float(raw_probs[i]), p=float(probs[i]), cut_by=c)
         for i, t, c in zip(ids, texts, cuts, strict=False)
@@ -108,6 +154,12 @@ def preset_step(
         entropy_bits=float(entropy_bits(probs)),
         raw_entropy_bits=float(entropy_bits(raw_probs)),
         top=rows,
+        order=tuple(order),
+        ranked=ranked,
+        cumulative=np.cumsum(ranked),
+        cut_ranked=codes[by_rank],
+        kept_end=int(np.flatnonzero(ranked > 0)[-1]) + 1,
+        stages=stage_effects(after_stage, order, raw_probs) if order else (),
     )
 
 
@@ -146,7 +198,10 @@ def step_view(
 
     row = as_logits_row(logits)
     raw = torch.softmax(row[0], dim=-1).numpy()
-    ids = top_ids(raw, top)
+    by_rank = ranking(raw)
+    ranks = np.empty_like(by_rank)
+    ranks[by_rank] = np.arange(1, by_rank.size + 1)
+    ids = [int(i) for i in by_rank[: max(0, top)]]
     names = [texts(i) if callable(texts) else texts[i] for i in ids]
     steps = []
     if presets:
@@ -176,4 +231,8 @@ def step_view(
         presets=steps,
         context_tokens=context_tokens,
         drawn_id=drawn_id,
+        ranked_ids=by_rank,
+        raw_ranked=raw[by_rank],
+        raw_cumulative=np.cumsum(raw[by_rank]),
+        ranks=ranks,
     )
