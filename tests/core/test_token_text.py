@@ -110,3 +110,25 @@ def test_the_step_view_labels_tokens_by_their_bytes(tiny_model):
     view = engine.step("Ferry to Skerry Point with", [], sample_ids=after, top=len(tiny_model.tokenizer))
     assert not any("\ufffd" in text for text in view.top_texts)
     assert {f"<0x{b:02X}>" for b in range(0x80, 0x100)} <= set(view.top_texts)  # every single-byte token
+
+
+@pytest.mark.parametrize("text", TEXTS)
+def test_text_built_token_by_token_equals_the_whole_decoding(tiny_model, text):
+    tokenizer = tiny_model.tokenizer
+    vocabulary = vocabulary_of(tokenizer)
+    ids = _ids(tokenizer, text)
+    growing = token_text.GrowingText()
+    for count, token_id in enumerate(ids, start=1):
+        changed = growing.append(vocabulary.bytes_of(token_id))
+        whole = vocabulary.sample_text(ids[:count])
+        assert growing.snapshot() == whole  # as if the tokens so far were decoded at once
+        assert growing.text[:changed] == whole.text[:changed]
+    assert growing.text == tokenizer.decode(ids)
+
+
+def test_bytes_that_never_form_a_character_stop_being_decoded_again():
+    growing = token_text.GrowingText()
+    for piece in [b"\xc5"] * 10 + [b"ok"]:
+        growing.append(piece)
+    assert growing.text == "<0xC5>" * 10 + "ok"
+    assert growing.snapshot() == sample_text([b"\xc5"] * 10 + [b"ok"])

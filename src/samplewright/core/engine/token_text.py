@@ -107,6 +107,50 @@ def sample_text(pieces: Sequence[bytes]) -> SampleText:
     return SampleText("".join(units), tuple(spans))
 
 
+class GrowingText:
+    """A sample's text built token by token as a run reports them, equal at every point to
+    :func:`sample_text` of the tokens so far; only the unfinished end is decoded again.
+
+    Attributes:
+        text: the text so far.
+        spans: each token's character range in ``text``.
+    """
+
+    #: A character is at most 4 bytes in UTF-8 (RFC 3629): bytes still open after this many never form one.
+    MAX_OPEN_BYTES = 8
+
+    def __init__(self) -> None:
+        self.pieces: list[bytes] = []
+        self.text = ""
+        self.spans: list[tuple[int, int]] = []
+        self._open = 0  # first token of the end that may still change
+
+    def append(self, piece: bytes) -> int:
+        """Add one token's bytes; returns the character offset from which ``text`` changed."""
+        start = self.spans[self._open][0] if self._open < len(self.spans) else len(self.text)
+        self.pieces.append(piece)
+        tail = sample_text(self.pieces[self._open :])
+        self.text = self.text[:start] + tail.text
+        self.spans[self._open :] = [(a + start, b + start) for a, b in tail.spans]
+        data = b"".join(self.pieces[self._open :])
+        if len(data) > self.MAX_OPEN_BYTES or _whole(data):
+            self._open = len(self.pieces)
+        return start
+
+    def snapshot(self) -> SampleText:
+        """The text and ranges so far, as a :class:`SampleText`."""
+        return SampleText(self.text, tuple(self.spans))
+
+
+def _whole(data: bytes) -> bool:
+    """Whether ``data`` ends on a character boundary (decodes as UTF-8 without error)."""
+    try:
+        data.decode("utf-8")
+    except UnicodeDecodeError:
+        return False
+    return True
+
+
 @dataclasses.dataclass(frozen=True)
 class Vocabulary:
     """The bytes of every token id of a model (plain data, safe to hand to any thread).
