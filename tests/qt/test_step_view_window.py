@@ -31,7 +31,7 @@ def test_the_step_view_follows_a_value_as_it_is_typed(window, qtbot):
     qtbot.waitUntil(lambda: plot.shown.presets[0].kept == 1, timeout=10000)
     # Temperature 0 is greedy (common practice): one token keeps all the probability.
     assert plot.shown.presets[0].kept_end == plot.shown.rank_of(int(plot.shown.presets[0].probs.argmax()))
-    assert EDITING_MARK in plot.names[0] and "unsaved edits" in window.inspector.summary.text()
+    assert EDITING_MARK in plot.names[0] and "unsaved edits" in window.inspector.context.text()
     qtbot.wait(400)
     assert len(answers) == 1  # the keystrokes were gathered into one new step view
     # The sample's own context is kept: the same raw distribution as before the edit.

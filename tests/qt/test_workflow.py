@@ -110,7 +110,7 @@ def test_open_generate_click_token_shows_step(window, qtbot, tmp_path):
     assert drawn in table.ids
     assert table.item(table.ids.index(drawn), 1).text().startswith("▼")
     assert plot._drawn_line.isVisible()
-    assert "own context" in window.inspector.summary.text()
+    assert "own context" in window.inspector.context.text()
 
 
 def test_step_control_moves_through_the_sample(window, qtbot):

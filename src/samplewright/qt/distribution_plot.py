@@ -18,7 +18,7 @@ from collections.abc import Sequence
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, QTimer, Signal
-from PySide6.QtGui import QCursor
+from PySide6.QtGui import QCursor, QFont
 from PySide6.QtWidgets import QCheckBox, QHBoxLayout, QToolTip, QVBoxLayout, QWidget
 
 from ..core.results import StepView
@@ -31,6 +31,26 @@ REDRAW_MS = 33
 MIN_RANKS = 30
 LOG_FLOOR = 1e-12
 AXIS_WIDTH = 64
+#: Height of one preset's lane and of the rank axis under the lanes, in pixels.
+LANE_PIXELS, LANE_AXIS_HEIGHT = 22, 44
+
+
+def help_text() -> str:
+    """How to read the step view (the Help menu shows it)."""
+    stages = ", ".join(stage_style.label(s) for s in stage_style.stages())
+    return (
+        "Every token the model could write next is placed by its raw rank: 1 is the token the model "
+        "itself finds most probable. The grey curve is the model's own distribution; each coloured "
+        "curve is the distribution after one preset (numbered as in the audition columns), drawn "
+        "on the same ranking, and it stops where that preset's kept set ends (the dashed line).\n\n"
+        "Under the plot, one lane per preset: its colour over the ranks it keeps; over the ranks it "
+        "cut, the colour and hatch of the stage that cut them (" + stages + "), as the legend shows.\n\n"
+        "Hover the plot for every number of a rank; click it to list that token in the table. The "
+        "yellow line and ▼ mark the token the inspected sample drew. 'log probability' and "
+        "'log rank' switch the axes; 'running mass' shows how much probability the tokens up to "
+        "each rank hold.\n\nAll presets are compared at the inspected sample's own context; while "
+        "you edit a preset shown here, its curve follows what you type."
+    )
 
 
 def token_label(text: str, limit: int = 14) -> str:
@@ -38,6 +58,11 @@ def token_label(text: str, limit: int = 14) -> str:
     shown = text.replace(" ", "␣").replace("\n", "↵").replace("\r", "").replace("\t", "→")
     shown = shown or "∅"
     return shown if len(shown) <= limit else shown[: limit - 1] + "…"
+
+
+def short_name(name: str, limit: int = 8) -> str:
+    """A preset's name cut to ``limit`` characters (with '…') for a narrow label."""
+    return name if len(name) <= limit else name[: limit - 1].rstrip() + "…"
 
 
 def probability(value: float) -> str:
@@ -124,7 +149,9 @@ class DistributionPlot(QWidget):
         self.lanes.setXLink(self.curves)
         self.lanes.setLabel("bottom", "raw rank (1 = the model's most probable token)")
         self.lanes.invertY(True)
-        self.lanes.getAxis("left").setStyle(tickLength=0)
+        small = QFont()
+        small.setPointSizeF(max(6.0, small.pointSizeF() * 0.85))
+        self.lanes.getAxis("left").setStyle(tickLength=0, tickFont=small)
         self._drawn_line = pg.InfiniteLine(angle=90, pen=pg.mkPen(palette.DRAWN_HIGHLIGHT, width=6))
         self._drawn_line.setZValue(-10)
         self.curves.addItem(self._drawn_line)
@@ -138,11 +165,16 @@ class DistributionPlot(QWidget):
             curve.setDownsampling(auto=True, method="peak")
             self.curves.addItem(curve)
             self._series.append(curve)
-        self._ends = []
+        self._ends, self._end_marks = [], []
         for index in range(MAX_PRESETS):
-            line = pg.InfiniteLine(angle=90, pen=pg.mkPen(palette.preset_colour(index), width=1.5, style=Qt.DashLine))
+            colour = palette.preset_colour(index)
+            line = pg.InfiniteLine(angle=90, pen=pg.mkPen(colour, width=1.5, style=Qt.DashLine))
+            # The last kept token of each preset gets a dot, so a kept set of one token is seen too.
+            mark = pg.PlotDataItem(symbol="o", symbolSize=8, symbolBrush=colour, symbolPen=pg.mkPen("w"), pen=None)
             self.curves.addItem(line)
+            self.curves.addItem(mark)
             self._ends.append(line)
+            self._end_marks.append(mark)
         self._drawn_mark = pg.PlotDataItem(symbol="t", symbolSize=14, symbolBrush="#000000", pen=None)
         self._picked_mark = pg.PlotDataItem(symbol="o", symbolSize=15, symbolPen=pg.mkPen("#000000", width=2), pen=None)
         self._picked_mark.setSymbolBrush(None)
@@ -192,7 +224,7 @@ class DistributionPlot(QWidget):
     def clear(self) -> None:
         """Show an empty plot with a hint of what will appear."""
         self.shown, self.names, self.picked_rank = None, [], None
-        for item in self._series + [self._drawn_mark, self._picked_mark]:
+        for item in self._series + self._end_marks + [self._drawn_mark, self._picked_mark]:
             item.setData([], [])
         for line in self._ends + [self._drawn_line, self._hover_line]:
             line.setVisible(False)
@@ -292,13 +324,19 @@ class DistributionPlot(QWidget):
         for index, line in enumerate(self._ends):
             active = index < len(view.presets)
             line.setVisible(active)
-            if active:
-                end = view.presets[index].kept_end
-                line.setValue(math.log10(end) if log_x else end)
-                line.setToolTip(f"{index + 1} {self._name(index)}: kept set ends at raw rank {end}")
+            if not active:
+                self._end_marks[index].setData([], [])
+                continue
+            end = view.presets[index].kept_end
+            line.setValue(math.log10(end) if log_x else end)
+            line.setToolTip(f"{index + 1} {self._name(index)}: kept set ends at raw rank {end}")
+            if end <= last:
+                self._end_marks[index].setData([end], [series[index + 1][end - 1]])
+            else:
+                self._end_marks[index].setData([], [])
         self._draw_lanes(view, log_x, last)
         self._draw_marks()
-        left, right = (math.log10(0.5), math.log10(last + 0.5)) if log_x else (0.5, last + 0.5)
+        left, right = (math.log10(0.8), math.log10(last + 0.5)) if log_x else (0.5, last + 0.5)
         self.curves.setXRange(left, right, padding=0.01)
         if log_y:
             self.curves.setYRange(math.log10(max(lowest, LOG_FLOOR)), 0.0, padding=0.03)
@@ -314,10 +352,12 @@ class DistributionPlot(QWidget):
             runs = [type(r)(r.first, min(r.last, last), r.stage) for r in runs]
             bands += bands_of(lane, runs, palette.preset_colour(lane))
         self.cut_lanes.set_bands(bands, len(steps), log_x)
-        ticks = [(float(lane), f"{lane + 1} {token_label(self._name(lane), 7)}") for lane in range(len(steps))]
+        ticks = [(float(lane), f"{lane + 1} {short_name(self._name(lane))}") for lane in range(len(steps))]
         self.lanes.getAxis("left").setTicks([ticks])
         self.lanes.setYRange(-0.5, max(0.5, len(steps) - 0.5), padding=0)
-        self.lanes.setMaximumHeight(26 + 18 * max(1, len(steps)))
+        height = LANE_AXIS_HEIGHT + LANE_PIXELS * max(1, len(steps))
+        self.lanes.setMinimumHeight(height)
+        self.lanes.setMaximumHeight(height)
 
     def _draw_marks(self) -> None:
         view = self.shown

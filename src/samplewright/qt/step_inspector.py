@@ -7,13 +7,13 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 from PySide6.QtCore import Qt, Signal
-from PySide6.QtWidgets import QHBoxLayout, QLabel, QSlider, QSpinBox, QSplitter, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QHBoxLayout, QLabel, QSlider, QSpinBox, QSplitter, QTabWidget, QVBoxLayout, QWidget
 
 from ..core.engine.token_text import Vocabulary
 from ..core.results import StepView
 from . import palette
 from .distribution_plot import DistributionPlot
-from .step_table import StepTable, summary_html
+from .step_table import StepTable, context_text, summary_html
 
 
 class QtStepInspector(QWidget):
@@ -49,16 +49,20 @@ class QtStepInspector(QWidget):
         self.summary.setAccessibleName("Step summary")
         self.summary.setWordWrap(True)
         self.summary.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
-        lower = QWidget()
-        lower_layout = QVBoxLayout(lower)
-        lower_layout.setContentsMargins(0, 0, 0, 0)
-        lower_layout.addWidget(self.table, 1)
-        lower_layout.addWidget(self.summary)
+        self.summary.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignLeft)
+        self.context = QLabel("")
+        self.context.setWordWrap(True)
+        self.context.setAccessibleName("Where the presets are compared")
+        self.context.setStyleSheet("color: #404040;")
+        self.tabs = QTabWidget()
+        self.tabs.addTab(self.table, "Tokens")
+        self.tabs.addTab(self.summary, "What each preset keeps")
         self.split = QSplitter(Qt.Orientation.Vertical)
         self.split.addWidget(self.plot)
-        self.split.addWidget(lower)
+        self.split.addWidget(self.tabs)
         self.split.setStretchFactor(0, 3)
         self.split.setStretchFactor(1, 2)
+        self.split.setSizes([470, 260])
         self.split.setChildrenCollapsible(False)
         controls = QHBoxLayout()
         controls.addWidget(self.spin)
@@ -69,6 +73,7 @@ class QtStepInspector(QWidget):
         layout.addWidget(self.title)
         layout.addWidget(self.which)
         layout.addLayout(controls)
+        layout.addWidget(self.context)
         layout.addWidget(self.split, 1)
         self.plot.rank_picked.connect(self._on_rank_picked)
         self.spin.valueChanged.connect(self._on_spin)
@@ -124,7 +129,8 @@ class QtStepInspector(QWidget):
     def _show_table(self) -> None:
         view, names = self._table_step
         self.table.show_step(view, names, self.plot.picked_rank)
-        self.summary.setText(summary_html(view, names, self.live))
+        self.summary.setText(summary_html(view, names))
+        self.context.setText(context_text(view, self.live))
 
     def _on_rank_picked(self, rank: int) -> None:
         view = self.plot.shown

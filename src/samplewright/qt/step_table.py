@@ -44,6 +44,7 @@ class StepTable(QTableWidget):
         self.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
         self.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
         self.verticalHeader().hide()
+        self.verticalHeader().setDefaultSectionSize(self.fontMetrics().height() + 6)
         self.setWordWrap(False)
         self.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
         self.horizontalHeader().setStretchLastSection(True)
@@ -91,7 +92,9 @@ class StepTable(QTableWidget):
                 cell.setToolTip(f"{name}: p {probability(step.probs[token_id])} after its chain")
             else:
                 cell = self._cell("cut")
-                cell.setBackground(QBrush(QColor(stage_style.colour(stage)), stage_style.pattern(stage)))
+                hatch = QColor(stage_style.colour(stage))
+                hatch.setAlpha(150)  # the word "cut" stays readable over the hatch
+                cell.setBackground(QBrush(hatch, stage_style.pattern(stage)))
                 cell.setToolTip(f"{name}: cut by {stage_style.label(stage)}")
                 cuts.setdefault(stage_style.label(stage), []).append(str(index + 1))
             cells.append(cell)
@@ -118,16 +121,21 @@ class StepTable(QTableWidget):
         return cell
 
 
-def summary_html(view: StepView | None, names: Sequence[str], live: bool = False) -> str:
-    """What each preset keeps at this step, and at which context the presets are compared."""
+def context_text(view: StepView | None, live: bool = False) -> str:
+    """Where the presets are compared: the inspected sample's own context; and whether typed edits are shown."""
+    if view is None:
+        return ""
+    text = (
+        f"All presets are compared at this sample's own context: {view.context_tokens} tokens, "
+        "the passage and the sample up to this step."
+    )
+    return text + (" Your unsaved edits are shown as you type them." if live else "")
+
+
+def summary_html(view: StepView | None, names: Sequence[str]) -> str:
+    """How many tokens and how much of the distribution each preset keeps at this step."""
     if view is None:
         return "<i>Generate, then click a token in a sample to see the distribution it was drawn from.</i>"
-    where = (
-        f"All presets are compared at the inspected sample's own context ({view.context_tokens} tokens: "
-        "the passage and the sample up to this step)."
-    )
-    if live:
-        where += " Your unsaved edits are shown as you type."
     rows = [
         "<tr><th></th><th align='left'>preset</th><th>kept</th><th>ends at rank</th>"
         "<th>raw mass kept</th><th>entropy, bits</th></tr>"
@@ -140,4 +148,4 @@ def summary_html(view: StepView | None, names: Sequence[str], live: bool = False
             f"<td align='right'>{step.kept_raw_mass:.2f}</td>"
             f"<td align='right'>{_bits(step.raw_entropy_bits)} → {_bits(step.entropy_bits)}</td></tr>"
         )
-    return f"{html.escape(where)}<table cellspacing='4'>{''.join(rows)}</table>"
+    return f"<table cellspacing='4'>{''.join(rows)}</table>"

@@ -17,7 +17,7 @@ from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import QMainWindow, QMenu
 
 from ..core.engine.model import DEFAULT_NAME
-from .palette import stage_legend
+from .distribution_plot import help_text as step_view_help
 from .preset_controller import IMPORT_TEXT
 
 if TYPE_CHECKING:
@@ -159,7 +159,7 @@ def window_commands(w: MainWindow) -> list[Command]:
             None,
             f"Load the default model, {DEFAULT_NAME}",
         ),
-        Command("legend", "What the letters mean", lambda: show_legend(w), "F1"),
+        Command("legend", "Reading the next-token view", lambda: show_legend(w), "F1"),
     ]
 
 
@@ -245,14 +245,5 @@ def follow_audition(actions: dict[str, QAction], can_generate: bool, running: bo
 
 
 def show_legend(w: MainWindow) -> None:
-    """Explain the plot's colours and letters."""
-    w.prompts.show_info(
-        "Reading the next-token view",
-        (
-            "Grey bars: the model's own distribution. Coloured bars: the distribution after each preset "
-            "(numbered as in the audition columns).\n\nA dashed outline with a letter marks a token a preset "
-            "removed; the letter names the stage that removed it:\n"
-            + stage_legend()
-            + "\n\nThe shaded row with ▶ is the token the inspected sample drew."
-        ),
-    )
+    """Explain the next-token view: its curves, lanes, marks and colours."""
+    w.prompts.show_info("Reading the next-token view", step_view_help())
