@@ -184,3 +184,12 @@ def test_plot_demo_runs():
     )
     assert done.returncode == 0, done.stderr
     assert "drew 5 steps" in done.stdout
+
+
+def test_long_curves_keep_every_head_rank_and_a_log_spread_tail():
+    from samplewright.qt.distribution_plot import plotted_ranks
+
+    ranks = plotted_ranks(49152)
+    assert list(ranks[:1000]) == list(range(1, 1001)) and ranks[-1] == 49152
+    assert np.all(np.diff(ranks) > 0) and len(ranks) < 2100
+    assert list(plotted_ranks(40)) == list(range(1, 41))

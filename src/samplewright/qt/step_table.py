@@ -46,7 +46,8 @@ class StepTable(QTableWidget):
         self.verticalHeader().hide()
         self.verticalHeader().setDefaultSectionSize(self.fontMetrics().height() + 6)
         self.setWordWrap(False)
-        self.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
+        # Columns are fitted once per step: fitting them on every new cell took a tenth of a second.
+        self.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
         self.horizontalHeader().setStretchLastSection(True)
 
     def show_step(self, view: StepView | None, names: Sequence[str], picked_rank: int | None = None) -> None:
@@ -72,6 +73,7 @@ class StepTable(QTableWidget):
             rank = view.rank_of(token_id)
             self._fill_row(view, names, row, token_id, rank, gap=rank > previous + 1)
             previous = rank
+        self.resizeColumnsToContents()
         if self.picked is not None and self.picked in self.ids:
             self.selectRow(self.ids.index(self.picked))
 

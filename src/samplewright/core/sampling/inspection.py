@@ -63,24 +63,28 @@ def ranking(probs) -> np.ndarray:
 
 def cut_codes(after_stage: Mapping[str, np.ndarray], order: Sequence[str]) -> np.ndarray:
     """For every token id, the index in ``order`` of the first stage after which it is removed (-1: kept)."""
-    codes: np.ndarray | None = None
-    for index, name in enumerate(order):
-        removed = softmax(after_stage[name]) == 0
-        if codes is None:
-            codes = np.full(removed.shape, -1, dtype=np.int8)
-        codes[removed & (codes < 0)] = index
-    return codes if codes is not None else np.zeros(0, dtype=np.int8)
+    return _cuts_and_effects(after_stage, order, None)[0]
 
 
 def stage_effects(
     after_stage: Mapping[str, np.ndarray], order: Sequence[str], raw_probs: np.ndarray
 ) -> tuple[StageEffect, ...]:
     """How many tokens, and how much raw mass, are left after each stage in ``order``."""
+    return _cuts_and_effects(after_stage, order, raw_probs)[1]
+
+
+def _cuts_and_effects(after_stage, order, raw_probs) -> tuple[np.ndarray, tuple[StageEffect, ...]]:
+    """Both of the above from one softmax per stage."""
+    codes: np.ndarray | None = None
     effects = []
-    for name in order:
+    for index, name in enumerate(order):
         kept = softmax(after_stage[name]) > 0
-        effects.append(StageEffect(name, int(kept.sum()), float(raw_probs[kept].sum())))
-    return tuple(effects)
+        if codes is None:
+            codes = np.full(kept.shape, -1, dtype=np.int8)
+        codes[~kept & (codes < 0)] = index
+        if raw_probs is not None:
+            effects.append(StageEffect(name, int(kept.sum()), float(raw_probs[kept].sum())))
+    return (codes if codes is not None else np.zeros(0, dtype=np.int8)), tuple(effects)
 
 
 def table_ids(view: StepView, extra: Sequence[int] = (), head: int = 12) -> list[int]:
@@ -122,6 +126,7 @@ def preset_step(
     after_stage: Mapping[str, np.ndarray],
     ids: Sequence[int],
     texts: Sequence[str],
+    by_rank: np.ndarray | None = None,
 ) -> PresetStep:
     """Summarise how one preset reshaped the raw distribution at one step.
 
@@ -133,15 +138,18 @@ def preset_step(
         after_stage: the preset's logits after each stage.
         ids: the step's top token ids (by raw probability).
         texts: their text pieces.
+        by_rank: every id by raw rank (:func:`ranking` of ``raw_probs``; computed when not given).
 
     Returns:
         The preset's part of the step view.
     """
     kept = probs > 0
     cuts = cut_by(after_stage, order, ids)
-    by_rank = ranking(raw_probs)
+    by_rank = ranking(raw_probs) if by_rank is None else by_rank
     ranked = probs[by_rank]
-    codes = cut_codes(after_stage, order) if order else np.full(probs.shape, -1, np.int8)
+    codes, effects = _cuts_and_effects(after_stage, order, raw_probs)
+    if not order:
+        codes = np.full(probs.shape, -1, np.int8)
     rows = [
         TokenRow(id=int(i), text=t, raw_p=float(raw_probs[i]), p=float(probs[i]), cut_by=c)
         for i, t, c in zip(ids, texts, cuts, strict=False)
@@ -159,7 +167,7 @@ def preset_step(
         cumulative=np.cumsum(ranked),
         cut_ranked=codes[by_rank],
         kept_end=int(np.flatnonzero(ranked > 0)[-1]) + 1,
-        stages=stage_effects(after_stage, order, raw_probs) if order else (),
+        stages=effects,
     )
 
 
@@ -220,6 +228,7 @@ def step_view(
                 {name: stage[r].numpy() for name, stage in (out.after_stage or {}).items()},
                 ids,
                 names,
+                by_rank,
             )
             for r, preset in enumerate(presets)
         ]
