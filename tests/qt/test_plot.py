@@ -19,7 +19,7 @@ from samplewright.core.presets import Preset
 from samplewright.qt import stage_style
 from samplewright.qt.distribution_plot import DistributionPlot, probability, token_label
 from samplewright.qt.palette import OKABE_ITO, PRESET_COLOURS
-from samplewright.qt.step_inspector import QtStepInspector
+from samplewright.qt.step_inspector import QtStepInspector, help_text
 
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "examples"))
@@ -146,6 +146,9 @@ def test_no_single_letter_stage_codes_and_the_legend_always_fits(qtbot):
         assert all(rect.right() <= width or rect.x() == 0 for rect, _ in placed)
         assert legend.heightForWidth(width) >= max(rect.bottom() for rect, _ in placed)
     assert legend.heightForWidth(180) > legend.heightForWidth(900)  # wraps onto more lines when narrow
+    words = help_text()
+    assert all(name in words for name in TRADE_NAMES)
+    assert not re.search(r"\b[A-Z] = |\([A-Z]\)", words)  # no "K = top-k" style codes
 
 
 def test_only_the_newest_requested_step_is_drawn(qtbot):

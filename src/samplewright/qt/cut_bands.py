@@ -36,11 +36,11 @@ class Band:
 def fill(painter: QPainter, rect: QRectF, stage: str | None, colour: str) -> None:
     """Paint one band's rectangle: solid preset colour when kept, pale stage colour and hatch when cut."""
     if stage is None:
-        painter.fillRect(rect, QColor(colour))
+        painter.fillRect(rect, QBrush(QColor(colour)))
         return
     pale = QColor(stage_style.colour(stage))
     pale.setAlpha(70)
-    painter.fillRect(rect, pale)
+    painter.fillRect(rect, QBrush(pale))
     painter.fillRect(rect, QBrush(QColor(stage_style.colour(stage)), stage_style.pattern(stage)))
 
 

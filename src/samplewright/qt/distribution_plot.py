@@ -12,6 +12,7 @@ the newest step and a ~30 Hz timer redraws with ``setData``.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Sequence
 
@@ -35,24 +36,6 @@ AXIS_WIDTH = 64
 EXACT_RANKS = 1000
 #: Height of one preset's lane and of the rank axis under the lanes, in pixels.
 LANE_PIXELS, LANE_AXIS_HEIGHT = 22, 44
-
-
-def help_text() -> str:
-    """How to read the step view (the Help menu shows it)."""
-    stages = ", ".join(stage_style.label(s) for s in stage_style.stages())
-    return (
-        "Every token the model could write next is placed by its raw rank: 1 is the token the model "
-        "itself finds most probable. The grey curve is the model's own distribution; each coloured "
-        "curve is the distribution after one preset (numbered as in the audition columns), drawn "
-        "on the same ranking, and it stops where that preset's kept set ends (the dashed line).\n\n"
-        "Under the plot, one lane per preset: its colour over the ranks it keeps; over the ranks it "
-        "cut, the colour and hatch of the stage that cut them (" + stages + "), as the legend shows.\n\n"
-        "Hover the plot for every number of a rank; click it to list that token in the table. The "
-        "yellow line and ▼ mark the token the inspected sample drew. 'log probability' and "
-        "'log rank' switch the axes; 'running mass' shows how much probability the tokens up to "
-        "each rank hold.\n\nAll presets are compared at the inspected sample's own context; while "
-        "you edit a preset shown here, its curve follows what you type."
-    )
 
 
 def token_label(text: str, limit: int = 14) -> str:
@@ -318,7 +301,7 @@ class DistributionPlot(QWidget):
         self.curves.setLogMode(x=log_x, y=log_y)
         self.lanes.setLogMode(x=log_x, y=False)
         self.curves.setLabel("left", "running mass" if running else "probability")
-        first, last = self.rank_range()
+        last = self.rank_range()[1]
         ranks = plotted_ranks(last)
         at = ranks - 1
         series = [view.raw_cumulative if running else view.raw_ranked]
@@ -361,8 +344,7 @@ class DistributionPlot(QWidget):
         bands = []
         steps = view.presets[:MAX_PRESETS]
         for lane, step in enumerate(steps):
-            runs = [r for r in step.cut_runs() if r.first <= last]
-            runs = [type(r)(r.first, min(r.last, last), r.stage) for r in runs]
+            runs = [dataclasses.replace(r, last=min(r.last, last)) for r in step.cut_runs() if r.first <= last]
             bands += bands_of(lane, runs, palette.preset_colour(lane))
         self.cut_lanes.set_bands(bands, len(steps), log_x)
         ticks = [(float(lane), f"{lane + 1} {short_name(self._name(lane))}") for lane in range(len(steps))]

@@ -11,9 +11,27 @@ from PySide6.QtWidgets import QHBoxLayout, QLabel, QSlider, QSpinBox, QSplitter,
 
 from ..core.engine.token_text import Vocabulary
 from ..core.results import StepView
-from . import palette
+from . import palette, stage_style
 from .distribution_plot import DistributionPlot
 from .step_table import StepTable, context_text, summary_html
+
+
+def help_text() -> str:
+    """How to read the step view (the Help menu shows it)."""
+    stages = ", ".join(stage_style.label(s) for s in stage_style.stages())
+    return (
+        "Every token the model could write next is placed by its raw rank: 1 is the token the model "
+        "itself finds most probable. The grey curve is the model's own distribution; each coloured "
+        "curve is the distribution after one preset (numbered as in the audition columns), drawn "
+        "on the same ranking, and it stops where that preset's kept set ends (the dashed line).\n\n"
+        "Under the plot, one lane per preset: its colour over the ranks it keeps; over the ranks it "
+        "cut, the colour and hatch of the stage that cut them (" + stages + "), as the legend shows.\n\n"
+        "Hover the plot for every number of a rank; click it to list that token in the table. The "
+        "yellow line and ▼ mark the token the inspected sample drew. 'log probability' and "
+        "'log rank' switch the axes; 'running mass' shows how much probability the tokens up to "
+        "each rank hold.\n\nAll presets are compared at the inspected sample's own context; while "
+        "you edit a preset shown here, its curve follows what you type."
+    )
 
 
 class QtStepInspector(QWidget):

@@ -17,8 +17,8 @@ from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import QMainWindow, QMenu
 
 from ..core.engine.model import DEFAULT_NAME
-from .distribution_plot import help_text as step_view_help
 from .preset_controller import IMPORT_TEXT
+from .step_inspector import help_text as step_view_help
 
 if TYPE_CHECKING:
     from .main_window import MainWindow
