@@ -14,6 +14,7 @@ from samplewright.core.presets import Preset
 from samplewright.core.results import AuditionRequest, TokenEvent, TokenStep
 from samplewright.qt.audition_controller import EDITING_MARK
 from samplewright.qt.audition_view import QtAuditionGrid
+from samplewright.qt.distribution_plot import token_label
 
 TEXT = "Dvořák: 渡し船 🚢 ok"
 
@@ -25,6 +26,13 @@ def test_the_step_view_follows_a_value_as_it_is_typed(window, qtbot):
     plot = window.inspector.plot
     qtbot.waitUntil(lambda: plot.shown is not None, timeout=10000)
     assert plot.shown.presets[0].kept > 1 and EDITING_MARK not in plot.names[0]
+    # A token picked far down the ranking is listed, labelled from the model's own vocabulary.
+    far = len(plot.shown.ranked_ids)
+    plot.pick_rank(far)
+    far_id = int(plot.shown.ranked_ids[far - 1])
+    table = window.inspector.table
+    assert table.ids[-1] == far_id
+    assert table.item(len(table.ids) - 1, 1).text() == token_label(window.model_info.vocabulary.label(far_id), 18)
     answers = []
     window.engine.worker.step_ready.connect(lambda serial, view: answers.append(view))
     retype(qtbot, window.editor.inputs["temperature"], "0.0")  # several keystrokes in a row

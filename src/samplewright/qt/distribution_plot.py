@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 
 import numpy as np
 import pyqtgraph as pg
@@ -88,6 +88,7 @@ class DistributionPlot(QWidget):
         self.shown: StepView | None = None
         self.names: list[str] = []
         self.labels: dict[int, str] = {}
+        self.label_source: Callable[[int], str] | None = None  # e.g. the model's vocabulary
         self.picked_rank: int | None = None
         self.hover_text = ""
         self.redraws = 0
@@ -183,9 +184,9 @@ class DistributionPlot(QWidget):
         self.curves.scene().sigMouseClicked.connect(self._on_mouse_clicked)
 
     # -- public -------------------------------------------------------------------
-    def set_labels(self, labels: dict[int, str]) -> None:
-        """Token labels by id for the hover (the step's own top labels are used too)."""
-        self.labels = labels
+    def set_label_source(self, source: Callable[[int], str] | None) -> None:
+        """Where the label of any token id comes from (the step's own top labels come first)."""
+        self.label_source = source
 
     def show_step(self, view: StepView | None, preset_names: Sequence[str], drawn_text: str | None = None) -> None:
         """Ask for ``view`` to be drawn; only the newest request is drawn (~30 per second at most).
@@ -197,7 +198,7 @@ class DistributionPlot(QWidget):
         """
         self._pending = (view, list(preset_names))
         if view is not None and view.drawn_id is not None and drawn_text is not None:
-            self.labels = {**self.labels, int(view.drawn_id): drawn_text}
+            self.labels = {int(view.drawn_id): drawn_text}
         if not self._timer.isActive():
             self._timer.start()
 
@@ -275,11 +276,13 @@ class DistributionPlot(QWidget):
         return "\n".join(lines)
 
     def label_of(self, token_id: int) -> str:
-        """The label of a token id: the step's own, then the window's, else its id."""
+        """The label of a token id: the step's own, the drawn token's, the label source's, else its id."""
         view = self.shown
         if view is not None and token_id in view.top_ids:
             return view.top_texts[view.top_ids.index(token_id)]
-        return self.labels.get(token_id, f"id {token_id}")
+        if token_id in self.labels:
+            return self.labels[token_id]
+        return self.label_source(token_id) if self.label_source is not None else f"id {token_id}"
 
     # -- drawing ------------------------------------------------------------------
     def _name(self, index: int) -> str:

@@ -119,6 +119,7 @@ class QtStepInspector(QWidget):
     def set_vocabulary(self, vocabulary: Vocabulary | None) -> None:
         """The model's token bytes, for labelling any token the user picks."""
         self.vocabulary = vocabulary
+        self.plot.set_label_source(vocabulary.label if vocabulary is not None else None)
 
     def label_of(self, token_id: int) -> str:
         """A token's label from the model's vocabulary ("id N" without one)."""
@@ -136,9 +137,6 @@ class QtStepInspector(QWidget):
             live: the view shows unsaved edits of a preset, recomputed as they are typed.
         """
         self.live = live
-        if view is not None and self.vocabulary is not None:
-            wanted = [int(i) for i in view.ranked_ids[: 2 * self.plot.top_n]]
-            self.plot.set_labels({i: self.vocabulary.label(i) for i in wanted})
         self.plot.show_step(view, names, drawn_text)
         self._table_step = (view, list(names))
         self.plot.flush()
@@ -151,10 +149,6 @@ class QtStepInspector(QWidget):
         self.context.setText(context_text(view, self.live))
 
     def _on_rank_picked(self, rank: int) -> None:
-        view = self.plot.shown
-        if view is not None:
-            token_id = int(view.ranked_ids[rank - 1])
-            self.plot.set_labels({**self.plot.labels, token_id: self.label_of(token_id)})
         self._show_table()
 
     def step(self) -> int:
