@@ -228,10 +228,10 @@ class DistributionPlot(QWidget):
         self.lanes.getAxis("left").setTicks([[]])
         self.curves.setLogMode(x=False, y=False)
         self.lanes.setLogMode(x=False, y=False)
-        self.curves.setXRange(0, 1, padding=0)
+        self.curves.setXRange(1, MIN_RANKS, padding=0)
         self.curves.setYRange(0, 1, padding=0)
         self.lanes.setYRange(-0.5, 0.5, padding=0)
-        self._hint.setPos(0.5, 0.5)
+        self._hint.setPos((1 + MIN_RANKS) / 2, 0.5)
         self._hint.setVisible(True)
 
     def pick_rank(self, rank: int | None) -> None:
