@@ -79,7 +79,7 @@ def main(argv=None) -> int:
         Preset("Short list", top_k=5),
         Preset("Floor", min_p=0.1, temperature=1.2),
     ]
-    plot = DistributionPlot(top_n=20)
+    plot = DistributionPlot()
     plot.resize(520, 760)
     plot.show()
     rng = np.random.default_rng(7)
@@ -87,8 +87,14 @@ def main(argv=None) -> int:
         plot.show_step(synthetic_view(rng, presets), [p.name for p in presets])
         plot.flush()
         app.processEvents()
-    print(f"drew {plot.redraws} steps")
-    return app.exec() if args.stay else 0
+    print(f"drew {plot.redraws} steps", flush=True)
+    code = app.exec() if args.stay else 0
+    # Delete the widget while Qt is still up: left to interpreter exit, its plot items can be
+    # destroyed after their scene, which crashes.
+    plot.deleteLater()
+    app.processEvents()
+    del plot
+    return code
 
 
 if __name__ == "__main__":

@@ -1,29 +1,33 @@
-"""The distribution plot: built once, updated in place, newest step wins; and the demo script."""
+"""The rank–probability view: built once and updated in place, the raw and shaped curves
+by raw rank, where each kept set ends, which stage cut each rank (by its trade name, colour
+and hatch), numbers on hover, a click picks a token for the table; and the demo script."""
 
 from __future__ import annotations
 
+import math
 import os
+import re
 import subprocess
 import sys
 from pathlib import Path
 
 import numpy as np
-import pytest
-import torch
-from PySide6.QtCore import Qt
+from PySide6.QtCore import QPointF
+from PySide6.QtWidgets import QWidget
 
-from samplewright.core.limits import MAX_PRESETS
-from samplewright.core.presets import DEFAULT_ORDER, Preset
-from samplewright.core.sampling import registry
-from samplewright.qt import palette
-from samplewright.qt.distribution_plot import DistributionPlot, token_label
+from samplewright.core.presets import Preset
+from samplewright.qt import stage_style
+from samplewright.qt.distribution_plot import DistributionPlot, probability, token_label
 from samplewright.qt.palette import OKABE_ITO, PRESET_COLOURS
+from samplewright.qt.step_inspector import QtStepInspector, help_text
 
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "examples"))
 import plot_demo  # noqa: E402
 
 PRESETS = [Preset("Steady", temperature=0.7, top_p=0.9), Preset("Short list", top_k=3)]
+NAMES = [p.name for p in PRESETS]
+TRADE_NAMES = {"repetition penalties", "temperature", "top-k", "top-p", "min-p", "typical"}
 
 
 def views(n, seed=0):
@@ -31,80 +35,145 @@ def views(n, seed=0):
     return [plot_demo.synthetic_view(rng, PRESETS) for _ in range(n)]
 
 
-def test_items_are_built_once_and_updated_in_place(qtbot):
-    plot = DistributionPlot(top_n=20)
+def shown_plot(qtbot, view, **toggles):
+    plot = DistributionPlot()
     qtbot.addWidget(plot)
-    items_before = list(plot.plot_widget.getPlotItem().items)
-    for view in views(5):
-        plot.show_step(view, [p.name for p in PRESETS])
-        plot.flush()
-    assert plot.plot_widget.getPlotItem().items == items_before
-    # The grey bars hold the raw probabilities of the top tokens, in rank order.
-    shown = plot.shown
-    widths = plot._bars[0].opts["width"][: len(shown.top_ids)]
-    np.testing.assert_allclose(widths, shown.raw_probs[shown.top_ids])
-    assert list(widths) == sorted(widths, reverse=True)
-
-
-def test_cut_tokens_carry_the_mark_of_the_stage_that_cut_them(qtbot):
-    plot = DistributionPlot(top_n=20)
-    qtbot.addWidget(plot)
-    view = views(1, seed=3)[0]
-    plot.show_step(view, [p.name for p in PRESETS])
+    for name, on in toggles.items():
+        getattr(plot, name).setChecked(on)
+    plot.show_step(view, NAMES)
     plot.flush()
-    steady, short_list = view.presets
-    # top_k=3 keeps exactly three tokens (Fan, Lewis & Dauphin 2018, "Hierarchical Neural Story
-    # Generation"), the three of highest raw
-    # probability (temperature 1 keeps the ranking), so every other listed token is cut by top_k.
-    assert short_list.kept == 3
-    assert [row.cut_by for row in short_list.top] == [None] * 3 + ["top_k"] * (len(short_list.top) - 3)
-    # Temperature 0.7 only rescales the logits and never removes a token, so every token Steady
-    # drops is cut by its top_p=0.9 (Holtzman et al. 2020, "The Curious Case of Neural Text
-    # Degeneration", eq. 2), and the most probable one survives.
-    steady_cut = [row.cut_by for row in steady.top if row.cut_by]
-    assert steady.top[0].cut_by is None and steady_cut and set(steady_cut) == {"top_p"}
-    points = plot._cuts[1].points()
-    assert len(points) == len(short_list.top) - 3
-    top_k = registry.stage("top_k").mark
-    assert all(point.symbol() == palette.stage_symbol("top_k") for point in points)
-    assert all(point.brush().color().name().upper() == top_k.colour for point in points)
-    # The cut tokens' outline bars are hatched in top-k's pattern; the kept ones are not filled.
-    brushes = plot._ghosts[1].opts["brushes"]
-    assert [b.style() for b in brushes[3 : len(short_list.top)]] == [palette.stage_pattern("top_k")] * len(points)
-    assert all(b.style() == Qt.BrushStyle.NoBrush for b in brushes[:3])
+    return plot
+
+
+def test_items_are_built_once_and_updated_in_place(qtbot):
+    plot = DistributionPlot()
+    qtbot.addWidget(plot)
+    before = (list(plot.curves.items), list(plot.lanes.items))
+    for view in views(5):
+        plot.show_step(view, NAMES)
+        plot.flush()
+    assert (list(plot.curves.items), list(plot.lanes.items)) == before
+
+
+def test_curves_are_raw_and_shaped_probabilities_by_raw_rank(qtbot):
+    view = views(1, seed=3)[0]
+    plot = shown_plot(qtbot, view, log_x=False, log_y=False)
+    first, last = plot.rank_range()
+    raw_x, raw_y = plot._series[0].getData()
+    np.testing.assert_array_equal(raw_x, np.arange(1, last + 1))
+    np.testing.assert_allclose(raw_y, np.sort(view.raw_probs)[::-1][:last])  # rank 1 = most probable
+    short_list = view.presets[1]
+    _, shaped = plot._series[2].getData()
+    # top_k=3 (Fan et al. 2018) keeps the three most probable tokens: the curve has three points,
+    # renormalised to sum to one, and stops where the kept set ends.
+    assert np.isfinite(shaped).sum() == 3 and math.isclose(np.nansum(shaped), 1.0)
+    assert short_list.kept_end == 3 and plot._ends[1].value() == 3 and plot._ends[1].isVisible()
+    assert not plot._ends[2].isVisible()  # only two presets
+
+
+def test_log_axes_and_running_mass_on_demand(qtbot):
+    view = views(1, seed=4)[0]
+    plot = shown_plot(qtbot, view)
+    assert plot.curves.ctrl.logXCheck.isChecked() and plot.curves.ctrl.logYCheck.isChecked()
+    assert plot._ends[1].value() == math.log10(3)  # lines sit in view coordinates of the log axis
+    plot.running.setChecked(True)
+    _, running = plot._series[0].getData()
+    np.testing.assert_allclose(running, np.cumsum(np.sort(view.raw_probs)[::-1])[: len(running)])
+    assert plot.curves.getAxis("left").labelText == "running mass"
+    assert not plot.curves.ctrl.logYCheck.isChecked() and not plot.log_y.isEnabled()
+
+
+def test_lanes_show_which_stage_cut_each_rank(qtbot):
+    view = views(1, seed=3)[0]
+    plot = shown_plot(qtbot, view)
+    last = plot.rank_range()[1]
+    bands = plot.cut_lanes.bands
+    short = [(b.first, b.last, b.stage) for b in bands if b.lane == 1]
+    assert short == [(1, 3, None), (4, last, "top_k")]  # kept, then cut by top-k
+    steady = {b.stage for b in bands if b.lane == 0}
+    assert steady == {None, "top_p"}  # temperature never cuts; top-p does (Holtzman et al. 2020)
+    # Each stage has its own colour and hatch, so it is told apart without colour too.
+    assert len({stage_style.colour(s) for s in stage_style.stages()}) == len(stage_style.stages())
+    assert len({stage_style.pattern(s) for s in stage_style.stages()}) == len(stage_style.stages())
+    assert not {stage_style.colour(s) for s in stage_style.stages()} & set(PRESET_COLOURS)
+
+
+def test_hover_gives_every_number_and_names_the_cutting_stage(qtbot):
+    view = views(1, seed=3)[0]
+    plot = shown_plot(qtbot, view, log_x=False)
+    plot.resize(500, 400)
+    plot.show()
+    scene_pos = plot.curves.vb.mapViewToScene(QPointF(5, 0.01))
+    plot.curves.scene().sigMouseMoved.emit(scene_pos)
+    text = plot.hover_text
+    token = view.ranked_ids[4]
+    assert text.startswith("rank 5 ·") and probability(view.raw_probs[token]) in text
+    assert "2 Short list: cut by top-k" in text
+    assert re.search(r"1 Steady: (p [0-9.e-]+|cut by top-p)", text)
+
+
+def test_a_click_picks_a_far_token_for_the_table(qtbot):
+    inspector = QtStepInspector()
+    qtbot.addWidget(inspector)
+    view = views(1, seed=6)[0]
+    inspector.show_step(view, NAMES, "x")
+    far = len(view.ranked_ids)  # the least probable token
+    inspector.plot.pick_rank(far)
+    table = inspector.table
+    assert int(view.ranked_ids[far - 1]) in table.ids
+    assert view.drawn_id in table.ids  # the drawn token is always listed, wherever it ranks
+    ranks = [view.rank_of(i) for i in table.ids]
+    assert ranks == sorted(ranks) and ranks[: inspector.plot.top_n] == list(range(1, inspector.plot.top_n + 1))
+    last = table.rowCount() - 1
+    assert table.item(last, 0).text() == f"⋯ {far}"  # a gap in the ranks is shown
+    header = [table.horizontalHeaderItem(c).text() for c in range(table.columnCount())]
+    assert header == ["rank", "token", "raw p", "1", "2", "cut by"]
+    assert "top-k (2)" in table.item(last, 5).text()
+    cut_cell = table.item(last, 4)
+    assert cut_cell.text() == "cut" and cut_cell.background().style() == stage_style.pattern("top_k")
+    assert "cut by top-k" in cut_cell.toolTip()
+
+
+def test_no_single_letter_stage_codes_and_the_legend_always_fits(qtbot):
+    plot = shown_plot(qtbot, views(1)[0])
+    legend = plot.legend
+    assert TRADE_NAMES <= set(legend.texts())
+    assert not [t for t in legend.texts() if re.fullmatch(r"[A-Z]", t.split()[0])]
+    host = QWidget()
+    qtbot.addWidget(host)
+    for width in (180, 320, 900):
+        placed = legend._layout(width)
+        assert all(rect.right() <= width or rect.x() == 0 for rect, _ in placed)
+        assert legend.heightForWidth(width) >= max(rect.bottom() for rect, _ in placed)
+    assert legend.heightForWidth(180) > legend.heightForWidth(900)  # wraps onto more lines when narrow
+    words = help_text()
+    assert all(name in words for name in TRADE_NAMES)
+    assert not re.search(r"\b[A-Z] = |\([A-Z]\)", words)  # no "K = top-k" style codes
 
 
 def test_only_the_newest_requested_step_is_drawn(qtbot):
-    plot = DistributionPlot(top_n=20)
+    plot = DistributionPlot()
     qtbot.addWidget(plot)
     requested = views(10, seed=5)
     for view in requested:
-        plot.show_step(view, [p.name for p in PRESETS])
+        plot.show_step(view, NAMES)
     qtbot.waitUntil(lambda: plot.redraws == 1, timeout=2000)
     assert plot.shown is requested[-1]
 
 
-def test_palette_is_okabe_ito_and_stage_marks_are_distinct():
-    # Okabe & Ito (2008), "Color Universal Design (CUD): How to make figures and presentations that are
-    # friendly to colorblind people", published hex values (from memory): orange E69F00, sky blue 56B4E9,
+def test_palette_is_okabe_ito():
+    # Okabe & Ito (2008) published hex values (from memory of the CUD page): orange E69F00, sky blue 56B4E9,
     # bluish green 009E73, yellow F0E442, blue 0072B2, vermillion D55E00, reddish purple CC79A7.
     assert OKABE_ITO["vermillion"] == "#D55E00" and OKABE_ITO["bluish_green"] == "#009E73"
     assert set(PRESET_COLOURS) <= set(OKABE_ITO.values())
-    assert len(set(PRESET_COLOURS)) == MAX_PRESETS  # one colour per preset an audition can compare
-    # Each stage's mark differs from every other's in shape, hatch and colour, so any one cue is enough.
-    marks = [s.mark for s in registry.stages()]
-    for cue in ("shape", "hatch", "colour", "glyph"):
-        assert len({getattr(m, cue) for m in marks}) == len(marks), cue
-    # No stage is named by a single letter anywhere in the legend (issue 10: trade names only).
-    legend = palette.stage_legend()
-    assert all(s.label in legend for s in registry.stages())
-    assert not any(len(word) == 1 and word.isalpha() for word in legend.replace("·", " ").split())
+    assert len(set(PRESET_COLOURS)) == 6
 
 
 def test_token_labels_show_invisible_characters():
     assert token_label(" harbour") == "␣harbour"
     assert token_label("\n") == "↵"
     assert token_label("") == "∅"
+    assert probability(0.1234) == "0.123" and probability(0.00012) == "1.2e-04" and probability(0) == "0"
 
 
 def test_plot_demo_runs():
@@ -120,34 +189,10 @@ def test_plot_demo_runs():
     assert "drew 5 steps" in done.stdout
 
 
-@pytest.fixture
-def throwaway_stage():
-    # A stage invented for this test (no paper): it removes the live token with the highest id.
-    def drop_highest_id(logits, params, history):
-        ids = torch.arange(logits.shape[-1]).expand_as(logits)
-        highest = torch.where(torch.isneginf(logits), -1, ids).max(dim=-1, keepdim=True).values
-        return logits.masked_fill(ids == highest, float("-inf"))
+def test_long_curves_keep_every_head_rank_and_a_log_spread_tail():
+    from samplewright.qt.distribution_plot import plotted_ranks
 
-    mark = registry.StageMark(colour="#777777", shape="hexagon", hatch="diagonal_grid", glyph="⬢")
-    stage = registry.register(
-        registry.Stage("drop_highest_id", "drop highest id", "A test stage.", "none", mark, (), drop_highest_id)
-    )
-    yield stage
-    registry.unregister(stage.name)
-
-
-def test_a_registered_stage_gets_its_mark_and_legend_entry(qtbot, throwaway_stage):
-    # One registry entry plus its function (src/samplewright/core/sampling/registry.py) is all the
-    # plot needs: the legend names the new stage and its cuts carry its shape and hatch.
-    preset = Preset("new stage", order=DEFAULT_ORDER + (throwaway_stage.name,))
-    rows = len(plot_demo.WORDS)  # every token is a row, so the highest id is among them
-    view = plot_demo.synthetic_view(np.random.default_rng(1), [preset], top=rows)
-    plot = DistributionPlot(top_n=rows)
-    qtbot.addWidget(plot)
-    plot.show_step(view, [preset.name])
-    plot.flush()
-    cut = [r for r, row in enumerate(view.presets[0].top) if row.cut_by == throwaway_stage.name]
-    assert len(cut) == 1  # exactly one token, the highest id, is removed
-    assert [p.symbol() for p in plot._cuts[0].points()] == [palette.SHAPE_SYMBOLS["hexagon"]]
-    assert plot._ghosts[0].opts["brushes"][cut[0]].style() == Qt.BrushStyle.DiagCrossPattern
-    assert "⬢ drop highest id" in palette.stage_legend()
+    ranks = plotted_ranks(49152)
+    assert list(ranks[:1000]) == list(range(1, 1001)) and ranks[-1] == 49152
+    assert np.all(np.diff(ranks) > 0) and len(ranks) < 2100
+    assert list(plotted_ranks(40)) == list(range(1, 41))

@@ -95,8 +95,30 @@ class TokenRow:
 
 
 @dataclasses.dataclass(frozen=True)
+class StageEffect:
+    """What is left after one stage of a preset's chain at this step."""
+
+    stage: str  # the stage's name in the preset's order
+    kept: int  # tokens with nonzero probability after it
+    kept_raw_mass: float  # raw probability mass of those tokens
+
+
+@dataclasses.dataclass(frozen=True)
+class CutRun:
+    """Consecutive raw ranks (1-based, inclusive) that one stage cut, or that were kept (``stage`` None)."""
+
+    first: int
+    last: int
+    stage: str | None
+
+
+@dataclasses.dataclass(frozen=True)
 class PresetStep:
-    """How one preset reshaped the distribution at this step."""
+    """How one preset reshaped the distribution at this step.
+
+    The ``*_ranked`` arrays follow the raw ranking of the step (``StepView.ranked_ids``):
+    entry ``r`` belongs to the token of raw rank ``r + 1``.
+    """
 
     name: str
     probs: np.ndarray  # full shaped distribution (float64, vocab)
@@ -105,6 +127,30 @@ class PresetStep:
     entropy_bits: float
     raw_entropy_bits: float
     top: list[TokenRow]  # the step's top tokens by raw probability
+    order: tuple[str, ...] = ()  # the preset's stage order
+    ranked: np.ndarray = dataclasses.field(default_factory=lambda: np.zeros(0))  # shaped p by raw rank
+    cumulative: np.ndarray = dataclasses.field(default_factory=lambda: np.zeros(0))  # running sum of ``ranked``
+    cut_ranked: np.ndarray = dataclasses.field(default_factory=lambda: np.zeros(0, np.int8))  # stage index or -1
+    kept_end: int = 0  # raw rank of the last kept token: where the kept set ends
+    stages: tuple[StageEffect, ...] = ()  # what is left after each stage, in the preset's order
+
+    def cut_stage(self, rank: int) -> str | None:
+        """The stage that cut the token of raw ``rank`` (1-based), or None when it was kept."""
+        index = int(self.cut_ranked[rank - 1])
+        return None if index < 0 else self.order[index]
+
+    def cut_runs(self) -> list[CutRun]:
+        """The raw ranks split into runs kept, or cut by one stage, from rank 1 to the last."""
+        codes = np.asarray(self.cut_ranked)
+        if codes.size == 0:
+            return []
+        edges = np.flatnonzero(np.diff(codes)) + 1
+        starts = np.concatenate([[0], edges])
+        ends = np.concatenate([edges, [codes.size]])
+        return [
+            CutRun(int(a) + 1, int(b), None if codes[a] < 0 else self.order[int(codes[a])])
+            for a, b in zip(starts, ends, strict=True)
+        ]
 
 
 @dataclasses.dataclass(frozen=True)
@@ -118,3 +164,11 @@ class StepView:
     presets: list[PresetStep]
     context_tokens: int  # passage tokens + sample tokens before this step
     drawn_id: int | None = None  # the token the inspected sample drew here, if any
+    ranked_ids: np.ndarray = dataclasses.field(default_factory=lambda: np.zeros(0, np.int64))  # ids by raw rank
+    raw_ranked: np.ndarray = dataclasses.field(default_factory=lambda: np.zeros(0))  # raw p by raw rank
+    raw_cumulative: np.ndarray = dataclasses.field(default_factory=lambda: np.zeros(0))  # running sum of it
+    ranks: np.ndarray = dataclasses.field(default_factory=lambda: np.zeros(0, np.int64))  # raw rank (1-based) by id
+
+    def rank_of(self, token_id: int) -> int:
+        """The raw rank of a token (1 = most probable; ties go to the lower id)."""
+        return int(self.ranks[token_id])

@@ -6,7 +6,9 @@ run's settings, the inspected step, the run's serial) lives in the core
 turns clicks into engine requests and engine answers into session calls.
 A run's serial is the engine's request serial, handed to the session, so one
 number names the run. Answers for another serial are dropped. Step views are
-"latest wins": while one is being computed, only the newest click waits.
+"latest wins": while one is being computed, only the newest click waits. While
+the user edits a preset that has a column in the view, the inspected step is
+computed again with the typed values (debounced), so a change is seen at once.
 """
 
 from __future__ import annotations
@@ -14,7 +16,7 @@ from __future__ import annotations
 import random
 from collections.abc import Sequence
 
-from PySide6.QtCore import QObject, Signal
+from PySide6.QtCore import QObject, QTimer, Signal
 from PySide6.QtGui import QGuiApplication
 from PySide6.QtWidgets import QStatusBar
 
@@ -32,6 +34,11 @@ from .passage_panel import QtPassagePanel
 from .prompts import QtPrompts
 from .step_inspector import QtStepInspector
 from .workers import EngineThread, StepQuery
+
+#: How long typing must pause before the inspected step is computed again with the typed values.
+LIVE_EDIT_MS = 250
+#: Beside a preset's name in the step view while it shows the editor's typed values.
+EDITING_MARK = "(as typed)"
 
 
 class AuditionController(QObject):
@@ -74,7 +81,15 @@ class AuditionController(QObject):
         self.model_ready = False
         self._step_serial: int | None = None
         self._step_waiting: StepQuery | None = None
+        self._step_names: tuple[list[str], bool] = ([], False)  # names and "live" of the waiting query
+        self._shown_names: tuple[list[str], bool] = ([], False)  # the same for the query being computed
+        self._live_timer = QTimer(self)
+        self._live_timer.setSingleShot(True)
+        self._live_timer.setInterval(LIVE_EDIT_MS)
+        self._live_timer.timeout.connect(self._refresh_inspected)
+        draft.edited.connect(lambda edits: self._on_draft_edited())
         worker = engine.worker
+        worker.model_ready.connect(self._on_model_ready)
         worker.tokens_ready.connect(self._on_tokens)
         worker.audition_ready.connect(self._on_audition_ready)
         worker.step_ready.connect(self._on_step_ready)
@@ -242,15 +257,48 @@ class AuditionController(QObject):
             return
         self.grid.mark(column, row, ref.step)
         self.inspector.set_sample(column, self.column_name(column), row, len(sample.tokens), ref.step)
+        presets, names, live = self._step_presets()
+        self._step_names = (names, live)
         self._step_waiting = StepQuery(
             self.session.passage,
-            list(self.session.presets),
+            presets,
             tuple(sample.token_ids[: ref.step]),
             sample.tokens[ref.step].token_id,
             top=self.inspector.plot.top_n,
         )
         if self._step_serial is None:
             self._send_waiting_step()
+
+    def _step_presets(self) -> tuple[list[Preset], list[str], bool]:
+        """The presets the step view compares: each column's, or the editor's valid typed values
+        for the preset being edited; their names; and whether typed values are among them."""
+        presets, names, live = [], [], False
+        record = self.draft.record
+        for column, preset in enumerate(self.session.presets):
+            edits = self.draft.edits if record is not None and self.session.record_ids[column] == record.id else None
+            if edits is not None and edits != preset:
+                presets.append(edits)
+                names.append(f"{edits.name} {EDITING_MARK}")
+                live = True
+            else:
+                presets.append(preset)
+                names.append(self.column_name(column))
+        return presets, names, live
+
+    def _on_draft_edited(self) -> None:
+        record = self.draft.record
+        if self.session.inspected is not None and record is not None and record.id in self.session.record_ids:
+            self._live_timer.start()  # restarted by every keystroke: computed once typing pauses
+
+    def _refresh_inspected(self) -> None:
+        inspected = self.session.inspected
+        if inspected is not None:
+            self.inspect(inspected.column, inspected.row, inspected.step)
+
+    def _on_model_ready(self, serial: int, info) -> None:
+        vocabulary = getattr(info, "vocabulary", None)
+        self.grid.set_vocabulary(vocabulary)
+        self.inspector.set_vocabulary(vocabulary)
 
     def _on_step_chosen(self, step: int) -> None:
         inspected = self.session.inspected
@@ -260,6 +308,7 @@ class AuditionController(QObject):
     def _send_waiting_step(self) -> None:
         if self._step_waiting is not None:
             self._step_serial = self.engine.compute_step(self._step_waiting)
+            self._shown_names = self._step_names
             self._step_waiting = None
 
     def _on_step_ready(self, serial: int, view) -> None:
@@ -267,8 +316,11 @@ class AuditionController(QObject):
             return
         self._step_serial = None
         if self._step_waiting is None:
-            names = [self.column_name(c) for c in range(len(self.session.presets))]
-            self.inspector.plot.show_step(view, names, self.session.inspected_text())
+            names, live = self._shown_names
+            drawn = self.inspector.label_of(view.drawn_id) if view.drawn_id is not None else None
+            if self.inspector.vocabulary is None:
+                drawn = self.session.inspected_text()
+            self.inspector.show_step(view, names, drawn, live)
         self._send_waiting_step()
 
     def clear_inspection(self) -> None:
@@ -279,8 +331,9 @@ class AuditionController(QObject):
             self.engine.cancel(self._step_serial)  # skipped if still queued; a late answer is dropped
         self._step_serial = None
         self.grid.unmark()
+        self._live_timer.stop()
         self.inspector.set_sample(None, None, None)
-        self.inspector.plot.show_step(None, [])
+        self.inspector.show_step(None, [])
 
     def clear_audition(self) -> None:
         """Forget every sample, the last request and the inspected step (e.g. after a model switch)."""
@@ -309,6 +362,7 @@ class AuditionController(QObject):
         if sample is None:
             self.status.showMessage("Click a token of a sample first, then copy.", 5000)
             return
-        text = sample.text or "".join(t.text for t in sample.tokens)
+        view = self.grid.view(*self.grid.current) if self.grid.current else None
+        text = sample.text or (view.growing.text if view is not None else "")
         QGuiApplication.clipboard().setText(text)
         self.status.showMessage("Sample text copied.", 4000)

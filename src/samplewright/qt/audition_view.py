@@ -9,9 +9,9 @@ step.
 
 from __future__ import annotations
 
-import bisect
 import html
 
+import numpy as np
 from PySide6.QtCore import QPoint, Qt, Signal
 from PySide6.QtGui import QColor, QGuiApplication, QTextCharFormat, QTextCursor
 from PySide6.QtWidgets import (
@@ -29,6 +29,7 @@ from PySide6.QtWidgets import (
 )
 
 from ..core.engine.session import AuditionSession
+from ..core.engine.token_text import GrowingText, Vocabulary
 from . import palette
 
 COLUMN_WIDTH = 212
@@ -69,7 +70,9 @@ def metrics_text(metrics: dict | None) -> str:
 
 
 class SampleView(QPlainTextEdit):
-    """One sample's text; knows where every token starts so a click finds its step.
+    """One sample's text, decoded from the bytes of all its tokens at once (so a
+    character spread over several tokens shows whole), and where every token lies
+    in it so a click finds its step.
 
     Signals:
         token_clicked(int): the step of the clicked token.
@@ -80,8 +83,9 @@ class SampleView(QPlainTextEdit):
     def __init__(self, column: int, row: int, parent: QWidget | None = None):
         super().__init__(parent)
         self.column, self.row = column, row
-        self.starts: list[int] = []
+        self.growing = GrowingText()
         self.marked: int | None = None
+        self._utf16: np.ndarray | None = None
         self.setReadOnly(True)
         self.setAccessibleName(f"Preset {column + 1}, sample {row + 1}")
         self.setToolTip("Click a token to see the distribution it was drawn from")
@@ -89,24 +93,52 @@ class SampleView(QPlainTextEdit):
         self.setFixedHeight(self.fontMetrics().lineSpacing() * SAMPLE_LINES + 10)
         self.setSizePolicy(QSizePolicy.Expanding, QSizePolicy.Fixed)
 
-    def append_token(self, text: str) -> None:
-        """Add one token's text at the end."""
+    @property
+    def starts(self) -> list[int]:
+        """Where each token starts in the document (Qt positions)."""
+        return [start for start, _ in self.qt_spans()]
+
+    def qt_spans(self) -> list[tuple[int, int]]:
+        """Each token's range in the document, in Qt positions (UTF-16 units)."""
+        offsets = self._offsets()
+        return [(int(offsets[a]), int(offsets[b])) for a, b in self.growing.spans]
+
+    def _offsets(self) -> np.ndarray:
+        """Qt position of every character offset of the text (an emoji takes two Qt positions)."""
+        if self._utf16 is None:
+            code_points = np.frombuffer(self.growing.text.encode("utf-32-le"), dtype=np.uint32)
+            self._utf16 = np.concatenate([[0], np.cumsum(1 + (code_points > 0xFFFF))]).astype(np.int64)
+        return self._utf16
+
+    def append_piece(self, piece: bytes) -> None:
+        """Add one token's bytes at the end; the unfinished character before it is decoded again."""
+        old = self._offsets()
+        changed = self.growing.append(piece)
         cursor = QTextCursor(self.document())
-        cursor.movePosition(QTextCursor.End)
-        self.starts.append(cursor.position())
-        cursor.insertText(text)
+        cursor.setPosition(int(old[changed]) if changed < len(old) else int(old[-1]))
+        cursor.movePosition(QTextCursor.End, QTextCursor.KeepAnchor)
+        self._utf16 = None
+        cursor.insertText(self.growing.text[changed:])
+
+    def append_token(self, text: str) -> None:
+        """Add one token given by its text (without the model's vocabulary)."""
+        self.append_piece(text.encode("utf-8"))
+
+    def set_pieces(self, pieces: list[bytes]) -> None:
+        """Show exactly the tokens with these bytes."""
+        self.clear()
+        self.growing, self._utf16 = GrowingText(), None
+        for piece in pieces:
+            self.append_piece(piece)
+        self.mark_step(self.marked)
 
     def set_tokens(self, texts: list[str]) -> None:
         """Show exactly these token texts."""
-        self.clear()
-        self.starts = []
-        for text in texts:
-            self.append_token(text)
-        self.mark_step(self.marked)
+        self.set_pieces([t.encode("utf-8") for t in texts])
 
     def step_at(self, point: QPoint) -> int | None:
         """The step of the token under ``point`` (viewport coordinates), or None."""
-        if not self.starts:
+        if not self.growing.spans:
             return None
         cursor = self.cursorForPosition(point)
         position = cursor.position()
@@ -114,14 +146,15 @@ class SampleView(QPlainTextEdit):
         # a character's right half lands after it, so step back one.
         if point.x() < self.cursorRect(cursor).x() and position > 0:
             position -= 1
-        if position >= self.document().characterCount() - 1:
-            return len(self.starts) - 1
-        return max(0, bisect.bisect_right(self.starts, position) - 1)
+        character = int(np.searchsorted(self._offsets(), position, side="right")) - 1
+        if character >= len(self.growing.text):
+            return len(self.growing.spans) - 1
+        return self.growing.snapshot().token_at(character)
 
     def token_point(self, step: int) -> QPoint:
         """A viewport point inside the token of ``step`` (used by tests and keyboard users' tools)."""
         cursor = QTextCursor(self.document())
-        cursor.setPosition(self.starts[step])
+        cursor.setPosition(self.qt_spans()[step][0])
         rect = self.cursorRect(cursor)
         return QPoint(rect.x() + 3, rect.center().y())
 
@@ -133,19 +166,21 @@ class SampleView(QPlainTextEdit):
                 self.token_clicked.emit(step)
 
     def mark_step(self, step: int | None) -> None:
-        """Highlight the token of ``step`` (None: no highlight)."""
+        """Highlight the token of ``step`` (None: no highlight); a character it shares with a
+        neighbouring token is highlighted whole."""
         self.marked = step
         selections = []
-        if step is not None and 0 <= step < len(self.starts):
-            end = self.starts[step + 1] if step + 1 < len(self.starts) else self.document().characterCount() - 1
+        spans = self.qt_spans()
+        if step is not None and 0 <= step < len(spans):
+            start, end = spans[step]
             mark = QTextEdit.ExtraSelection()
             fmt = QTextCharFormat()
             fmt.setBackground(QColor(palette.DRAWN_HIGHLIGHT))
             fmt.setFontUnderline(True)
             mark.format = fmt
             cursor = QTextCursor(self.document())
-            cursor.setPosition(self.starts[step])
-            cursor.setPosition(end, QTextCursor.KeepAnchor)
+            cursor.setPosition(start)
+            cursor.setPosition(max(end, start), QTextCursor.KeepAnchor)
             mark.cursor = cursor
             selections.append(mark)
         self.setExtraSelections(selections)
@@ -222,6 +257,7 @@ class QtAuditionGrid(QScrollArea):
         self.views: list[list[SampleView]] = []
         self.footers: list[list[QLabel]] = []
         self.current: tuple[int, int] | None = None
+        self.vocabulary: Vocabulary | None = None
         self.setWidgetResizable(True)
         self.setAccessibleName("Audition samples")
         self._host = QWidget()
@@ -299,12 +335,21 @@ class QtAuditionGrid(QScrollArea):
             self.views.append(views)
             self.footers.append(footers)
 
+    def set_vocabulary(self, vocabulary: Vocabulary | None) -> None:
+        """The model's token bytes: samples are shown from them (None: from each token's own text)."""
+        self.vocabulary = vocabulary
+
+    def _piece(self, token) -> bytes:
+        if self.vocabulary is not None:
+            return self.vocabulary.bytes_of(token.token_id)
+        return token.text.encode("utf-8")
+
     def _on_token_added(self, column: int, row: int, step: int, token) -> None:
-        self.views[column][row].append_token(token.text)
-        self.footers[column][row].setText(f"{len(self.views[column][row].starts)} tokens…")
+        self.views[column][row].append_piece(self._piece(token))
+        self.footers[column][row].setText(f"{len(self.views[column][row].growing.spans)} tokens…")
 
     def _on_sample_finished(self, column: int, row: int, reason: str) -> None:
-        count = len(self.views[column][row].starts)
+        count = len(self.views[column][row].growing.spans)
         self.footers[column][row].setText(f"{count} tokens · ended: {reason}")
 
     def _on_finished(self, serial: int, cancelled: bool) -> None:
@@ -312,11 +357,10 @@ class QtAuditionGrid(QScrollArea):
             self.headers[column].metrics.setText(metrics_text(self.session.metrics[column]))
             for row, sample in enumerate(self.session.samples[column]):
                 view = self.views[column][row]
-                texts = [t.text for t in sample.tokens]
-                if len(view.starts) != len(texts):
-                    view.set_tokens(texts)
+                if len(view.growing.spans) != len(sample.tokens):
+                    view.set_pieces([self._piece(t) for t in sample.tokens])
                 reason = sample.stop_reason or ("cancelled" if cancelled else "–")
-                self.footers[column][row].setText(f"{len(texts)} tokens · ended: {reason}")
+                self.footers[column][row].setText(f"{len(sample.tokens)} tokens · ended: {reason}")
 
     def clear(self) -> None:
         """Remove every column and show the empty-grid hint again (the session was emptied)."""

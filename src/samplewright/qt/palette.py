@@ -12,8 +12,6 @@ this module only turns those plain names into Qt and pyqtgraph terms.
 
 from __future__ import annotations
 
-import html
-
 from PySide6.QtCore import Qt
 
 from ..core.sampling import registry
@@ -77,39 +75,6 @@ assert set(HATCH_PATTERNS) == set(registry.HATCHES), "every hatch needs a patter
 def preset_colour(index: int) -> str:
     """The colour of the preset in audition column ``index`` (wraps around)."""
     return PRESET_COLOURS[index % len(PRESET_COLOURS)]
-
-
-def stage_symbol(name: str) -> str:
-    """The pyqtgraph symbol marking a token that stage ``name`` cut."""
-    return SHAPE_SYMBOLS[registry.stage(name).mark.shape]
-
-
-def stage_pattern(name: str) -> Qt.BrushStyle:
-    """The brush pattern filling the outline of a token that stage ``name`` cut."""
-    return HATCH_PATTERNS[registry.stage(name).mark.hatch]
-
-
-def stage_legend() -> str:
-    """One line of plain text naming each stage's mark, e.g. ``■ top-k · ▲ top-p``."""
-    return " · ".join(f"{s.mark.glyph} {s.label}" for s in registry.stages())
-
-
-def stage_legend_html() -> str:
-    """The stage legend as rich text, each mark in its stage's colour."""
-    return " · ".join(
-        f"<span style='color:{s.mark.colour}'>{s.mark.glyph}</span> {html.escape(s.label)}" for s in registry.stages()
-    )
-
-
-def step_view_help() -> str:
-    """What the step view's bars and marks mean (the Help menu shows it)."""
-    return (
-        "Grey bars: the model's own distribution. Coloured bars: the distribution after each preset "
-        "(numbered as in the audition columns).\n\nA hatched outline marks a token a preset removed; "
-        "the mark beside it, its shape, colour and hatch, names the stage that removed it:\n"
-        + stage_legend()
-        + "\n\nThe shaded row with ▶ is the token the inspected sample drew."
-    )
 
 
 #: Background and border of the pale notices (the review caution, library and editor notices).

@@ -1,11 +1,13 @@
-"""Render the window in three states to PNG files (``make screenshots``).
+"""Render the window in its main states to PNG files (``make screenshots``).
 
 Usage: ``python -m samplewright.qt.screenshots OUTDIR``
 
 Uses the default model, the first demo passage and the starter presets, in
 a fresh temporary library and settings folder (the user's own are not
 touched). Writes ``1-ready.png`` (before a run), ``2-audition.png`` (after a
-run) and ``3-step.png`` (inspecting one step).
+run), ``3-step.png`` (inspecting one step) with ``3-step-view.png`` (the step
+view alone), and ``4-accented.png`` (a passage with accented names, a sample
+whose characters are spread over several tokens, inspected).
 """
 
 from __future__ import annotations
@@ -19,6 +21,11 @@ from pathlib import Path
 
 SIZE = (1400, 900)
 PREFERRED = ("Timetable notice — exact", "Customer reply — warm", "Newsletter — lively")
+#: An invented notice with accented place names, so samples carry characters of several bytes.
+ACCENTED_PASSAGE = (
+    "Notice to passengers: from Monday the ferry to Ærøskøbing calls at Søby and Fåborg. "
+    "The café on deck serves smørrebrød and crème brûlée. Passengers for Ærøskøbing"
+)
 
 
 def _wait(app, until: Callable[[], bool], seconds: float, what: str) -> None:
@@ -30,12 +37,12 @@ def _wait(app, until: Callable[[], bool], seconds: float, what: str) -> None:
         time.sleep(0.02)
 
 
-def _save(app, window, path: Path) -> None:
+def _save(app, widget, path: Path) -> None:
     for _ in range(5):
         app.processEvents()
-    window.inspector.plot.flush()
+    widget.window().inspector.plot.flush()
     app.processEvents()
-    window.grab().save(str(path))
+    widget.grab().save(str(path))
     print(f"wrote {path}")
 
 
@@ -47,10 +54,29 @@ def _choose_presets(window) -> None:
 
 
 def _interesting_step(sample) -> int:
-    """A step where the model hesitated (most tokens kept) and the drawn token is
-    among the plotted rows (raw p ≥ 0.05 guarantees a rank within the top 20)."""
+    """A step where the model hesitated (most tokens kept) but the drawn token was not a long shot."""
     steps = [i for i, t in enumerate(sample.tokens) if t.raw_p >= 0.05] or list(range(len(sample.tokens)))
     return max(steps, key=lambda i: sample.tokens[i].kept)
+
+
+def _accented(window) -> tuple[int, int, int]:
+    """(column, row, step) of a token holding part of a character of several bytes, else of any
+    non-ASCII token, else the first token."""
+    vocabulary = window.model_info.vocabulary
+    found = []
+    for column, samples in enumerate(window.session.samples):
+        for row, sample in enumerate(samples):
+            for step, token in enumerate(sample.tokens):
+                piece = vocabulary.bytes_of(token.token_id)
+                if any(b >= 0x80 for b in piece):
+                    found.append(("<0x" not in vocabulary.label(token.token_id), column, row, step))
+    return min(found)[1:] if found else (0, 0, 0)
+
+
+def _inspect(app, window, column: int, row: int, step: int) -> None:
+    window.inspector.plot.shown = None
+    window.audition.inspect(column, row, step)
+    _wait(app, lambda: window.inspector.plot.shown is not None, 120, "the step view")
 
 
 def render(outdir: Path, model_seconds: float = 600) -> list[Path]:
@@ -72,16 +98,22 @@ def render(outdir: Path, model_seconds: float = 600) -> list[Path]:
         window.controls.samples_spin.setValue(3)
         window.controls.tokens_spin.setValue(40)
         window.controls.seed_spin.setValue(7)
-        files = [outdir / "1-ready.png", outdir / "2-audition.png", outdir / "3-step.png"]
+        names = ("1-ready.png", "2-audition.png", "3-step.png", "3-step-view.png", "4-accented.png")
+        files = [outdir / name for name in names]
         _save(app, window, files[0])
         window.audition.generate_all()
         _wait(app, lambda: not window.audition.running(), 900, "the audition")
         _save(app, window, files[1])
         column = min(1, len(window.session.samples) - 1)
         sample = window.session.samples[column][0]
-        window.audition.inspect(column, 0, _interesting_step(sample))
-        _wait(app, lambda: window.inspector.plot.shown is not None, 120, "the step view")
+        _inspect(app, window, column, 0, _interesting_step(sample))
         _save(app, window, files[2])
+        _save(app, window.inspector, files[3])
+        window.passage.set_text(ACCENTED_PASSAGE)
+        window.audition.generate_all()
+        _wait(app, lambda: not window.audition.running(), 900, "the audition")
+        _inspect(app, window, *_accented(window))
+        _save(app, window, files[4])
         window.close()
     return files
 

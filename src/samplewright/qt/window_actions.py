@@ -17,8 +17,8 @@ from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import QMainWindow, QMenu
 
 from ..core.engine.model import DEFAULT_NAME
-from .palette import step_view_help
 from .preset_controller import IMPORT_TEXT
+from .step_inspector import help_text as step_view_help
 
 if TYPE_CHECKING:
     from .main_window import MainWindow
@@ -159,7 +159,7 @@ def window_commands(w: MainWindow) -> list[Command]:
             None,
             f"Load the default model, {DEFAULT_NAME}",
         ),
-        Command("legend", "What the marks mean", lambda: show_legend(w), "F1"),
+        Command("legend", "Reading the next-token view", lambda: show_legend(w), "F1"),
     ]
 
 
@@ -245,5 +245,5 @@ def follow_audition(actions: dict[str, QAction], can_generate: bool, running: bo
 
 
 def show_legend(w: MainWindow) -> None:
-    """Explain the plot's colours and stage marks."""
+    """Explain the next-token view: its curves, lanes, marks and colours."""
     w.prompts.show_info("Reading the next-token view", step_view_help())

@@ -44,6 +44,7 @@ class ModelInfo:
     context_length: int
     vocab_size: int
     description: str
+    vocabulary: Any = None  # core Vocabulary: each token's bytes, for showing text and labels
 
 
 @dataclasses.dataclass(frozen=True)
@@ -161,6 +162,7 @@ class EngineWorker(QObject):
                     int(loaded.context_length),
                     int(loaded.vocab_size),
                     str(loaded.describe()),
+                    getattr(self._engine, "vocabulary", None),
                 ),
             )
 

@@ -30,6 +30,7 @@ from ..results import AuditionRequest, AuditionResult, StepView, TokenEvent
 from ..sampling import inspection
 from . import batch
 from .model import LoadedModel
+from .token_text import Vocabulary, vocabulary_of
 
 #: Tokens of context kept free for the sample (the largest max_new_tokens).
 GENERATION_ROOM = MAX_NEW_TOKENS
@@ -72,6 +73,7 @@ class Engine:
         self.loaded = loaded
         self.passage_limit = passage_limit(loaded.context_length, max_passage_tokens)
         self._state: PassageState | None = None
+        self._vocabulary: Vocabulary | None = None
 
     # -- passages -----------------------------------------------------------
 
@@ -136,6 +138,17 @@ class Engine:
     def token_text(self, token_id: int) -> str:
         """The text piece of one token."""
         return self.loaded.tokenizer.decode([int(token_id)])
+
+    @property
+    def vocabulary(self) -> Vocabulary:
+        """The bytes of every token of the model (read from the tokenizer once)."""
+        if self._vocabulary is None:
+            self._vocabulary = vocabulary_of(self.loaded.tokenizer, self.loaded.vocab_size)
+        return self._vocabulary
+
+    def token_label(self, token_id: int) -> str:
+        """A token's own text, bytes that form no whole character written ``<0xC5>`` (never "�")."""
+        return self.vocabulary.label(int(token_id))
 
     def decode(self, ids: Sequence[int]) -> str:
         """The text of a token sequence, decoded as a whole."""
@@ -205,7 +218,7 @@ class Engine:
             return inspection.step_view(
                 logits,
                 presets,
-                self.token_text,
+                self.token_label,
                 history=history,
                 generated=sample_ids,
                 top=top,

@@ -27,6 +27,7 @@ class Draft:
 
     Events:
         loaded(record or None): another record (or none) is now being edited; the edits are gone.
+        edited(preset or None): what is typed changed (None: a value is not valid).
     """
 
     def __init__(self) -> None:
@@ -36,6 +37,7 @@ class Draft:
         self.saving = False  # our own save is under way: its change events are expected
         self.asking = False  # a question about the edits is open
         self.loaded = Emitter()
+        self.edited = Emitter()
 
     def load(self, record: PresetRecord | None) -> None:
         """Edit ``record`` (None: nothing) from its saved values."""
@@ -47,6 +49,7 @@ class Draft:
     def update(self, edits: Preset | None, problem: str | None = None) -> None:
         """Take what is typed now: the edited preset, or None with the reason it is not valid."""
         self.edits, self.problem = (None, problem or "a field is not valid") if edits is None else (edits, None)
+        self.edited.emit(self.edits)
 
     @property
     def dirty(self) -> bool:

@@ -8,6 +8,12 @@ probability. A cut token is attributed to the first stage, in the preset's
 order, after which its probability is zero; stages only ever remove tokens
 (``-inf`` stays ``-inf``, and the top token is never removed, so a tiny
 probability cannot come back), so that stage is the one that cut it.
+
+Ranks are raw ranks: 1 is the token the unshaped model finds most probable
+(ties go to the lower id). A preset's kept set ends at the raw rank of its last
+kept token; its curve (``PresetStep.ranked``) and running mass
+(``PresetStep.cumulative``) follow the raw ranking, so every preset is read on
+the same axis as the model itself.
 """
 
 from __future__ import annotations
@@ -17,7 +23,7 @@ from collections.abc import Callable, Mapping, Sequence
 import numpy as np
 
 from ..presets import Preset
-from ..results import PresetStep, StepView, TokenRow
+from ..results import PresetStep, StageEffect, StepView, TokenRow
 
 TokenTexts = Callable[[int], str] | Sequence[str]
 
@@ -50,6 +56,47 @@ def top_ids(probs, n: int) -> list[int]:
     return [int(i) for i in np.argsort(-probs, kind="stable")[: max(0, n)]]
 
 
+def ranking(probs) -> np.ndarray:
+    """Every token id by raw rank: most probable first, ties to the lower id."""
+    return np.argsort(-np.asarray(probs, dtype=np.float64), kind="stable")
+
+
+def cut_codes(after_stage: Mapping[str, np.ndarray], order: Sequence[str]) -> np.ndarray:
+    """For every token id, the index in ``order`` of the first stage after which it is removed (-1: kept)."""
+    return _cuts_and_effects(after_stage, order, None)[0]
+
+
+def stage_effects(
+    after_stage: Mapping[str, np.ndarray], order: Sequence[str], raw_probs: np.ndarray
+) -> tuple[StageEffect, ...]:
+    """How many tokens, and how much raw mass, are left after each stage in ``order``."""
+    return _cuts_and_effects(after_stage, order, raw_probs)[1]
+
+
+def _cuts_and_effects(after_stage, order, raw_probs) -> tuple[np.ndarray, tuple[StageEffect, ...]]:
+    """Both of the above from one softmax per stage."""
+    codes: np.ndarray | None = None
+    effects = []
+    for index, name in enumerate(order):
+        kept = softmax(after_stage[name]) > 0
+        if codes is None:
+            codes = np.full(kept.shape, -1, dtype=np.int8)
+        codes[~kept & (codes < 0)] = index
+        if raw_probs is not None:
+            effects.append(StageEffect(name, int(kept.sum()), float(raw_probs[kept].sum())))
+    return (codes if codes is not None else np.zeros(0, dtype=np.int8)), tuple(effects)
+
+
+def table_ids(view: StepView, extra: Sequence[int] = (), head: int = 12) -> list[int]:
+    """The token ids a table of the step lists, by raw rank: the ``head`` most probable,
+    the drawn token and ``extra`` (e.g. a token picked in the plot), wherever they rank."""
+    wanted = {int(i) for i in view.ranked_ids[:head]}
+    wanted.update(int(i) for i in extra)
+    if view.drawn_id is not None:
+        wanted.add(int(view.drawn_id))
+    return sorted(wanted, key=view.rank_of)
+
+
 def cut_by(after_stage: Mapping[str, np.ndarray], order: Sequence[str], ids: Sequence[int]) -> list[str | None]:
     """For each id, the first stage in ``order`` after which it is removed.
 
@@ -79,6 +126,7 @@ def preset_step(
     after_stage: Mapping[str, np.ndarray],
     ids: Sequence[int],
     texts: Sequence[str],
+    by_rank: np.ndarray | None = None,
 ) -> PresetStep:
     """Summarise how one preset reshaped the raw distribution at one step.
 
@@ -90,12 +138,18 @@ def preset_step(
         after_stage: the preset's logits after each stage.
         ids: the step's top token ids (by raw probability).
         texts: their text pieces.
+        by_rank: every id by raw rank (:func:`ranking` of ``raw_probs``; computed when not given).
 
     Returns:
         The preset's part of the step view.
     """
     kept = probs > 0
     cuts = cut_by(after_stage, order, ids)
+    by_rank = ranking(raw_probs) if by_rank is None else by_rank
+    ranked = probs[by_rank]
+    codes, effects = _cuts_and_effects(after_stage, order, raw_probs)
+    if not order:
+        codes = np.full(probs.shape, -1, np.int8)
     rows = [
         TokenRow(id=int(i), text=t, raw_p=float(raw_probs[i]), p=float(probs[i]), cut_by=c)
         for i, t, c in zip(ids, texts, cuts, strict=False)
@@ -108,6 +162,12 @@ def preset_step(
         entropy_bits=float(entropy_bits(probs)),
         raw_entropy_bits=float(entropy_bits(raw_probs)),
         top=rows,
+        order=tuple(order),
+        ranked=ranked,
+        cumulative=np.cumsum(ranked),
+        cut_ranked=codes[by_rank],
+        kept_end=int(np.flatnonzero(ranked > 0)[-1]) + 1,
+        stages=effects,
     )
 
 
@@ -146,7 +206,10 @@ def step_view(
 
     row = as_logits_row(logits)
     raw = torch.softmax(row[0], dim=-1).numpy()
-    ids = top_ids(raw, top)
+    by_rank = ranking(raw)
+    ranks = np.empty_like(by_rank)
+    ranks[by_rank] = np.arange(1, by_rank.size + 1)
+    ids = [int(i) for i in by_rank[: max(0, top)]]
     names = [texts(i) if callable(texts) else texts[i] for i in ids]
     steps = []
     if presets:
@@ -165,6 +228,7 @@ def step_view(
                 {name: stage[r].numpy() for name, stage in (out.after_stage or {}).items()},
                 ids,
                 names,
+                by_rank,
             )
             for r, preset in enumerate(presets)
         ]
@@ -176,4 +240,8 @@ def step_view(
         presets=steps,
         context_tokens=context_tokens,
         drawn_id=drawn_id,
+        ranked_ids=by_rank,
+        raw_ranked=raw[by_rank],
+        raw_cumulative=np.cumsum(raw[by_rank]),
+        ranks=ranks,
     )
