@@ -104,6 +104,8 @@ class PresetStep:
     entropy_bits: float
     raw_entropy_bits: float
     top: list[TokenRow]  # the step's top tokens by raw probability
+    #: after each stage in the preset's order: tokens left and the raw mass they hold (StageKept)
+    stages: tuple = ()
 
 
 @dataclasses.dataclass(frozen=True)

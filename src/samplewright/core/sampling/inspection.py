@@ -18,6 +18,7 @@ import numpy as np
 
 from ..presets import Preset
 from ..results import PresetStep, StepView, TokenRow
+from .stage_parts import stages_kept
 
 TokenTexts = Callable[[int], str] | Sequence[str]
 
@@ -108,6 +109,7 @@ def preset_step(
         entropy_bits=float(entropy_bits(probs)),
         raw_entropy_bits=float(entropy_bits(raw_probs)),
         top=rows,
+        stages=stages_kept(order, raw_probs, after_stage),
     )
 
 
