@@ -11,6 +11,7 @@ number names the run. Answers for another serial are dropped. Step views are
 
 from __future__ import annotations
 
+import contextlib
 import random
 from collections.abc import Sequence
 
@@ -19,6 +20,7 @@ from PySide6.QtGui import QGuiApplication
 from PySide6.QtWidgets import QStatusBar
 
 from ..core.engine.session import AuditionSession, SampleRef
+from ..core.engine.staleness import staleness
 from ..core.library.draft import Draft
 from ..core.library.records import PresetRecord
 from ..core.presets import Preset
@@ -46,9 +48,12 @@ class AuditionController(QObject):
 
     Signals:
         state_changed(can_generate, running, can_regenerate): for the window's actions.
+        step_shown(view or None, record_ids, where): a step view is shown (None: none), with each
+            column's library record and which step it is, in words.
     """
 
     state_changed = Signal(bool, bool, bool)
+    step_shown = Signal(object, list, str)
 
     def __init__(
         self,
@@ -85,6 +90,11 @@ class AuditionController(QObject):
         controls.generate_button.clicked.connect(self.generate_all)
         controls.stop_button.clicked.connect(self.stop_generation)
         library_list.chosen_changed.connect(lambda ids: self.update_buttons())
+        grid.generate_again_requested.connect(self.generate_all)
+        passage.passage_settled.connect(lambda text: self.check_staleness())
+        self.watched = in_use.library
+        in_use.switched.connect(self._follow_library)
+        self._follow_library(in_use.library)
 
     # -- running -----------------------------------------------------------------------------
     def running(self) -> bool:
@@ -117,6 +127,41 @@ class AuditionController(QObject):
         self.clear_inspection()
         self._start(request, None, [r.id for r in records], drafts, notes)
 
+    def _follow_library(self, library) -> None:
+        """Watch ``library`` (now in use) for changes that put the samples out of date."""
+        for emitter in (self.watched.added, self.watched.changed, self.watched.removed):
+            with contextlib.suppress(ValueError):  # not connected yet (the first library)
+                emitter.disconnect(self._on_library_event)
+        self.watched = library
+        for emitter in (library.added, library.changed, library.removed):
+            emitter.connect(self._on_library_event)
+        self.check_staleness()
+
+    def _on_library_event(self, record) -> None:
+        self.check_staleness()
+
+    def check_staleness(self) -> None:
+        """Say which samples no longer belong to the passage, folder or presets on screen; a column
+        written with unsaved edits loses its draft mark once they are saved."""
+        session = self.session
+        if session.request is None or session.running:
+            self.grid.show_staleness(None, [])
+            return
+        library = self.in_use.library
+        report = staleness(
+            session.presets,
+            session.record_ids,
+            session.drafts,
+            self.in_use.record,
+            (session.request.passage, session.library_folder),
+            (self.passage.text(), library.folder),
+        )
+        for column, saved in enumerate(report.saved_drafts):
+            if saved:
+                session.mark_saved(column)
+                self.grid.mark_draft(column, False)
+        self.grid.show_staleness(report.audition, list(report.columns))
+
     def regenerate_column(self, column: int) -> None:
         """Write one preset's samples again with the last run's passage, seed and sizes."""
         session = self.session
@@ -128,9 +173,18 @@ class AuditionController(QObject):
             (preset,), drafts, notes = self._audition_presets([record])
         else:
             preset, drafts, notes = session.presets[column], [session.is_draft(column)], []
-        request = session.regenerate_request(column, preset)
+        same = preset.parameters() == session.presets[column].parameters()
+        # The same preset on the same numbers would write the same text: give the column new numbers.
+        seed = random.randrange(2**31) if same else None
+        request = session.regenerate_request(column, preset, seed=seed)
         if request is None:
             return
+        notes = notes + [
+            f"New random numbers for this column (seed {request.seed}): its rows no longer share draws "
+            "with the other columns."
+            if same
+            else "The same random numbers as the other columns, so each row shows what the change does."
+        ]
         inspected = session.inspected
         if inspected and inspected.column == column:
             self.clear_inspection()
@@ -170,12 +224,33 @@ class AuditionController(QObject):
         if self.running():
             self.engine.cancel(self.session.serial)
         serial = self.engine.run_audition(request)
-        self.session.begin(request, columns, serial=serial, record_ids=record_ids, drafts=drafts)
+        folder = self.in_use.library.folder
+        self.session.begin(request, columns, serial=serial, record_ids=record_ids, drafts=drafts, library_folder=folder)
         for column in columns or range(len(request.presets)):
             self.grid.mark_draft(column, self.session.is_draft(column))
+            self.show_column_note(column)
+        self.grid.show_staleness(None, [])
         self.controls.show_progress(0, 0)
         self.status.showMessage(" ".join(["Generating…"] + notes))
         self.update_buttons()
+
+    def show_column_note(self, column: int) -> None:
+        """Say in the column which token limit applied and whether it has random numbers of its own."""
+        limit = self.session.token_limit(column)
+        if limit is None or column >= len(self.grid.headers):
+            return
+        tokens, which = limit
+        set_by = "its own token limit" if which == "preset" else "the audition's New tokens"
+        seed = self.session.seeds[column]
+        numbers = f" · own seed {seed}" if self.session.own_numbers(column) else ""
+        request, own = self.session.request, self.session.presets[column].max_new_tokens
+        tip = (
+            f"A sample ends at the smaller of the preset's own token limit ({own}) "
+            f"and the audition's New tokens ({request.max_new_tokens if request else '–'}); here that was {tokens}. "
+            f"Random numbers: seed {seed}"
+            + (", not the run's: rows do not share draws with the other columns." if numbers else ", as every column.")
+        )
+        self.grid.headers[column].set_note(f"up to {tokens} tokens ({set_by}){numbers}", tip)
 
     def stop_generation(self) -> None:
         """Ask the running audition to stop after its current token; samples so far stay."""
@@ -219,6 +294,7 @@ class AuditionController(QObject):
         inspected = self.session.inspected
         if inspected:
             self.inspect(inspected.column, inspected.row, inspected.step)
+        self.check_staleness()
 
     def _on_failed(self, serial: int, kind: str, message: str) -> None:
         if kind == "audition" and self.session.fail(serial, message):
@@ -268,6 +344,13 @@ class AuditionController(QObject):
         if self._step_waiting is None:
             names = [self.column_name(c) for c in range(len(self.session.presets))]
             self.inspector.plot.show_step(view, names, self.session.inspected_text())
+            ref = self.session.inspected
+            where = (
+                f"At step {ref.step + 1} of sample {ref.row + 1} of column {ref.column + 1} ('{names[ref.column]}')"
+                if ref
+                else ""
+            )
+            self.step_shown.emit(view, list(self.session.record_ids), where)
         self._send_waiting_step()
 
     def clear_inspection(self) -> None:
@@ -280,6 +363,7 @@ class AuditionController(QObject):
         self.grid.unmark()
         self.inspector.set_sample(None, None, None)
         self.inspector.plot.show_step(None, [])
+        self.step_shown.emit(None, [], "")
 
     def clear_audition(self) -> None:
         """Forget every sample, the last request and the inspected step (e.g. after a model switch)."""

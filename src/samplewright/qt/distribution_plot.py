@@ -80,7 +80,7 @@ class DistributionPlot(QWidget):
         self._summary.setTextFormat(Qt.RichText)
         self._summary.setAccessibleName("Step summary")
         self._summary.setTextInteractionFlags(Qt.TextSelectableByMouse)
-        self._summary.setSizePolicy(QSizePolicy.Preferred, QSizePolicy.Maximum)
+        self._summary.setSizePolicy(QSizePolicy.Preferred, QSizePolicy.Minimum)
         layout = QVBoxLayout(self)
         layout.setContentsMargins(0, 0, 0, 0)
         layout.addWidget(self.plot_widget, 1)

@@ -17,6 +17,7 @@ from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import QMainWindow, QMenu
 
 from ..core.engine.model import DEFAULT_NAME
+from . import help_dialogs
 from .palette import stage_legend
 from .preset_controller import IMPORT_TEXT
 
@@ -159,8 +160,23 @@ def window_commands(w: MainWindow) -> list[Command]:
             None,
             f"Load the default model, {DEFAULT_NAME}",
         ),
-        Command("legend", "What the letters mean", lambda: show_legend(w), "F1"),
+        Command("guide", "User guide", lambda: help_dialogs.show_guide(w), "F1", "The README's sections, in a window"),
+        Command("shortcuts", "Keyboard shortcuts", lambda: help_dialogs.show_shortcuts(shortcut_rows(w), w)),
+        Command("legend", "Reading the next-token view", lambda: show_legend(w), None),
+        Command("about", "About Samplewright", lambda: help_dialogs.show_about(w)),
     ]
+
+
+def shortcut_rows(w: MainWindow) -> list[tuple[str, str, str]]:
+    """Every window command that has a shortcut: (keys, command, what it does)."""
+    rows = [
+        (action.shortcut().toString(), action.text(), action.statusTip())
+        for action in w.menu_actions.values()
+        if not action.shortcut().isEmpty()
+    ]
+    rows += [(w.undo_action.shortcut().toString(), "Undo", "Undo the last library change")]
+    rows += [("Alt+Up / Alt+Down", "Move a stage", "In the editor's chain, move the focused stage earlier or later")]
+    return rows
 
 
 #: Which commands each menu lists, in order (None: a separator). "recent_folders", "undo" and
@@ -186,7 +202,7 @@ MENUS: dict[str, list[str | None]] = {
     ],
     "&Audition": ["generate", "regenerate", "stop", None, "prev_step", "next_step"],
     "&Model": ["model_folder", "model_gguf", "model_default"],
-    "&Help": ["legend"],
+    "&Help": ["guide", "shortcuts", "legend", None, "about"],
 }
 
 
