@@ -76,6 +76,7 @@ class AuditionController(QObject):
         self.controls, self.grid, self.inspector, self.library_list = controls, grid, inspector, library_list
         self.passage = passage
         self.model_ready = False
+        self.run_note = ""
         self._step_serial: int | None = None
         self._step_waiting: StepQuery | None = None
         worker = engine.worker
@@ -231,6 +232,7 @@ class AuditionController(QObject):
             self.show_column_note(column)
         self.grid.show_staleness(None, [])
         self.controls.show_progress(0, 0)
+        self.run_note = notes[-1] if columns is not None and notes else ""  # what ↻ did with the random numbers
         self.status.showMessage(" ".join(["Generating…"] + notes))
         self.update_buttons()
 
@@ -287,7 +289,8 @@ class AuditionController(QObject):
         if result.cancelled:
             self.status.showMessage("Stopped; the samples so far are kept.", 6000)
         else:
-            self.status.showMessage(f"Wrote {result.tokens_generated()} tokens in {result.seconds:.1f} s.", 6000)
+            wrote = f"Wrote {result.tokens_generated()} tokens in {result.seconds:.1f} s."
+            self.status.showMessage(f"{wrote} {self.run_note}".strip(), 8000)
         progress = self.controls.progress
         progress.setValue(progress.maximum() if not result.cancelled else progress.value())
         self.update_buttons()
