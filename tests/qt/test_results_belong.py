@@ -183,3 +183,25 @@ def test_file_choosers_open_in_the_last_folder(window, tmp_path):
     folder.mkdir()
     prompts.remember_folder(str(folder / "notice.txt"))
     assert prompts.last_folder() == str(folder)
+
+
+def test_an_audition_is_saved_and_reopened_after_a_restart(make_window, qtbot, tmp_path):
+    first = make_window()
+    first.models.load_model(None)
+    qtbot.waitUntil(lambda: first.model_info is not None, timeout=20000)
+    first.passage.set_text("The morning ferry to the island leaves the harbour")
+    untick_all(first)
+    tick(first, 2)
+    generate(first, qtbot, samples=2, tokens=5)
+    texts = [[v.toPlainText() for v in column] for column in first.grid.views]
+    path = tmp_path / "kept.json"
+    first.prompts.ask_save_path = lambda *args: str(path)
+    first.menu_actions["save_audition"].trigger()
+    assert path.is_file()
+    first.close()
+    second = make_window()
+    second.prompts.ask_open_path = lambda *args: str(path)
+    second.menu_actions["open_audition"].trigger()
+    assert [[v.toPlainText() for v in column] for column in second.grid.views] == texts
+    assert [h.name for h in second.grid.headers] == [p.name for p in first.session.presets]
+    assert "Opened the audition" in second.statusBar().currentMessage()

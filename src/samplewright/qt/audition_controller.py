@@ -13,17 +13,18 @@ from __future__ import annotations
 
 import contextlib
 import random
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 
 from PySide6.QtCore import QObject, Signal
 from PySide6.QtGui import QGuiApplication
 from PySide6.QtWidgets import QStatusBar
 
+from ..core.engine.audition_file import AuditionFileError, audition_dict, load_audition, runs_folder, save_audition
 from ..core.engine.session import AuditionSession, SampleRef
 from ..core.engine.staleness import staleness
 from ..core.library.draft import Draft
 from ..core.library.records import PresetRecord
-from ..core.presets import Preset
+from ..core.presets import Preset, now_iso
 from ..core.results import AuditionRequest
 from .audition_controls import QtAuditionControls
 from .audition_view import DRAFT_MARK, QtAuditionGrid
@@ -33,6 +34,8 @@ from .passage_panel import QtPassagePanel
 from .prompts import QtPrompts
 from .step_inspector import QtStepInspector
 from .workers import EngineThread, StepQuery
+
+AUDITION_FILTER = "Samplewright audition (*.json);;All files (*)"
 
 
 class AuditionController(QObject):
@@ -77,6 +80,8 @@ class AuditionController(QObject):
         self.passage = passage
         self.model_ready = False
         self.run_note = ""
+        #: The loaded model's name, or None (the window sets it; written into saved auditions).
+        self.model_name: Callable[[], str | None] = lambda: None
         self._step_serial: int | None = None
         self._step_waiting: StepQuery | None = None
         worker = engine.worker
@@ -388,6 +393,50 @@ class AuditionController(QObject):
                 "model. Press Generate all to write new ones.",
                 10000,
             )
+
+    # -- keeping an audition ------------------------------------------------------------------
+    def save_audition(self) -> None:
+        """Write the audition on screen to a run file (under the library's ``runs`` folder by default)."""
+        model = self.model_name()
+        suggested = runs_folder(self.in_use.library.folder) / f"audition-{now_iso()[:19].replace(':', '')}.json"
+        try:
+            audition_dict(self.session, model)  # says why there is nothing to save before a file is chosen
+        except AuditionFileError as error:
+            self.prompts.show_error("Nothing to save yet", str(error))
+            return
+        path = self.prompts.ask_save_path("Save the audition", AUDITION_FILTER, str(suggested))
+        if not path:
+            return
+        try:
+            save_audition(self.session, path, model)
+        except AuditionFileError as error:
+            self.prompts.show_error("The audition was not saved", str(error))
+            return
+        self.status.showMessage(f"Saved the audition to {path}. Open it again with File ▸ Open audition.", 8000)
+
+    def open_audition(self, path: str | None = None) -> None:
+        """Show a saved audition again; it is checked against the passage, folder and presets on screen."""
+        folder = runs_folder(self.in_use.library.folder)
+        path = path or self.prompts.ask_open_path("Open a saved audition", AUDITION_FILTER, str(folder))
+        if not path:
+            return
+        try:
+            saved = load_audition(path)
+        except AuditionFileError as error:
+            self.prompts.show_error("The audition cannot be opened", str(error))
+            return
+        if self.running():
+            self.engine.cancel(self.session.serial)
+        self.clear_inspection()
+        self.session.restore(saved)
+        for column in range(len(self.session.presets)):
+            self.grid.mark_draft(column, self.session.is_draft(column))
+            self.show_column_note(column)
+        self.update_buttons()
+        self.check_staleness()
+        model, now = saved.model, self.model_name()
+        other = f" It was written by {model}; the loaded model is {now}." if model and now and model != now else ""
+        self.status.showMessage(f"Opened the audition saved {saved.saved_at}.{other}", 10000)
 
     def copy_current_sample(self) -> None:
         """Copy the inspected sample's text to the clipboard."""

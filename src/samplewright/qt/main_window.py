@@ -134,7 +134,7 @@ class MainWindow(QMainWindow):
         main.setStretchFactor(1, 4)  # the samples get the width when the window grows
         main.setStretchFactor(2, 1)
         main.setSizes([300, 780, 320])
-        left.setSizes([330, 470])
+        left.setSizes([290, 510])
         middle.setSizes([170, 600])
         self.caution = QLabel(CAUTION)
         self.caution.setObjectName("caution")
@@ -174,6 +174,7 @@ class MainWindow(QMainWindow):
         )
         views = (self.controls, self.grid, self.inspector, presets_list, self.passage)
         self.audition = AuditionController(self.session, self.engine, draft, in_use, prompts, status, *views, self)
+        self.audition.model_name = model_name
         self.state = WindowState(self.settings, self, self.splitters, self.passage, self.controls, presets_list, in_use)
         self.library_watch, self.recent_menu = self.library_tools.watch, self.folders.recent_menu
         # A new screen that needs these models is built here; its menu entry is a row in window_actions.py.

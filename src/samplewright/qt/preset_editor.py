@@ -139,8 +139,7 @@ class QtPresetEditor(QWidget):
             self._add_header_field(field, caption, tip, multiline)
         column.addLayout(self.form)
         self.chain_caption = QLabel(
-            "<b>Chain</b> — applied top to bottom, each stage on what the one above left. "
-            "Drag a block, or focus it and press Alt+Up / Alt+Down, to reorder."
+            "<b>Chain</b>, applied top to bottom: drag a block, or Alt+Up / Alt+Down, to reorder."
         )
         self.chain_caption.setWordWrap(True)
         self.kept_note = QLabel()
@@ -186,7 +185,7 @@ class QtPresetEditor(QWidget):
         if multiline:
             editor = QPlainTextEdit()
             editor.setTabChangesFocus(True)
-            editor.setFixedHeight(editor.fontMetrics().lineSpacing() * 3 + 12)
+            editor.setFixedHeight(editor.fontMetrics().lineSpacing() * 2 + 12)
             editor.textChanged.connect(lambda f=field, e=editor: self._on_field_edited(f, e.toPlainText()))
         else:
             editor = QLineEdit()
@@ -253,6 +252,8 @@ class QtPresetEditor(QWidget):
             note or "Click a token of this preset's samples to see how many tokens each stage keeps at that step."
         )
         self.kept_note.setStyleSheet("color: #505050;")
+        if kept:
+            self.scroll.ensureWidgetVisible(self.kept_note)  # the user just clicked a step: show its figures
 
     # -- widgets → model -------------------------------------------------------------
     def _on_field_edited(self, field: str, text: str) -> None:

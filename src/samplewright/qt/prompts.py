@@ -54,14 +54,16 @@ class QtPrompts:
         """Show an explanation in a message box."""
         QMessageBox.information(self.parent, title, text)
 
-    def ask_open_path(self, title: str, file_filter: str) -> str | None:
-        """Ask for a file to open; None when cancelled."""
-        path, _ = QFileDialog.getOpenFileName(self.parent, title, self.last_folder(), file_filter)
+    def ask_open_path(self, title: str, file_filter: str, folder: str = "") -> str | None:
+        """Ask for a file to open, starting in ``folder`` (default: the last folder used); None when cancelled."""
+        start = folder if folder and Path(folder).is_dir() else self.last_folder()
+        path, _ = QFileDialog.getOpenFileName(self.parent, title, start, file_filter)
         return self.remember_folder(path or None)
 
     def ask_save_path(self, title: str, file_filter: str, suggested: str = "") -> str | None:
         """Ask for a file to write; None when cancelled."""
-        start = str(Path(self.last_folder()) / suggested) if self.last_folder() else suggested
+        last = self.last_folder()
+        start = str(Path(last) / suggested) if last and not Path(suggested).is_absolute() else suggested
         path, _ = QFileDialog.getSaveFileName(self.parent, title, start, file_filter)
         return self.remember_folder(path or None)
 

@@ -77,6 +77,14 @@ def window_commands(w: MainWindow) -> list[Command]:
             None,
             "Show the presets in your own library folder again",
         ),
+        Command(
+            "save_audition",
+            "Save audition…",
+            audition.save_audition,
+            "Ctrl+Shift+A",
+            "Keep the samples on screen in a file, to open again later",
+        ),
+        Command("open_audition", "Open audition…", audition.open_audition, None, "Show a saved audition again"),
         Command("quit", "Quit", w.close, QKeySequence.StandardKey.Quit),
         Command(
             "copy",
@@ -182,7 +190,20 @@ def shortcut_rows(w: MainWindow) -> list[tuple[str, str, str]]:
 #: Which commands each menu lists, in order (None: a separator). "recent_folders", "undo" and
 #: "redo" are the window's own submenu and undo actions.
 MENUS: dict[str, list[str | None]] = {
-    "&File": ["open", "import", "export", None, "library_folder", "recent_folders", "own_library", None, "quit"],
+    "&File": [
+        "open",
+        "import",
+        "export",
+        None,
+        "save_audition",
+        "open_audition",
+        None,
+        "library_folder",
+        "recent_folders",
+        "own_library",
+        None,
+        "quit",
+    ],
     "&Edit": ["undo", "redo", None, "copy"],
     "&Presets": [
         "new",

@@ -193,6 +193,30 @@ class AuditionSession:
         self.request, self.inspected = None, None
         self.seeds, self.library_folder = [], None
 
+    def restore(self, saved: Any) -> int:
+        """Show a saved audition (an :class:`~.audition_file.SavedAudition`) as the last full run:
+        announced as a run that started and finished at once, so views fill as after a run."""
+        self.abandon()
+        request = saved.request
+        count = len(request.presets)
+        self.presets, self.request, self.inspected = list(request.presets), request, None
+        self.samples = [list(column) for column in saved.samples]
+        self.metrics = list(saved.metrics)
+        self.record_ids, self.drafts, self.seeds = list(saved.record_ids), list(saved.drafts), list(saved.seeds)
+        self.library_folder = saved.library_folder
+        self.passage, self.passage_ids, self.passage_dropped = (
+            request.passage,
+            list(saved.passage_ids),
+            saved.passage_dropped,
+        )
+        self.columns = list(range(count))
+        self.serial += 1
+        self.running = True
+        self.started.emit(self.serial)
+        self.running = False
+        self.finished.emit(self.serial, False)
+        return self.serial
+
     def sample(self, ref: SampleRef) -> Sample | None:
         """The sample at ``ref``, or None when there is no such sample."""
         if 0 <= ref.column < len(self.samples) and 0 <= ref.row < len(self.samples[ref.column]):
