@@ -205,3 +205,33 @@ def test_an_audition_is_saved_and_reopened_after_a_restart(make_window, qtbot, t
     assert [[v.toPlainText() for v in column] for column in second.grid.views] == texts
     assert [h.name for h in second.grid.headers] == [p.name for p in first.session.presets]
     assert "Opened the audition" in second.statusBar().currentMessage()
+
+
+def test_long_differences_wrap_and_keep_their_whole_text(window, qtbot, tmp_path):
+    from samplewright.core.library.importing import preview_import
+    from samplewright.core.library.settings_file import export_settings, read_settings
+    from samplewright.qt.dialogs import ImportPreviewDialog
+    from samplewright.qt.library_dialogs import HistoryDialog
+
+    record = window.library.records()[0]
+    reordered = tuple(reversed(record.preset.order))
+    changed = record.preset.replace(order=reordered, notes="Tuned for the winter timetable " * 6)
+    source = tmp_path / "changed.json"
+    export_settings([changed], source)
+    dialog = ImportPreviewDialog(preview_import(read_settings(source), window.library), source.name, window)
+    qtbot.addWidget(dialog)
+    dialog.show()
+    QApplication.processEvents()
+    cell = dialog.table.item(0, 2)
+    assert " > ".join(reordered) in cell.toolTip()
+    table = dialog.table
+    assert table.rowHeight(0) >= table.sizeHintForRow(0)  # every line of the cell is shown
+    window.library.save(record.edited(changed))
+    history = HistoryDialog(window.library, record.id, lambda r: None, window)
+    qtbot.addWidget(history)
+    history.show()
+    QApplication.processEvents()
+    differences = history.differences
+    order_row = next(r for r in range(differences.rowCount()) if "order" in differences.item(r, 0).text().lower())
+    assert differences.item(order_row, 2).toolTip() == " > ".join(reordered)
+    assert differences.rowHeight(order_row) >= differences.sizeHintForRow(order_row)
