@@ -152,8 +152,9 @@ class StageBlock(QFrame):
         self.explanation.setText(self.part.explanation + off)
 
     def show_kept(self, kept: StageKept | None) -> None:
-        """Show what is left after this stage at the inspected step (None hides it)."""
-        self.kept.setVisible(kept is not None)
+        """Show what is left after this stage at the inspected step (None hides it, and so does
+        a stage that is off: it keeps what the stage above left)."""
+        self.kept.setVisible(kept is not None and self.switch.isChecked())
         if kept is not None:
             self.kept.setText(f"At the inspected step: {kept_text(kept)}")
 

@@ -13,7 +13,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from typing import Any
 
-from PySide6.QtCore import Qt, Signal
+from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtWidgets import (
     QFormLayout,
     QHBoxLayout,
@@ -249,11 +249,12 @@ class QtPresetEditor(QWidget):
         for stage, block in self.chain.blocks.items():
             block.show_kept(by_stage.get(stage))
         self.kept_note.setText(
-            note or "Click a token of this preset's samples to see how many tokens each stage keeps at that step."
+            note or "Click a token of this preset's samples to see what each stage keeps at that step."
         )
         self.kept_note.setStyleSheet("color: #505050;")
         if kept:
-            self.scroll.ensureWidgetVisible(self.kept_note)  # the user just clicked a step: show its figures
+            # The user just clicked a step: bring the chain and its figures into view (once laid out).
+            QTimer.singleShot(0, lambda: self.scroll.verticalScrollBar().setValue(self.chain_caption.y()))
 
     # -- widgets → model -------------------------------------------------------------
     def _on_field_edited(self, field: str, text: str) -> None:
