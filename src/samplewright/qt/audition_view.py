@@ -403,8 +403,10 @@ class QtAuditionGrid(QScrollArea):
             reason = columns[column] if column < len(columns) else None
             header.set_stale(reason if audition is None else None)
             dim = audition is not None or reason is not None
+            style = "color: #8C8C8C;" if dim else ""
             for view in self.views[column]:
-                view.setStyleSheet("color: #8C8C8C;" if dim else "")
+                if view.styleSheet() != style:  # a new style sheet re-polishes the view: only on a change
+                    view.setStyleSheet(style)
 
     def clear(self) -> None:
         """Remove every column and show the empty-grid hint again (the session was emptied)."""
