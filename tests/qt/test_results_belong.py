@@ -235,3 +235,13 @@ def test_long_differences_wrap_and_keep_their_whole_text(window, qtbot, tmp_path
     order_row = next(r for r in range(differences.rowCount()) if "order" in differences.item(r, 0).text().lower())
     assert differences.item(order_row, 2).toolTip() == " > ".join(reordered)
     assert differences.rowHeight(order_row) >= differences.sizeHintForRow(order_row)
+
+
+def test_help_about_opens_the_about_box(window, qtbot, monkeypatch):
+    from samplewright.qt import about_dialog
+
+    shown = []
+    # The About box itself is modal; here only which box the menu opens is checked.
+    monkeypatch.setattr(about_dialog.AboutDialog, "exec", lambda self: shown.append(self.windowTitle()) or 0)
+    window.menu_actions["about"].trigger()
+    assert shown and "Samplewright" in shown[0]

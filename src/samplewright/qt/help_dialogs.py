@@ -1,20 +1,16 @@
 """The Help menu's windows: the user guide (the README's sections), the keyboard
 shortcuts and About.
 
-About is the installer's :mod:`.about_dialog` when the package has it; until
-then a short box with the version and the review caution stands in.
+About is the installer's :mod:`.about_dialog`.
 """
 
 from __future__ import annotations
 
-import importlib
 import importlib.metadata
 from collections.abc import Sequence
 from pathlib import Path
 
 from PySide6.QtWidgets import QDialog, QHeaderView, QTableWidget, QTableWidgetItem, QTextBrowser, QVBoxLayout, QWidget
-
-from ..core.version import VERSION
 
 #: The README sections a user needs in the window (the developers' section stays in the file).
 GUIDE_SKIPS = ("For developers",)
@@ -75,17 +71,7 @@ def show_shortcuts(rows: Sequence[tuple[str, str, str]], parent: QWidget | None 
 
 
 def show_about(parent: QWidget | None = None) -> None:
-    """The installer's About box when it is part of the package, else a short stand-in."""
-    try:
-        about = importlib.import_module(f"{__package__}.about_dialog")
-    except ImportError:
-        from PySide6.QtWidgets import QMessageBox
+    """The About box (the installer's :mod:`.about_dialog`: version, licences, notices)."""
+    from .about_dialog import show_about as about
 
-        QMessageBox.about(
-            parent,
-            "About Samplewright",
-            f"Samplewright {VERSION}: audition a team's sampling presets on its own passages.\n\n"
-            "Generated text can be wrong, biased or offensive: review it under your team's own policy.",
-        )
-        return
-    about.show_about(parent)
+    about(parent)
