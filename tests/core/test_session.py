@@ -112,3 +112,24 @@ def test_the_inspected_step_is_clamped_and_dropped_when_its_column_is_rewritten(
     assert session.inspected == StepRef(0, 0, 1)  # another column was rewritten
     session.begin(request(["A2"], samples=1), columns=[0])
     assert session.inspected is None and session.inspected_text() is None
+
+
+def test_the_smaller_token_limit_applies_and_is_named():
+    # transformers' generate() semantics carried over: a row stops at the smaller of the two budgets.
+    session = AuditionSession()
+    run = AuditionRequest("Dear passengers", [Preset("short", max_new_tokens=2), Preset("long")], max_new_tokens=3)
+    session.begin(run)
+    assert session.token_limit(0) == (2, "preset")
+    assert session.token_limit(1) == (3, "audition")
+    assert session.token_limit(5) is None
+
+
+def test_a_column_written_again_with_its_own_seed_says_so():
+    session = AuditionSession()
+    session.begin(request(["A", "B"], samples=1))
+    assert not session.own_numbers(0)
+    again = session.regenerate_request(0, Preset("A"), seed=99)
+    assert again is not None and again.seed == 99
+    session.begin(again, [0])
+    assert session.own_numbers(0) and not session.own_numbers(1)
+    assert session.regenerate_request(1, Preset("B")).seed == session.request.seed

@@ -25,6 +25,7 @@ class TokenStep:
     kept: int  # tokens left with nonzero probability after shaping
     raw_entropy_bits: float  # entropy of the unshaped distribution
     entropy_bits: float  # entropy of the shaped distribution
+    piece: bytes | None = None  # the token's own bytes, when known without the model (a reopened file)
 
 
 @dataclasses.dataclass

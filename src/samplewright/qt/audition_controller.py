@@ -13,18 +13,21 @@ computed again with the typed values (debounced), so a change is seen at once.
 
 from __future__ import annotations
 
+import contextlib
 import random
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 
 from PySide6.QtCore import QObject, QTimer, Signal
 from PySide6.QtGui import QGuiApplication
 from PySide6.QtWidgets import QStatusBar
 
+from ..core.engine.audition_file import AuditionFileError, audition_dict, load_audition, runs_folder, save_audition
 from ..core.engine.session import AuditionSession, SampleRef
+from ..core.engine.staleness import staleness
 from ..core.library.draft import Draft
 from ..core.library.records import PresetRecord
 from ..core.limits import MAX_PRESETS
-from ..core.presets import Preset
+from ..core.presets import Preset, now_iso
 from ..core.results import AuditionRequest
 from .audition_controls import QtAuditionControls
 from .audition_view import DRAFT_MARK, QtAuditionGrid
@@ -39,6 +42,7 @@ from .workers import EngineThread, StepQuery
 LIVE_EDIT_MS = 250
 #: Beside a preset's name in the step view while it shows the editor's typed values.
 EDITING_MARK = "(as typed)"
+AUDITION_FILTER = "Samplewright audition (*.json);;All files (*)"
 
 
 class AuditionController(QObject):
@@ -54,9 +58,12 @@ class AuditionController(QObject):
 
     Signals:
         state_changed(can_generate, running, can_regenerate): for the window's actions.
+        step_shown(view or None, record_ids, where): a step view is shown (None: none), with each
+            column's library record and which step it is, in words.
     """
 
     state_changed = Signal(bool, bool, bool)
+    step_shown = Signal(object, list, str)
 
     def __init__(
         self,
@@ -79,6 +86,9 @@ class AuditionController(QObject):
         self.controls, self.grid, self.inspector, self.library_list = controls, grid, inspector, library_list
         self.passage = passage
         self.model_ready = False
+        self.run_note = ""
+        #: The loaded model's name, or None (the window sets it; written into saved auditions).
+        self.model_name: Callable[[], str | None] = lambda: None
         self._step_serial: int | None = None
         self._step_waiting: StepQuery | None = None
         self._step_names: tuple[list[str], bool] = ([], False)  # names and "live" of the waiting query
@@ -101,6 +111,11 @@ class AuditionController(QObject):
         controls.generate_button.clicked.connect(self.generate_all)
         controls.stop_button.clicked.connect(self.stop_generation)
         library_list.chosen_changed.connect(lambda ids: self.update_buttons())
+        grid.generate_again_requested.connect(self.generate_all)
+        passage.passage_settled.connect(lambda text: self.check_staleness())
+        self.watched = in_use.library
+        in_use.switched.connect(self._follow_library)
+        self._follow_library(in_use.library)
 
     # -- running -----------------------------------------------------------------------------
     def running(self) -> bool:
@@ -133,6 +148,41 @@ class AuditionController(QObject):
         self.clear_inspection()
         self._start(request, None, [r.id for r in records], drafts, notes)
 
+    def _follow_library(self, library) -> None:
+        """Watch ``library`` (now in use) for changes that put the samples out of date."""
+        for emitter in (self.watched.added, self.watched.changed, self.watched.removed):
+            with contextlib.suppress(ValueError):  # not connected yet (the first library)
+                emitter.disconnect(self._on_library_event)
+        self.watched = library
+        for emitter in (library.added, library.changed, library.removed):
+            emitter.connect(self._on_library_event)
+        self.check_staleness()
+
+    def _on_library_event(self, record) -> None:
+        self.check_staleness()
+
+    def check_staleness(self) -> None:
+        """Say which samples no longer belong to the passage, folder or presets on screen; a column
+        written with unsaved edits loses its draft mark once they are saved."""
+        session = self.session
+        if session.request is None or session.running:
+            self.grid.show_staleness(None, [])
+            return
+        library = self.in_use.library
+        report = staleness(
+            session.presets,
+            session.record_ids,
+            session.drafts,
+            self.in_use.record,
+            (session.request.passage, session.library_folder),
+            (self.passage.text(), library.folder),
+        )
+        for column, saved in enumerate(report.saved_drafts):
+            if saved:
+                session.mark_saved(column)
+                self.grid.mark_draft(column, False)
+        self.grid.show_staleness(report.audition, list(report.columns))
+
     def regenerate_column(self, column: int) -> None:
         """Write one preset's samples again with the last run's passage, seed and sizes."""
         session = self.session
@@ -144,9 +194,18 @@ class AuditionController(QObject):
             (preset,), drafts, notes = self._audition_presets([record])
         else:
             preset, drafts, notes = session.presets[column], [session.is_draft(column)], []
-        request = session.regenerate_request(column, preset)
+        same = preset.parameters() == session.presets[column].parameters()
+        # The same preset on the same numbers would write the same text: give the column new numbers.
+        seed = random.randrange(2**31) if same else None
+        request = session.regenerate_request(column, preset, seed=seed)
         if request is None:
             return
+        notes = notes + [
+            f"New random numbers for this column (seed {request.seed}): its rows no longer share draws "
+            "with the other columns."
+            if same
+            else "The same random numbers as the other columns, so each row shows what the change does."
+        ]
         inspected = session.inspected
         if inspected and inspected.column == column:
             self.clear_inspection()
@@ -186,12 +245,34 @@ class AuditionController(QObject):
         if self.running():
             self.engine.cancel(self.session.serial)
         serial = self.engine.run_audition(request)
-        self.session.begin(request, columns, serial=serial, record_ids=record_ids, drafts=drafts)
+        folder = self.in_use.library.folder
+        self.session.begin(request, columns, serial=serial, record_ids=record_ids, drafts=drafts, library_folder=folder)
         for column in columns or range(len(request.presets)):
             self.grid.mark_draft(column, self.session.is_draft(column))
+            self.show_column_note(column)
+        self.grid.show_staleness(None, [])
         self.controls.show_progress(0, 0)
+        self.run_note = notes[-1] if columns is not None and notes else ""  # what ↻ did with the random numbers
         self.status.showMessage(" ".join(["Generating…"] + notes))
         self.update_buttons()
+
+    def show_column_note(self, column: int) -> None:
+        """Say in the column which token limit applied and whether it has random numbers of its own."""
+        limit = self.session.token_limit(column)
+        if limit is None or column >= len(self.grid.headers):
+            return
+        tokens, which = limit
+        set_by = "its own token limit" if which == "preset" else "the audition's New tokens"
+        seed = self.session.seeds[column]
+        numbers = f" · own seed {seed}" if self.session.own_numbers(column) else ""
+        request, own = self.session.request, self.session.presets[column].max_new_tokens
+        tip = (
+            f"A sample ends at the smaller of the preset's own token limit ({own}) "
+            f"and the audition's New tokens ({request.max_new_tokens if request else '–'}); here that was {tokens}. "
+            f"Random numbers: seed {seed}"
+            + (", not the run's: rows do not share draws with the other columns." if numbers else ", as every column.")
+        )
+        self.grid.headers[column].set_note(f"up to {tokens} tokens ({set_by}){numbers}", tip)
 
     def stop_generation(self) -> None:
         """Ask the running audition to stop after its current token; samples so far stay."""
@@ -228,13 +309,15 @@ class AuditionController(QObject):
         if result.cancelled:
             self.status.showMessage("Stopped; the samples so far are kept.", 6000)
         else:
-            self.status.showMessage(f"Wrote {result.tokens_generated()} tokens in {result.seconds:.1f} s.", 6000)
+            wrote = f"Wrote {result.tokens_generated()} tokens in {result.seconds:.1f} s."
+            self.status.showMessage(f"{wrote} {self.run_note}".strip(), 8000)
         progress = self.controls.progress
         progress.setValue(progress.maximum() if not result.cancelled else progress.value())
         self.update_buttons()
         inspected = self.session.inspected
         if inspected:
             self.inspect(inspected.column, inspected.row, inspected.step)
+        self.check_staleness()
 
     def _on_failed(self, serial: int, kind: str, message: str) -> None:
         if kind == "audition" and self.session.fail(serial, message):
@@ -321,6 +404,13 @@ class AuditionController(QObject):
             if self.inspector.vocabulary is None:
                 drawn = self.session.inspected_text()
             self.inspector.show_step(view, names, drawn, live)
+            ref = self.session.inspected
+            where = (
+                f"At step {ref.step + 1} of sample {ref.row + 1} of column {ref.column + 1} ('{names[ref.column]}')"
+                if ref
+                else ""
+            )
+            self.step_shown.emit(view, list(self.session.record_ids), where)
         self._send_waiting_step()
 
     def clear_inspection(self) -> None:
@@ -334,6 +424,7 @@ class AuditionController(QObject):
         self._live_timer.stop()
         self.inspector.set_sample(None, None, None)
         self.inspector.show_step(None, [])
+        self.step_shown.emit(None, [], "")
 
     def clear_audition(self) -> None:
         """Forget every sample, the last request and the inspected step (e.g. after a model switch)."""
@@ -355,6 +446,51 @@ class AuditionController(QObject):
                 "model. Press Generate all to write new ones.",
                 10000,
             )
+
+    # -- keeping an audition ------------------------------------------------------------------
+    def save_audition(self) -> None:
+        """Write the audition on screen to a run file (under the library's ``runs`` folder by default)."""
+        model = self.model_name()
+        suggested = runs_folder(self.in_use.library.folder) / f"audition-{now_iso()[:19].replace(':', '')}.json"
+        try:
+            audition_dict(self.session, model)  # says why there is nothing to save before a file is chosen
+        except AuditionFileError as error:
+            self.prompts.show_error("Nothing to save yet", str(error))
+            return
+        path = self.prompts.ask_save_path("Save the audition", AUDITION_FILTER, str(suggested))
+        if not path:
+            return
+        try:
+            vocabulary = self.grid.vocabulary
+            save_audition(self.session, path, model, vocabulary.bytes_of if vocabulary is not None else None)
+        except AuditionFileError as error:
+            self.prompts.show_error("The audition was not saved", str(error))
+            return
+        self.status.showMessage(f"Saved the audition to {path}. Open it again with File ▸ Open audition.", 8000)
+
+    def open_audition(self, path: str | None = None) -> None:
+        """Show a saved audition again; it is checked against the passage, folder and presets on screen."""
+        folder = runs_folder(self.in_use.library.folder)
+        path = path or self.prompts.ask_open_path("Open a saved audition", AUDITION_FILTER, str(folder))
+        if not path:
+            return
+        try:
+            saved = load_audition(path)
+        except AuditionFileError as error:
+            self.prompts.show_error("The audition cannot be opened", str(error))
+            return
+        if self.running():
+            self.engine.cancel(self.session.serial)
+        self.clear_inspection()
+        self.session.restore(saved)
+        for column in range(len(self.session.presets)):
+            self.grid.mark_draft(column, self.session.is_draft(column))
+            self.show_column_note(column)
+        self.update_buttons()
+        self.check_staleness()
+        model, now = saved.model, self.model_name()
+        other = f" It was written by {model}; the loaded model is {now}." if model and now and model != now else ""
+        self.status.showMessage(f"Opened the audition saved {saved.saved_at}.{other}", 10000)
 
     def copy_current_sample(self) -> None:
         """Copy the inspected sample's text to the clipboard."""

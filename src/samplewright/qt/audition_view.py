@@ -15,11 +15,13 @@ import numpy as np
 from PySide6.QtCore import QPoint, Qt, Signal
 from PySide6.QtGui import QColor, QGuiApplication, QTextCharFormat, QTextCursor
 from PySide6.QtWidgets import (
+    QDialog,
     QFrame,
     QGridLayout,
     QHBoxLayout,
     QLabel,
     QPlainTextEdit,
+    QPushButton,
     QScrollArea,
     QSizePolicy,
     QTextEdit,
@@ -32,7 +34,7 @@ from ..core.engine.session import AuditionSession
 from ..core.engine.token_text import GrowingText, Vocabulary
 from . import palette
 
-COLUMN_WIDTH = 212
+COLUMN_WIDTH = 176
 #: Beside a preset's name when its samples were written with the editor's unsaved edits.
 DRAFT_MARK = "(unsaved draft)"
 SAMPLE_LINES = 6
@@ -53,10 +55,14 @@ def _fmt(value, digits: int = 2) -> str:
     return "–" if value is None else f"{value:.{digits}f}"
 
 
+#: Which metrics each of the header's four metric lines shows (its tooltip explains those).
+METRIC_LINES = (("distinct",), ("self_bleu", "seq_rep_4"), ("mean_surprisal_bits", "mean_kept"), ("mean_length",))
+
+
 def metrics_text(metrics: dict | None) -> str:
     """Four short lines of a preset's metrics; '–' where a value is undefined."""
     if not metrics:
-        return "metrics appear when the run ends"
+        return "metrics appear when the run ends\n\n\n"
     reasons = metrics.get("stop_reasons") or {}
     ended = ", ".join(f"{k} {v}" for k, v in sorted(reasons.items())) or "–"
     distinct = " / ".join(_fmt(metrics.get(f"distinct_{n}")) for n in (1, 2, 3))
@@ -189,7 +195,22 @@ class SampleView(QPlainTextEdit):
         menu = self.createStandardContextMenu()
         menu.addSeparator()
         menu.addAction("Copy whole sample", self.copy_all)
+        menu.addAction("Read the whole sample…", self.read_whole)
         menu.exec(event.globalPos())
+
+    def read_whole(self) -> QDialog:
+        """Open the sample in a window of its own, large enough to read it whole."""
+        dialog = QDialog(self.window())
+        dialog.setWindowTitle(f"Preset {self.column + 1}, sample {self.row + 1}")
+        text = QPlainTextEdit(self.toPlainText())
+        text.setReadOnly(True)
+        text.setAccessibleName("Whole sample")
+        layout = QVBoxLayout(dialog)
+        layout.addWidget(text)
+        dialog.resize(640, 420)
+        dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+        dialog.show()
+        return dialog
 
     def copy_all(self) -> None:
         """Put the sample's whole text on the clipboard."""
@@ -212,18 +233,53 @@ class ColumnHeader(QFrame):
         self.regenerate.setText("↻")
         self.regenerate.setToolTip(f"New samples for this preset ({name}); the other columns stay")
         self.regenerate.setAccessibleName(f"New samples for preset {column + 1}")
-        self.metrics = QLabel(metrics_text(None))
-        self.metrics.setAccessibleName(f"Metrics of preset {column + 1}")
-        self.metrics.setToolTip("\n".join(METRIC_HELP.values()))
-        self.metrics.setStyleSheet("color: #303030;")
-        self.metrics.setMinimumHeight(self.metrics.fontMetrics().lineSpacing() * 4 + 4)
+        self.metric_lines = [QLabel() for _ in METRIC_LINES]
+        for line, keys in zip(self.metric_lines, METRIC_LINES, strict=True):
+            line.setToolTip("\n".join(METRIC_HELP[k] for k in keys))
+            line.setStyleSheet("color: #303030;")
+            line.setAccessibleName(f"Metrics of preset {column + 1}: {', '.join(keys)}")
+        self.note = QLabel()
+        self.note.setWordWrap(True)
+        self.note.setAccessibleName(f"Settings of preset {column + 1}")
+        self.note.setStyleSheet("color: #505050;")
+        self.stale = QLabel()
+        self.stale.setWordWrap(True)
+        self.stale.setObjectName("staleNote")
+        self.stale.setStyleSheet(palette.notice_style("staleNote"))
+        self.stale.setAccessibleName(f"Preset {column + 1} is out of date")
+        self.stale.hide()
+        self.set_metrics(None)
         top = QHBoxLayout()
         top.addWidget(self.title, 1)
         top.addWidget(self.regenerate)
         layout = QVBoxLayout(self)
         layout.setContentsMargins(2, 4, 2, 2)
+        layout.setSpacing(1)
         layout.addLayout(top)
-        layout.addWidget(self.metrics)
+        layout.addWidget(self.note)
+        layout.addWidget(self.stale)
+        for line in self.metric_lines:
+            layout.addWidget(line)
+
+    def set_metrics(self, metrics: dict | None) -> None:
+        """Show the preset's metrics, one line per group; hovering a line explains its measures."""
+        for line, text in zip(self.metric_lines, metrics_text(metrics).split("\n"), strict=True):
+            line.setText(text)
+
+    def metrics_shown(self) -> str:
+        """The metric lines as shown, one per line."""
+        return "\n".join(line.text() for line in self.metric_lines)
+
+    def set_note(self, text: str, tip: str) -> None:
+        """Show which token limit and random numbers applied, with ``tip`` explaining them."""
+        self.note.setText(text)
+        self.note.setToolTip(tip)
+
+    def set_stale(self, reason: str | None) -> None:
+        """Dim the column's header and say why it is out of date (None: it is current)."""
+        self.stale.setVisible(reason is not None)
+        self.stale.setText(f"{reason}. Press ↻ to write it again." if reason else "")
+        self.title.setEnabled(reason is None)
 
     def set_draft(self, on: bool) -> None:
         """Mark the column as written with the editor's unsaved edits of the preset, or not."""
@@ -245,10 +301,12 @@ class QtAuditionGrid(QScrollArea):
     Signals:
         token_clicked(column, row, step): a token in a sample was clicked.
         regenerate_requested(column): the ↻ button of a column was pressed.
+        generate_again_requested(): the out-of-date notice's Generate again was pressed.
     """
 
     token_clicked = Signal(int, int, int)
     regenerate_requested = Signal(int)
+    generate_again_requested = Signal()
 
     def __init__(self, session: AuditionSession, parent: QWidget | None = None):
         super().__init__(parent)
@@ -273,6 +331,21 @@ class QtAuditionGrid(QScrollArea):
         self._empty.setWordWrap(True)
         self._empty.setMargin(12)
         outer.addWidget(self._empty)
+        self.stale_banner = QFrame()
+        self.stale_banner.setObjectName("staleBanner")
+        self.stale_banner.setStyleSheet(palette.notice_style("staleBanner"))
+        self.stale_label = QLabel()
+        self.stale_label.setWordWrap(True)
+        self.stale_label.setAccessibleName("The audition is out of date")
+        self.again_button = QPushButton("Generate again")
+        self.again_button.setToolTip("Write the audition again with the current passage and presets")
+        self.again_button.clicked.connect(self.generate_again_requested)
+        banner = QHBoxLayout(self.stale_banner)
+        banner.setContentsMargins(4, 2, 4, 2)
+        banner.addWidget(self.stale_label, 1)
+        banner.addWidget(self.again_button)
+        self.stale_banner.hide()
+        outer.addWidget(self.stale_banner)
         outer.addLayout(self._grid)
         outer.addStretch(1)
         session.started.connect(self._on_started)
@@ -288,6 +361,8 @@ class QtAuditionGrid(QScrollArea):
         self.session.finished.disconnect(self._on_finished)
 
     def _on_started(self, serial: int) -> None:
+        if self.session.columns == list(range(len(self.session.presets))):
+            self.horizontalScrollBar().setValue(0)  # a new run starts at column 1
         rows = self.session.sample_count()
         if (
             len(self.headers) != len(self.session.presets)
@@ -296,7 +371,7 @@ class QtAuditionGrid(QScrollArea):
         ):
             self._rebuild(rows)
         for column in self.session.columns:
-            self.headers[column].metrics.setText(metrics_text(None))
+            self.headers[column].set_metrics(None)
             for row, view in enumerate(self.views[column]):
                 view.set_tokens([])
                 self.footers[column][row].setText("writing…")
@@ -328,8 +403,10 @@ class QtAuditionGrid(QScrollArea):
                 view.token_clicked.connect(lambda step, c=column, r=row: self.token_clicked.emit(c, r, step))
                 footer = QLabel("")
                 footer.setStyleSheet("color: #505050;")
+                footer.setContentsMargins(0, 0, 26, 0)  # room for the ⤢ button in the same cell
                 self._grid.addWidget(view, 1 + 2 * row, 1 + column)
                 self._grid.addWidget(footer, 2 + 2 * row, 1 + column)
+                self._grid.addWidget(_whole_button(view), 2 + 2 * row, 1 + column, Qt.AlignmentFlag.AlignRight)
                 views.append(view)
                 footers.append(footer)
             self.views.append(views)
@@ -342,7 +419,7 @@ class QtAuditionGrid(QScrollArea):
     def _piece(self, token) -> bytes:
         if self.vocabulary is not None:
             return self.vocabulary.bytes_of(token.token_id)
-        return token.text.encode("utf-8")
+        return token.piece if token.piece is not None else token.text.encode("utf-8")
 
     def _on_token_added(self, column: int, row: int, step: int, token) -> None:
         self.views[column][row].append_piece(self._piece(token))
@@ -354,13 +431,26 @@ class QtAuditionGrid(QScrollArea):
 
     def _on_finished(self, serial: int, cancelled: bool) -> None:
         for column in self.session.columns:
-            self.headers[column].metrics.setText(metrics_text(self.session.metrics[column]))
+            self.headers[column].set_metrics(self.session.metrics[column])
             for row, sample in enumerate(self.session.samples[column]):
                 view = self.views[column][row]
                 if len(view.growing.spans) != len(sample.tokens):
                     view.set_pieces([self._piece(t) for t in sample.tokens])
                 reason = sample.stop_reason or ("cancelled" if cancelled else "–")
                 self.footers[column][row].setText(f"{len(sample.tokens)} tokens · ended: {reason}")
+
+    def show_staleness(self, audition: str | None, columns: list[str | None]) -> None:
+        """Dim what is out of date and say why: the whole audition (``audition``) or single columns."""
+        self.stale_banner.setVisible(audition is not None)
+        self.stale_label.setText(audition or "")
+        for column, header in enumerate(self.headers):
+            reason = columns[column] if column < len(columns) else None
+            header.set_stale(reason if audition is None else None)
+            dim = audition is not None or reason is not None
+            style = "color: #8C8C8C;" if dim else ""
+            for view in self.views[column]:
+                if view.styleSheet() != style:  # a new style sheet re-polishes the view: only on a change
+                    view.setStyleSheet(style)
 
     def clear(self) -> None:
         """Remove every column and show the empty-grid hint again (the session was emptied)."""
@@ -398,3 +488,14 @@ class QtAuditionGrid(QScrollArea):
     def view(self, column: int, row: int) -> SampleView | None:
         """The text view of one sample, or None."""
         return self._view(column, row)
+
+
+def _whole_button(view: SampleView) -> QToolButton:
+    """The button under a sample that opens it whole in a window of its own."""
+    whole = QToolButton()
+    whole.setText("⤢")
+    whole.setAutoRaise(True)
+    whole.setAccessibleName(f"Read preset {view.column + 1}, sample {view.row + 1} whole")
+    whole.setToolTip("Read the whole sample in a window of its own")
+    whole.clicked.connect(view.read_whole)
+    return whole

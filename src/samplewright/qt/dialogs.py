@@ -6,6 +6,7 @@ from PySide6.QtWidgets import (
     QComboBox,
     QDialog,
     QDialogButtonBox,
+    QHeaderView,
     QLabel,
     QMessageBox,
     QTableWidget,
@@ -13,6 +14,8 @@ from PySide6.QtWidgets import (
     QVBoxLayout,
     QWidget,
 )
+
+from .difference_view import value_text
 
 #: What each import choice means, in the words the dialog shows.
 IMPORT_CHOICE_LABELS = {
@@ -53,8 +56,12 @@ class ImportPreviewDialog(QDialog):
         self.combos: dict[str, QComboBox] = {}
         for row, item in enumerate(plan.items):
             self.table.setItem(row, 0, QTableWidgetItem(item.name))
-            changes = "; ".join(f"{k}: {a!r} → {b!r}" for k, (a, b) in item.differences.items())
-            self.table.setItem(row, 2, QTableWidgetItem(changes))
+            changes = "\n".join(
+                f"{k}: {value_text(a, k)} → {value_text(b, k)}" for k, (a, b) in item.differences.items()
+            )
+            cell = QTableWidgetItem(changes)
+            cell.setToolTip(changes)  # the whole text, however narrow the column
+            self.table.setItem(row, 2, cell)
             if item.action == "conflict":
                 combo = QComboBox()
                 for key, label in IMPORT_CHOICE_LABELS.items():
@@ -64,7 +71,12 @@ class ImportPreviewDialog(QDialog):
                 self.combos[item.name] = combo
             else:
                 self.table.setItem(row, 1, QTableWidgetItem(ACTION_LABELS.get(item.action, item.action)))
+        self.table.setWordWrap(True)
         self.table.resizeColumnsToContents()
+        differences = self.table.horizontalHeader()
+        differences.setSectionResizeMode(2, QHeaderView.ResizeMode.Stretch)
+        differences.sectionResized.connect(lambda *_: self.table.resizeRowsToContents())
+        self.table.resizeRowsToContents()
         buttons = QDialogButtonBox(QDialogButtonBox.Ok | QDialogButtonBox.Cancel)
         buttons.button(QDialogButtonBox.Ok).setText("Import")
         buttons.accepted.connect(self.accept)

@@ -57,9 +57,11 @@ class AddPresetCommand(_LibraryCommand):
 class DeletePresetCommand(_LibraryCommand):
     """Move a preset to the library's trash; undo restores it."""
 
-    def __init__(self, library, record_id: str, report):
-        super().__init__(library, f"delete '{library.get(record_id).name}'", report)
+    def __init__(self, library, record_id: str, report, restored: Callable[[str, str], None] | None = None):
+        self.name = library.get(record_id).name
+        super().__init__(library, f"delete '{self.name}'", report)
         self.record_id = record_id
+        self.restored = restored
 
     def redo(self):
         self._safely(lambda: self.library.delete(self.record_id))
@@ -67,6 +69,8 @@ class DeletePresetCommand(_LibraryCommand):
     def undo(self):
         def act():
             self.record_id = self.library.restore(self.record_id).id
+            if self.restored is not None:
+                self.restored(self.record_id, self.name)
 
         self._safely(act)
 

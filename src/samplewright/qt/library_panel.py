@@ -49,10 +49,12 @@ class QtLibraryList(QWidget):
     Signals:
         current_changed(record_id or None): the highlighted preset changed.
         chosen_changed(list of ids): the ticked presets changed (at most six, in tick order).
+        note(text): something to say in the status bar (e.g. that an undo restored a preset).
     """
 
     current_changed = Signal(object)
     chosen_changed = Signal(list)
+    note = Signal(str)
     #: True while :meth:`refresh` announces the current preset (not a choice by the user).
     refreshing = False
 
@@ -285,8 +287,15 @@ class QtLibraryList(QWidget):
         return command.record_id
 
     def push_delete(self, record_id: str) -> None:
-        """Delete a preset undoably."""
-        self.undo_stack.push(DeletePresetCommand(self.library, record_id, self.report))
+        """Delete a preset undoably; undoing it ticks it again where it was and highlights it."""
+        was_chosen = list(self.chosen)
+
+        def restored(new_id: str, name: str) -> None:
+            self.set_chosen([new_id if i == record_id else i for i in was_chosen])
+            self.select(new_id)
+            self.note.emit(f"Restored '{name}'.")
+
+        self.undo_stack.push(DeletePresetCommand(self.library, record_id, self.report, restored))
 
     def push_rename(self, record_id: str, name: str) -> None:
         """Rename a preset undoably."""

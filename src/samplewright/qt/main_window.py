@@ -77,7 +77,7 @@ class MainWindow(QMainWindow):
         self.config_dir = Path(config_dir) if config_dir else default_config_dir()
         self.settings = QSettings(str(self.config_dir / SETTINGS_FILE), QSettings.Format.IniFormat)
         self.user_state = UserState(self.config_dir)
-        self.prompts = QtPrompts(self)
+        self.prompts = QtPrompts(self, self.settings)
         library, library_problem = open_first_library(library_dir, self.user_state)
         self.in_use = LibraryInUse(library, self)
         self.undo_stack = QUndoStack(self)
@@ -131,10 +131,10 @@ class MainWindow(QMainWindow):
         main = self.splitters["main"]
         for widget in (left, middle, self.inspector):
             main.addWidget(widget)
-        main.setStretchFactor(1, 3)
-        main.setStretchFactor(2, 2)
-        main.setSizes([290, 700, 410])
-        left.setSizes([210, 590])
+        main.setStretchFactor(1, 4)  # the samples get the width when the window grows
+        main.setStretchFactor(2, 1)
+        main.setSizes([300, 780, 320])
+        left.setSizes([290, 510])
         middle.setSizes([170, 600])
         self.caution = QLabel(CAUTION)
         self.caution.setObjectName("caution")
@@ -174,6 +174,7 @@ class MainWindow(QMainWindow):
         )
         views = (self.controls, self.grid, self.inspector, presets_list, self.passage)
         self.audition = AuditionController(self.session, self.engine, draft, in_use, prompts, status, *views, self)
+        self.audition.model_name = model_name
         self.state = WindowState(self.settings, self, self.splitters, self.passage, self.controls, presets_list, in_use)
         self.library_watch, self.recent_menu = self.library_tools.watch, self.folders.recent_menu
         # A new screen that needs these models is built here; its menu entry is a row in window_actions.py.
@@ -198,6 +199,8 @@ class MainWindow(QMainWindow):
         """Connect the parts: what one announces, another follows."""
         self.models.model_switched.connect(self.audition.forget_old_model_samples)
         self.models.model_ready.connect(lambda info: self.audition.set_model_ready(True))
+        self.audition.step_shown.connect(self.presets.show_step_figures)
+        self.library_list.note.connect(lambda text: self.statusBar().showMessage(text, 6000))
         self.audition.state_changed.connect(lambda *state: window_actions.follow_audition(self.menu_actions, *state))
         self.folders.own_library_shown.connect(lambda own: self.menu_actions["own_library"].setEnabled(not own))
         self.audition.update_buttons()

@@ -63,6 +63,7 @@ class PresetController(QObject):
         self.draft, self.in_use, self.editor, self.library_list = draft, in_use, editor, library_list
         self.prompts, self.status, self.model_name = prompts, status, model_name
         draft.loaded.connect(lambda record: editor.set_preset(record.preset if record else None))
+        draft.loaded.connect(lambda record: editor.show_stage_kept(None))
         editor.validity_changed.connect(lambda valid: self._take_edits())
         editor.save_requested.connect(self.save_edited_preset)
         editor.revert_button.clicked.connect(self._on_reverted)  # runs after the editor's own revert
@@ -76,6 +77,17 @@ class PresetController(QObject):
     def _take_edits(self) -> None:
         problem = self.editor.draft_problem()
         self.draft.update(None if problem is not None else self.editor.edited(), problem)
+
+    def show_step_figures(self, view, record_ids: list, where: str) -> None:
+        """Show in the editor's blocks what each stage keeps at the inspected step, when the edited
+        preset is one of the audition's columns (``view`` is the step view, None when none is shown)."""
+        loaded = self.draft.record
+        column = record_ids.index(loaded.id) if loaded is not None and loaded.id in record_ids else None
+        if view is None or column is None or column >= len(view.presets):
+            note = "" if view is None else "This preset is not in the audition: tick it and generate to see figures."
+            self.editor.show_stage_kept(None, note)
+            return
+        self.editor.show_stage_kept(view.presets[column].stages, f"{where}, as written in that column:")
 
     def current_record(self) -> PresetRecord | None:
         """The highlighted preset's record (None, said in the status bar, when none is highlighted)."""
@@ -167,7 +179,8 @@ class PresetController(QObject):
         name = next(
             n for n in (f"New preset {i}" if i > 1 else "New preset" for i in range(1, 10_000)) if n not in taken
         )
-        self.library_list.push_add(Preset(name, description="Neutral settings: the model as it is."))
+        # No description: one saying "neutral" would be wrong as soon as a value changes.
+        self.library_list.push_add(Preset(name))
 
     def duplicate_preset(self) -> None:
         """Add a copy of the highlighted preset."""

@@ -1,26 +1,24 @@
-"""The preset editor: every field checked as it is typed, with its meaning shown.
+"""The preset editor: a header (name, description, tags, notes, token limit, stop
+strings) above the preset's chain, one block per stage in its order
+(:mod:`.chain_editor`).
 
 Each field is checked by :func:`samplewright.core.presets.validate_field`, the
 same check the core applies, so the editor and the library can never
-disagree. An invalid value shows the reason and the allowed range beside the
-field, and Save stays disabled until every field is valid. The fields, their
-help and "Allowed:" text come from the core's typed field descriptions
-(``core/presets.py`` ``FIELDS``); the stage list names each stage by its label
-from the stage registry.
+disagree. An invalid value shows the reason and the allowed range under the
+field, and Save stays disabled until every field is valid.
 """
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from typing import Any
 
-from PySide6.QtCore import Qt, Signal
+from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtWidgets import (
-    QAbstractItemView,
     QFormLayout,
     QHBoxLayout,
     QLabel,
     QLineEdit,
-    QListWidget,
     QPlainTextEdit,
     QPushButton,
     QScrollArea,
@@ -30,15 +28,27 @@ from PySide6.QtWidgets import (
 
 from ..core.fields import NumberField
 from ..core.presets import FIELDS, Preset, PresetError, validate_field
-from ..core.sampling import registry
+from ..core.results import StageEffect
+from ..core.sampling.stage_parts import STAGE_PARTS, is_off, switched
 from . import palette
+from .chain_editor import ERROR_STYLE, ChainView
 from .difference_view import value_text
 
 #: The core's numeric parameters, in its order, so a field added to the core appears here without an edit.
 NUMBER_FIELDS = tuple(name for name, spec in FIELDS.items() if isinstance(spec, NumberField))
 WHOLE_NUMBERS = tuple(name for name in NUMBER_FIELDS if getattr(FIELDS[name], "integer", False))
-ERROR_STYLE = "color: #B00020;"
-HELP_STYLE = "color: #505050;"
+#: The header's fields: (field, caption, explanation), above the chain.
+HEADER_FIELDS = (
+    ("name", "Name", "A short name the team will recognise."),
+    ("description", "Description", "One line on when to use this preset."),
+    ("tags", "Tags", "Words to find the preset by, separated by commas."),
+    ("max_new_tokens", "Token limit", FIELDS["max_new_tokens"].help),
+    ("stop", "Stop strings", FIELDS["stop"].help + " One per line; write \\n for a line break."),
+    ("notes", "Notes", "Anything the team should know: what it was tuned for, by whom."),
+)
+TOKEN_LIMIT_NOTE = (
+    " A run writes at most the smaller of this and the audition's New tokens; each column says which applied."
+)
 
 
 def parse_field(field: str, text: str) -> Any:
@@ -116,22 +126,39 @@ class QtPresetEditor(QWidget):
         self.notice.setAccessibleName("Editor notice")
         self.notice.setStyleSheet(palette.notice_style("editorNotice"))
         self.notice.hide()
-        form_host = QWidget()
-        self.form = QFormLayout(form_host)
-        self.form.setRowWrapPolicy(QFormLayout.WrapAllRows)
-        self.form.setFieldGrowthPolicy(QFormLayout.AllNonFixedFieldsGrow)
-        self._add_line("name", "Name", "A short name the team will recognise.")
-        self._add_line("description", "Description", "One line on when to use this preset.")
-        self._add_line("tags", "Tags", "Words to find the preset by, separated by commas.")
-        for field in NUMBER_FIELDS:
-            self._add_line(field, field, FIELDS[field].help, FIELDS[field].allowed)
-        self._add_text("stop", "stop", FIELDS["stop"].help + " One per line; write \\n for a line break.")
-        self._add_order()
-        self._add_text("notes", "Notes", "Anything the team should know: what it was tuned for, by whom.")
+        host = QWidget()
+        column = QVBoxLayout(host)
+        column.setContentsMargins(0, 0, 4, 0)
+        self.form = QFormLayout()
+        self.form.setRowWrapPolicy(QFormLayout.RowWrapPolicy.WrapLongRows)
+        self.form.setFieldGrowthPolicy(QFormLayout.FieldGrowthPolicy.AllNonFixedFieldsGrow)
+        for field, caption, help_text in HEADER_FIELDS:
+            multiline = field in ("stop", "notes")
+            tip = help_text + (TOKEN_LIMIT_NOTE if field == "max_new_tokens" else "")
+            self._add_header_field(field, caption, tip, multiline)
+        column.addLayout(self.form)
+        self.chain_caption = QLabel(
+            "<b>Chain</b>, applied top to bottom: drag a block, or Alt+Up / Alt+Down, to reorder."
+        )
+        self.chain_caption.setWordWrap(True)
+        self.kept_note = QLabel()
+        self.kept_note.setWordWrap(True)
+        self.kept_note.setAccessibleName("Chain figures note")
+        self.chain = ChainView(self._on_field_edited)
+        self.chain.order_changed.connect(self._update_state)
+        self.chain.switch_requested.connect(self.switch_stage)
+        for block in self.chain.blocks.values():
+            self.inputs.update(block.inputs)
+            self.error_labels.update(block.error_labels)
+        column.addWidget(self.chain_caption)
+        column.addWidget(self.kept_note)
+        column.addWidget(self.chain)
+        column.addStretch(1)
         scroll = QScrollArea()
         scroll.setWidgetResizable(True)
-        scroll.setWidget(form_host)
-        scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarAlwaysOff)
+        scroll.setWidget(host)
+        scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.scroll = scroll
         self.save_button = QPushButton("Save preset")
         self.save_button.setToolTip("Save the edited preset to the library (Ctrl+S)")
         self.save_button.clicked.connect(self._on_save_clicked)
@@ -150,62 +177,36 @@ class QtPresetEditor(QWidget):
         layout.addWidget(self.notice)
         layout.addWidget(scroll, 1)
         layout.addLayout(buttons)
+        self.show_stage_kept(None)
 
-    def _add_row(self, field: str, label: str, editor: QWidget, help_text: str, allowed: str = "") -> None:
-        editor.setAccessibleName(label)
-        tip = help_text + (f" Allowed: {allowed}." if allowed else "")
-        editor.setToolTip(tip)
-        help_label = QLabel(tip)
-        help_label.setWordWrap(True)
-        help_label.setStyleSheet(HELP_STYLE)
+    def _add_header_field(self, field: str, caption: str, tip: str, multiline: bool) -> None:
+        editor: QLineEdit | QPlainTextEdit
+        if multiline:
+            editor = QPlainTextEdit()
+            editor.setTabChangesFocus(True)
+            editor.setFixedHeight(editor.fontMetrics().lineSpacing() * 2 + 12)
+            editor.textChanged.connect(lambda f=field, e=editor: self._on_field_edited(f, e.toPlainText()))
+        else:
+            editor = QLineEdit()
+            editor.textEdited.connect(lambda text, f=field: self._on_field_edited(f, text))
+        allowed = FIELDS[field].allowed if field in FIELDS else ""
+        editor.setAccessibleName(caption)
+        editor.setToolTip(tip + (f" Allowed: {allowed}." if allowed else ""))
         error = QLabel()
         error.setWordWrap(True)
         error.setStyleSheet(ERROR_STYLE)
-        error.setAccessibleName(f"{label} problem")
+        error.setAccessibleName(f"{caption} problem")
         error.hide()
         box = QVBoxLayout()
         box.setSpacing(1)
         box.addWidget(editor)
         box.addWidget(error)
-        box.addWidget(help_label)
+        label = QLabel(caption)
+        label.setToolTip(editor.toolTip())
+        label.setBuddy(editor)
         self.form.addRow(label, box)
         self.inputs[field] = editor
         self.error_labels[field] = error
-
-    def _add_line(self, field: str, label: str, help_text: str, allowed: str = "") -> None:
-        editor = QLineEdit()
-        editor.textEdited.connect(lambda text, f=field: self._on_field_edited(f, text))
-        self._add_row(field, label, editor, help_text, allowed)
-
-    def _add_text(self, field: str, label: str, help_text: str) -> None:
-        editor = QPlainTextEdit()
-        editor.setTabChangesFocus(True)
-        editor.setFixedHeight(editor.fontMetrics().lineSpacing() * 3 + 12)
-        editor.textChanged.connect(lambda f=field, e=editor: self._on_field_edited(f, e.toPlainText()))
-        self._add_row(field, label, editor, help_text)
-
-    def _add_order(self) -> None:
-        self.order_list = QListWidget()
-        self.order_list.setDragDropMode(QAbstractItemView.InternalMove)
-        rows = len(registry.names())  # every stage visible without scrolling
-        self.order_list.setFixedHeight(self.order_list.fontMetrics().lineSpacing() * rows + 16)
-        self.order_list.model().rowsMoved.connect(lambda *_: self._on_order_changed())
-        up, down = QPushButton("Move up"), QPushButton("Move down")
-        up.setToolTip("Apply the selected stage earlier")
-        down.setToolTip("Apply the selected stage later")
-        up.clicked.connect(lambda: self.move_stage(-1))
-        down.clicked.connect(lambda: self.move_stage(+1))
-        holder = QWidget()
-        row = QHBoxLayout(holder)
-        row.setContentsMargins(0, 0, 0, 0)
-        row.addWidget(self.order_list, 1)
-        column = QVBoxLayout()
-        column.addWidget(up)
-        column.addWidget(down)
-        column.addStretch(1)
-        row.addLayout(column)
-        self._add_row("order", "Stage order", holder, FIELDS["order"].help + " Drag a stage, or use the buttons.")
-        self.order_list.setAccessibleName("Stage order")
 
     # -- model → widgets ------------------------------------------------------------
     def set_preset(self, preset: Preset | None) -> None:
@@ -214,32 +215,45 @@ class QtPresetEditor(QWidget):
         self.errors.clear()
         shown = preset or Preset("(none)")
         for field, editor in self.inputs.items():
-            if field == "order":
-                continue
-            text = field_text(field, getattr(shown, field))
-            editor.blockSignals(True)
-            if isinstance(editor, QPlainTextEdit):
-                editor.setPlainText(text)
-            else:
-                editor.setText(text)
-                editor.setCursorPosition(0)  # show a long description from its start
-            editor.blockSignals(False)
+            self._show_value(field, editor, getattr(shown, field))
             self.error_labels[field].hide()
-        self.order_list.blockSignals(True)
-        self.order_list.clear()
-        for stage in shown.order:
-            entry = registry.stage(stage)
-            self.order_list.addItem(f"{entry.label}  ({stage})")
-            item = self.order_list.item(self.order_list.count() - 1)
-            item.setData(Qt.UserRole, stage)
-            item.setToolTip(entry.summary)
-        self.order_list.blockSignals(False)
+        self.chain.set_order(shown.order)
+        for stage, block in self.chain.blocks.items():
+            block.set_on(not is_off(shown, stage), fold=True)
         self.title.setText(
             f"<b>Editing:</b> {preset.name}" if preset else "<i>Choose a preset in the list to edit it.</i>"
         )
         self.set_notice("")
         self.setEnabled(preset is not None)
         self._update_state()
+
+    def _show_value(self, field: str, editor: QWidget, value: Any) -> None:
+        text = field_text(field, value)
+        editor.blockSignals(True)
+        if isinstance(editor, QPlainTextEdit):
+            editor.setPlainText(text)
+        elif isinstance(editor, QLineEdit):
+            editor.setText(text)
+            editor.setCursorPosition(0)  # show a long description from its start
+        editor.blockSignals(False)
+
+    def show_stage_kept(self, kept: Sequence[StageEffect] | None, note: str = "") -> None:
+        """Show, in each block, what is left after that stage at the inspected step (None: nothing inspected).
+
+        Args:
+            kept: one entry per stage, from the step view of this preset's column.
+            note: which step the figures belong to, or why there are none.
+        """
+        by_stage = {k.stage: k for k in kept or ()}
+        for stage, block in self.chain.blocks.items():
+            block.show_kept(by_stage.get(stage))
+        self.kept_note.setText(
+            note or "Click a token of this preset's samples to see what each stage keeps at that step."
+        )
+        self.kept_note.setStyleSheet("color: #505050;")
+        if kept:
+            # The user just clicked a step: bring the chain and its figures into view (once laid out).
+            QTimer.singleShot(0, lambda: self.scroll.verticalScrollBar().setValue(self.chain_caption.y()))
 
     # -- widgets → model -------------------------------------------------------------
     def _on_field_edited(self, field: str, text: str) -> None:
@@ -252,25 +266,38 @@ class QtPresetEditor(QWidget):
         else:
             self.errors.pop(field, None)
             self.error_labels[field].hide()
+        self._follow_switches()
         self._update_state()
 
-    def _on_order_changed(self) -> None:
-        self._update_state()
-
-    def move_stage(self, delta: int) -> None:
-        """Move the selected stage ``delta`` places (negative: earlier)."""
-        row = self.order_list.currentRow()
-        target = row + delta
-        if row < 0 or not 0 <= target < self.order_list.count():
+    def _follow_switches(self) -> None:
+        """Tick each stage's switch as its typed values say (a stage typed back to neutral shows as off)."""
+        try:
+            typed = self.edited()
+        except PresetError:
             return
-        item = self.order_list.takeItem(row)
-        self.order_list.insertItem(target, item)
-        self.order_list.setCurrentRow(target)
-        self._on_order_changed()
+        for stage, block in self.chain.blocks.items():
+            block.set_on(not is_off(typed, stage), fold=False)
+
+    def switch_stage(self, stage: str, on: bool) -> None:
+        """Switch ``stage`` on (its starting values) or off (its neutral values, folded)."""
+        block = self.chain.blocks[stage]
+        base = self.original or Preset("(none)")
+        values = switched(base.replace(**dict(STAGE_PARTS[stage].neutral)), stage, True) if on else None
+        for field in STAGE_PARTS[stage].fields:
+            value = getattr(values, field) if values is not None else STAGE_PARTS[stage].neutral[field]
+            self._show_value(field, block.inputs[field], value)
+            self.errors.pop(field, None)
+            self.error_labels[field].hide()
+        block.set_on(on, fold=True)
+        self._update_state()
+
+    def move_stage(self, stage: str, delta: int) -> None:
+        """Move ``stage`` ``delta`` places in the chain (negative: earlier)."""
+        self.chain.move_stage(stage, delta)
 
     def stage_order(self) -> tuple[str, ...]:
-        """The stage order as currently listed."""
-        return tuple(self.order_list.item(i).data(Qt.UserRole) for i in range(self.order_list.count()))
+        """The stage order as currently laid out."""
+        return tuple(self.chain.order)
 
     def edited(self) -> Preset:
         """The preset as currently typed.
@@ -282,9 +309,8 @@ class QtPresetEditor(QWidget):
             raise PresetError("preset", "no preset is being edited")
         changes: dict[str, Any] = {"order": self.stage_order()}
         for field, editor in self.inputs.items():
-            if field != "order":
-                text = editor.toPlainText() if isinstance(editor, QPlainTextEdit) else editor.text()
-                changes[field] = parse_field(field, text)
+            text = editor.toPlainText() if isinstance(editor, QPlainTextEdit) else editor.text()  # type: ignore[attr-defined]
+            changes[field] = parse_field(field, text)
         return self.original.replace(**changes)
 
     def is_dirty(self) -> bool:
@@ -311,12 +337,13 @@ class QtPresetEditor(QWidget):
 
     def _update_state(self) -> None:
         valid = not self.errors
-        self.save_button.setEnabled(self.original is not None and valid and self.is_dirty())
-        self.revert_button.setEnabled(self.original is not None and self.is_dirty())
+        dirty = self.is_dirty()
+        self.save_button.setEnabled(self.original is not None and valid and dirty)
+        self.revert_button.setEnabled(self.original is not None and dirty)
         if self.errors:
             self.status.setText(f"<span style='{ERROR_STYLE}'>Fix {len(self.errors)} field(s) to save.</span>")
         else:
-            self.status.setText("Unsaved changes." if self.is_dirty() else "")
+            self.status.setText("Unsaved changes." if dirty else "")
         self.validity_changed.emit(valid)
 
     def _on_save_clicked(self) -> None:

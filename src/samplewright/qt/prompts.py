@@ -10,10 +10,13 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from PySide6.QtCore import Qt
+from PySide6.QtCore import QSettings, Qt
 from PySide6.QtWidgets import QAbstractButton, QDialog, QFileDialog, QInputDialog, QMessageBox, QWidget
 
 from .dialogs import ImportPreviewDialog, ask_conflict_choice
+
+#: The window settings key of the folder the file choosers open in.
+LAST_FOLDER_KEY = "files/last_folder"
 
 
 class QtPrompts:
@@ -21,11 +24,25 @@ class QtPrompts:
 
     Attributes:
         last_error: the text of the last problem shown (None before the first).
+        settings: where the last folder a file chooser was used in is kept (None: not kept).
     """
 
-    def __init__(self, parent: QWidget):
+    def __init__(self, parent: QWidget, settings: QSettings | None = None):
         self.parent = parent
+        self.settings = settings
         self.last_error: str | None = None
+
+    def last_folder(self) -> str:
+        """The folder a file chooser used last ("" before the first use)."""
+        value = self.settings.value(LAST_FOLDER_KEY, "") if self.settings is not None else ""
+        return str(value) if value and Path(str(value)).is_dir() else ""
+
+    def remember_folder(self, path: str | None) -> str | None:
+        """Keep the folder of ``path`` (a file or a folder) as the next chooser's start; returns ``path``."""
+        if path and self.settings is not None:
+            folder = Path(path) if Path(path).is_dir() else Path(path).parent
+            self.settings.setValue(LAST_FOLDER_KEY, str(folder))
+        return path
 
     def show_error(self, message: str, detail: str | None = None) -> None:
         """Show a problem in a message box (``detail``, when given, is the message and the first is the title)."""
@@ -37,15 +54,18 @@ class QtPrompts:
         """Show an explanation in a message box."""
         QMessageBox.information(self.parent, title, text)
 
-    def ask_open_path(self, title: str, file_filter: str) -> str | None:
-        """Ask for a file to open; None when cancelled."""
-        path, _ = QFileDialog.getOpenFileName(self.parent, title, "", file_filter)
-        return path or None
+    def ask_open_path(self, title: str, file_filter: str, folder: str = "") -> str | None:
+        """Ask for a file to open, starting in ``folder`` (default: the last folder used); None when cancelled."""
+        start = folder if folder and Path(folder).is_dir() else self.last_folder()
+        path, _ = QFileDialog.getOpenFileName(self.parent, title, start, file_filter)
+        return self.remember_folder(path or None)
 
     def ask_save_path(self, title: str, file_filter: str, suggested: str = "") -> str | None:
         """Ask for a file to write; None when cancelled."""
-        path, _ = QFileDialog.getSaveFileName(self.parent, title, suggested, file_filter)
-        return path or None
+        last = self.last_folder()
+        start = str(Path(last) / suggested) if last and not Path(suggested).is_absolute() else suggested
+        path, _ = QFileDialog.getSaveFileName(self.parent, title, start, file_filter)
+        return self.remember_folder(path or None)
 
     def choose_export_target(self, presets, add_closest) -> str | None:
         """Show the export dialog (targets, each preset's verdict and reasons); the chosen target
@@ -59,7 +79,7 @@ class QtPrompts:
 
     def ask_folder(self, title: str) -> str | None:
         """Ask for a folder; None when cancelled."""
-        return QFileDialog.getExistingDirectory(self.parent, title) or None
+        return self.remember_folder(QFileDialog.getExistingDirectory(self.parent, title, self.last_folder()) or None)
 
     def ask_text(self, title: str, label: str, text: str) -> str | None:
         """Ask for one line of text; None when cancelled."""

@@ -1,6 +1,6 @@
 """Render the window in its main states to PNG files (``make screenshots``).
 
-Usage: ``python -m samplewright.qt.screenshots OUTDIR``
+Usage: ``python -m samplewright.qt.screenshots OUTDIR [WIDTHxHEIGHT]`` (default 1400x900)
 
 Uses the default model, the first demo passage and the starter presets, in
 a fresh temporary library and settings folder (the user's own are not
@@ -79,8 +79,8 @@ def _inspect(app, window, column: int, row: int, step: int) -> None:
     _wait(app, lambda: window.inspector.plot.shown is not None, 120, "the step view")
 
 
-def render(outdir: Path, model_seconds: float = 600) -> list[Path]:
-    """Render the three states into ``outdir``; returns the files written."""
+def render(outdir: Path, model_seconds: float = 600, size: tuple[int, int] = SIZE) -> list[Path]:
+    """Render the main states into ``outdir`` at ``size``; returns the files written."""
     from .app import make_app
     from .main_window import MainWindow
 
@@ -91,7 +91,7 @@ def render(outdir: Path, model_seconds: float = 600) -> list[Path]:
         os.environ["SAMPLEWRIGHT_LIBRARY_DIR"] = str(Path(scratch) / "library")
         window = MainWindow(library_dir=Path(scratch) / "library", config_dir=Path(scratch) / "config")
         window.prompts.show_error = lambda message, detail=None: print(f"error: {detail or message}", file=sys.stderr)
-        window.resize(*SIZE)
+        window.resize(*size)
         window.show()
         _wait(app, lambda: window.model_info is not None, model_seconds, "the model to load")
         _choose_presets(window)
@@ -106,6 +106,8 @@ def render(outdir: Path, model_seconds: float = 600) -> list[Path]:
         _save(app, window, files[1])
         column = min(1, len(window.session.samples) - 1)
         sample = window.session.samples[column][0]
+        # The inspected column's preset is the one edited: its chain shows what each stage keeps.
+        window.library_list.select(window.session.record_ids[column] or "")
         _inspect(app, window, column, 0, _interesting_step(sample))
         _save(app, window, files[2])
         _save(app, window.inspector, files[3])
@@ -118,14 +120,20 @@ def render(outdir: Path, model_seconds: float = 600) -> list[Path]:
     return files
 
 
+def _size(text: str) -> tuple[int, int] | None:
+    """``1280x800`` as (1280, 800); None for anything else."""
+    width, _, height = text.partition("x")
+    return (int(width), int(height)) if width.isdigit() and height.isdigit() else None
+
+
 def main(argv=None) -> int:
     """Command-line entry: render into the folder given as the only argument."""
     argv = sys.argv[1:] if argv is None else argv
-    if len(argv) != 1:
-        print("usage: python -m samplewright.qt.screenshots OUTDIR", file=sys.stderr)
+    if len(argv) not in (1, 2) or (len(argv) == 2 and not _size(argv[1])):
+        print("usage: python -m samplewright.qt.screenshots OUTDIR [WIDTHxHEIGHT]", file=sys.stderr)
         return 2
     try:
-        render(Path(argv[0]))
+        render(Path(argv[0]), size=_size(argv[1]) if len(argv) == 2 else SIZE)
     except TimeoutError as error:
         print(f"screenshots not finished: {error}", file=sys.stderr)
         return 1

@@ -17,6 +17,7 @@ from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import QMainWindow, QMenu
 
 from ..core.engine.model import DEFAULT_NAME
+from . import help_dialogs
 from .preset_controller import IMPORT_TEXT
 from .step_inspector import help_text as step_view_help
 
@@ -76,6 +77,14 @@ def window_commands(w: MainWindow) -> list[Command]:
             None,
             "Show the presets in your own library folder again",
         ),
+        Command(
+            "save_audition",
+            "Save audition…",
+            audition.save_audition,
+            "Ctrl+Shift+A",
+            "Keep the samples on screen in a file, to open again later",
+        ),
+        Command("open_audition", "Open audition…", audition.open_audition, None, "Show a saved audition again"),
         Command("quit", "Quit", w.close, QKeySequence.StandardKey.Quit),
         Command(
             "copy",
@@ -159,14 +168,42 @@ def window_commands(w: MainWindow) -> list[Command]:
             None,
             f"Load the default model, {DEFAULT_NAME}",
         ),
-        Command("legend", "Reading the next-token view", lambda: show_legend(w), "F1"),
+        Command("guide", "User guide", lambda: help_dialogs.show_guide(w), "F1", "The README's sections, in a window"),
+        Command("shortcuts", "Keyboard shortcuts", lambda: help_dialogs.show_shortcuts(shortcut_rows(w), w)),
+        Command("legend", "Reading the next-token view", lambda: show_legend(w), None),
+        Command("about", "About Samplewright", lambda: help_dialogs.show_about(w)),
     ]
+
+
+def shortcut_rows(w: MainWindow) -> list[tuple[str, str, str]]:
+    """Every window command that has a shortcut: (keys, command, what it does)."""
+    rows = [
+        (action.shortcut().toString(), action.text(), action.statusTip())
+        for action in w.menu_actions.values()
+        if not action.shortcut().isEmpty()
+    ]
+    rows += [(w.undo_action.shortcut().toString(), "Undo", "Undo the last library change")]
+    rows += [("Alt+Up / Alt+Down", "Move a stage", "In the editor's chain, move the focused stage earlier or later")]
+    return rows
 
 
 #: Which commands each menu lists, in order (None: a separator). "recent_folders", "undo" and
 #: "redo" are the window's own submenu and undo actions.
 MENUS: dict[str, list[str | None]] = {
-    "&File": ["open", "import", "export", None, "library_folder", "recent_folders", "own_library", None, "quit"],
+    "&File": [
+        "open",
+        "import",
+        "export",
+        None,
+        "save_audition",
+        "open_audition",
+        None,
+        "library_folder",
+        "recent_folders",
+        "own_library",
+        None,
+        "quit",
+    ],
     "&Edit": ["undo", "redo", None, "copy"],
     "&Presets": [
         "new",
@@ -186,7 +223,7 @@ MENUS: dict[str, list[str | None]] = {
     ],
     "&Audition": ["generate", "regenerate", "stop", None, "prev_step", "next_step"],
     "&Model": ["model_folder", "model_gguf", "model_default"],
-    "&Help": ["legend"],
+    "&Help": ["guide", "shortcuts", "legend", None, "about"],
 }
 
 

@@ -96,12 +96,13 @@ class WindowState:
     def fill_example_passage(self) -> None:
         """Offer the example passages and put the first one in the editor."""
         try:
-            from ..core.engine.passages import demo_passages
+            from ..core.engine.passages import demo_passages, example_title
 
             examples = demo_passages()
         except ImportError:
             examples = {}
-        self.passage.set_examples(examples, lambda title, text: self.passage.set_text(text))
+        titled = {example_title(name): text for name, text in examples.items()}
+        self.passage.set_examples(titled, lambda title, text: self.passage.set_text(text))
         if examples and not self.passage.text().strip():
             self.passage.set_text(next(iter(examples.values())))
 

@@ -53,6 +53,12 @@ def read_passage(path) -> str:
     return text
 
 
+def example_title(name: str) -> str:
+    """The title of a demo passage from its file name: ``cancelled-crossing-reply`` → "Cancelled crossing reply"."""
+    words = name.replace("_", "-").split("-")
+    return " ".join(w for w in words if w).capitalize()
+
+
 def demo_passages() -> dict[str, str]:
     """The bundled demo passages by name (file name without ``.txt``), sorted by name."""
     folder = resources.files("samplewright") / "resources" / "passages"

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import dataclasses
 from collections.abc import Sequence
+from pathlib import Path
 from typing import Any
 
 from ..events import Emitter
@@ -65,6 +66,8 @@ class AuditionSession:
         self.drafts: list[bool] = []  # whether each column was written with unsaved edits of its preset
         self.request: AuditionRequest | None = None  # the last full run: passage, sizes and seed
         self.inspected: StepRef | None = None
+        self.seeds: list[int] = []  # the seed each column was written with
+        self.library_folder: Path | None = None  # the library the last full run's presets came from
         self.done_tokens = 0
         self.total_tokens = 0
         self.started, self.token_added, self.sample_finished = Emitter(), Emitter(), Emitter()
@@ -78,6 +81,7 @@ class AuditionSession:
         serial: int | None = None,
         record_ids: Sequence[str | None] | None = None,
         drafts: Sequence[bool] | None = None,
+        library_folder: Path | None = None,
     ) -> int:
         """Start collecting a new run and return its serial.
 
@@ -91,6 +95,7 @@ class AuditionSession:
                 larger than every earlier one. ``None``: the next number.
             record_ids: the library record of each preset in ``request`` (default: none).
             drafts: whether each preset in ``request`` is an unsaved draft (default: no).
+            library_folder: for a full run, the library folder its presets came from.
 
         Raises:
             ValueError: when ``columns``, ``record_ids`` or ``drafts`` do not match the
@@ -109,6 +114,8 @@ class AuditionSession:
             self.metrics = [None for _ in request.presets]
             self.record_ids, self.drafts = [None] * count, [False] * count
             self.request, self.inspected = request, None
+            self.seeds = [request.seed] * count
+            self.library_folder = library_folder
             columns = list(range(count))
         elif len(columns) != count or not all(0 <= c < len(self.presets) for c in columns):
             raise ValueError("each regenerated preset needs an existing column")
@@ -121,6 +128,7 @@ class AuditionSession:
             self.samples[column] = [Sample(column, row) for row in range(request.samples)]
             self.metrics[column] = None
             self.record_ids[column], self.drafts[column] = ids[local], marks[local]
+            self.seeds[column] = request.seed
         if self.inspected is not None and self.inspected.column in self.columns:
             self.inspected = None
         self.done_tokens, self.total_tokens = 0, 0
@@ -183,6 +191,31 @@ class AuditionSession:
         self.passage, self.passage_dropped = "", 0
         self.done_tokens = self.total_tokens = 0
         self.request, self.inspected = None, None
+        self.seeds, self.library_folder = [], None
+
+    def restore(self, saved: Any) -> int:
+        """Show a saved audition (an :class:`~.audition_file.SavedAudition`) as the last full run:
+        announced as a run that started and finished at once, so views fill as after a run."""
+        self.abandon()
+        request = saved.request
+        count = len(request.presets)
+        self.presets, self.request, self.inspected = list(request.presets), request, None
+        self.samples = [list(column) for column in saved.samples]
+        self.metrics = list(saved.metrics)
+        self.record_ids, self.drafts, self.seeds = list(saved.record_ids), list(saved.drafts), list(saved.seeds)
+        self.library_folder = saved.library_folder
+        self.passage, self.passage_ids, self.passage_dropped = (
+            request.passage,
+            list(saved.passage_ids),
+            saved.passage_dropped,
+        )
+        self.columns = list(range(count))
+        self.serial += 1
+        self.running = True
+        self.started.emit(self.serial)
+        self.running = False
+        self.finished.emit(self.serial, False)
+        return self.serial
 
     def sample(self, ref: SampleRef) -> Sample | None:
         """The sample at ``ref``, or None when there is no such sample."""
@@ -195,15 +228,38 @@ class AuditionSession:
         return max((len(column) for column in self.samples), default=0)
 
     # -- between runs ------------------------------------------------------------------
-    def regenerate_request(self, column: int, preset: Preset) -> AuditionRequest | None:
-        """A request for ``preset`` alone with the last full run's passage, sizes and seed;
-        None when there was no full run or ``column`` is not one of its columns."""
+    def regenerate_request(self, column: int, preset: Preset, seed: int | None = None) -> AuditionRequest | None:
+        """A request for ``preset`` alone with the last full run's passage and sizes, and its seed
+        unless ``seed`` is given; None when there was no full run or ``column`` is not one of its columns."""
         last = self.request
         if last is None or not 0 <= column < len(self.presets):
             return None
         return AuditionRequest(
-            last.passage, [preset], samples=last.samples, max_new_tokens=last.max_new_tokens, seed=last.seed
+            last.passage,
+            [preset],
+            samples=last.samples,
+            max_new_tokens=last.max_new_tokens,
+            seed=last.seed if seed is None else seed,
         )
+
+    def token_limit(self, column: int) -> tuple[int, str] | None:
+        """The token limit that applied to ``column`` and which setting set it: "preset" (the preset's
+        own token limit) or "audition" (the run's New tokens); the smaller one wins. None without a run."""
+        last = self.request
+        if last is None or not 0 <= column < len(self.presets):
+            return None
+        own = self.presets[column].max_new_tokens
+        return (own, "preset") if own < last.max_new_tokens else (last.max_new_tokens, "audition")
+
+    def own_numbers(self, column: int) -> bool:
+        """Whether ``column`` was written with other random numbers than the last full run's."""
+        last = self.request
+        return last is not None and 0 <= column < len(self.seeds) and self.seeds[column] != last.seed
+
+    def mark_saved(self, column: int) -> None:
+        """The unsaved edits ``column`` was written with are saved now: it is no longer a draft."""
+        if 0 <= column < len(self.drafts):
+            self.drafts[column] = False
 
     def is_draft(self, column: int) -> bool:
         """Whether ``column`` was written with unsaved edits of its preset."""
