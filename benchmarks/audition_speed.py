@@ -320,7 +320,7 @@ def window_cell(tokens: int, repeats: int) -> dict:
         ticks: list[float] = []
         timer = QTimer()
         timer.setInterval(10)
-        timer.timeout.connect(lambda: ticks.append(time.perf_counter()))
+        timer.timeout.connect(lambda ticks=ticks: ticks.append(time.perf_counter()))
         timer.start()
         start = time.perf_counter()
         thread.run_audition(AuditionRequest(demo_passages()[PASSAGE], presets, SAMPLES, tokens, seed))
@@ -384,7 +384,8 @@ def main(argv=None) -> int:
         window(cli_rate, args)
     if not args.skip_table:
         table("float32")
-    print(f"\npeak resident memory of the main process: {resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024:.0f} MB")
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    print(f"\npeak resident memory of the main process: {peak:.0f} MB")
     return 0
 
 
