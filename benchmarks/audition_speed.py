@@ -311,8 +311,6 @@ def window_cell(tokens: int, repeats: int) -> dict:
     while not done:
         app.processEvents()
         time.sleep(0.005)
-    import torch
-
     presets = [Preset.from_dict(p) for p in PRESETS]
     best, stall = 0.0, 0.0
     for seed in range(repeats + 1):
@@ -332,7 +330,7 @@ def window_cell(tokens: int, repeats: int) -> dict:
             best = max(best, done[0].tokens_generated() / seconds)
             stall = max([stall] + [b - a for a, b in zip(ticks, ticks[1:], strict=False)])
     thread.shutdown()
-    return {"rate": best, "stall_ms": stall * 1000, "threads": torch.get_num_threads()}
+    return {"rate": best, "stall_ms": stall * 1000, "threads": thread.worker.threads}
 
 
 def main(argv=None) -> int:
