@@ -191,9 +191,9 @@ class _Drawn:
 
 def _entropy_bits(log_probs: torch.Tensor, probs: torch.Tensor) -> torch.Tensor:
     """Shannon entropy in bits per row over the nonzero probabilities (as
-    :func:`~samplewright.core.sampling.inspection.entropy_bits`)."""
-    terms = torch.where(probs > 0, probs * log_probs, torch.zeros_like(probs))
-    return 0.0 - terms.sum(-1) / math.log(2.0)
+    :func:`~samplewright.core.sampling.inspection.entropy_bits`). A removed
+    token gives ``0 * -inf = nan``, which ``nansum`` leaves out: one pass, no mask."""
+    return 0.0 - torch.nansum(probs * log_probs, dim=-1) / math.log(2.0)
 
 
 class _Batch:
