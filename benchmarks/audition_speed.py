@@ -246,7 +246,7 @@ def cell(passage_tokens: int, rows: int, mode: str, precision_name: str) -> dict
     return {"rate": rate, "peak_mb": peak, "passage": len(engine.encode_passage(passage).ids)}
 
 
-def table(precision_name: str) -> None:
+def table(precision_name: str, threads: int) -> None:
     """Section 5: every cell in its own process."""
     print(
         f"\n-- scaling, {TABLE_TOKENS} new tokens per row, passage pass not timed, {precision_name} ({machine_line()})"
@@ -257,7 +257,17 @@ def table(precision_name: str) -> None:
             found = {}
             for mode in ("shared", "copies"):
                 out = subprocess.run(
-                    [sys.executable, __file__, "--cell", str(passage_tokens), str(rows), mode, precision_name],
+                    [
+                        sys.executable,
+                        __file__,
+                        "--threads",
+                        str(threads),
+                        "--cell",
+                        str(passage_tokens),
+                        str(rows),
+                        mode,
+                    ]
+                    + [precision_name],
                     capture_output=True,
                     text=True,
                     check=True,
@@ -340,9 +350,19 @@ def main(argv=None) -> int:
     parser.add_argument("--tokens", type=int, default=48)
     parser.add_argument("--skip-table", action="store_true", help="leave out the scaling table (the slow part)")
     parser.add_argument("--skip-window", action="store_true", help="leave out the window's figures")
+    parser.add_argument(
+        "--threads",
+        type=int,
+        default=0,
+        help="torch threads (default: torch's own, every core; 1 is steadier when shared)",
+    )
     parser.add_argument("--cell", nargs=4, help=argparse.SUPPRESS)
     parser.add_argument("--window-cell", nargs=2, type=int, help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
+    if args.threads:
+        import torch
+
+        torch.set_num_threads(args.threads)
     if args.cell:
         print(json.dumps(cell(int(args.cell[0]), int(args.cell[1]), args.cell[2], args.cell[3])))
         return 0
@@ -381,7 +401,7 @@ def main(argv=None) -> int:
     if not args.skip_window:
         window(cli_rate, args)
     if not args.skip_table:
-        table("float32")
+        table("float32", args.threads)
     peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     print(f"\npeak resident memory of the main process: {peak:.0f} MB")
     return 0
