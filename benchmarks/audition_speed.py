@@ -246,14 +246,14 @@ def cell(passage_tokens: int, rows: int, mode: str, precision_name: str) -> dict
     return {"rate": rate, "peak_mb": peak, "passage": len(engine.encode_passage(passage).ids)}
 
 
-def table(precision_name: str, threads: int) -> None:
+def table(precision_name: str, threads: int, table_rows) -> None:
     """Section 5: every cell in its own process."""
     print(
         f"\n-- scaling, {TABLE_TOKENS} new tokens per row, passage pass not timed, {precision_name} ({machine_line()})"
     )
     print(f"{'passage':>8} {'rows':>5} | {'shared tok/s':>12} {'peak MB':>8} | {'per-row tok/s':>13} {'peak MB':>8}")
     for passage_tokens in TABLE_PASSAGES:
-        for rows in TABLE_ROWS:
+        for rows in table_rows:
             found = {}
             for mode in ("shared", "copies"):
                 out = subprocess.run(
@@ -356,6 +356,9 @@ def main(argv=None) -> int:
         default=0,
         help="torch threads (default: torch's own, every core; 1 is steadier when shared)",
     )
+    parser.add_argument(
+        "--table-rows", default=",".join(map(str, TABLE_ROWS)), help="rows of the scaling table, comma-separated"
+    )
     parser.add_argument("--cell", nargs=4, help=argparse.SUPPRESS)
     parser.add_argument("--window-cell", nargs=2, type=int, help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
@@ -401,7 +404,7 @@ def main(argv=None) -> int:
     if not args.skip_window:
         window(cli_rate, args)
     if not args.skip_table:
-        table("float32", args.threads)
+        table("float32", args.threads, [int(r) for r in args.table_rows.split(",")])
     peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     print(f"\npeak resident memory of the main process: {peak:.0f} MB")
     return 0

@@ -160,7 +160,7 @@ def shared_prefix_attention(
     scores = torch.matmul(q, keys.to(work).transpose(-1, -2)) * scaling
     lse_suffix = torch.logsumexp(scores, dim=-1, keepdim=True)
     out_suffix = torch.matmul(torch.exp(scores - lse_suffix), values.to(work))
-    # Hydragen's recombination (Juravsky et al. 2024, eq. 4).
+    # Hydragen's recombination (Juravsky et al. 2024, section 3): weights from the two log-sum-exps.
     lse = torch.logaddexp(lse_prefix, lse_suffix)
     out = torch.exp(lse_prefix - lse) * out_prefix + torch.exp(lse_suffix - lse) * out_suffix
     return out.to(query.dtype).reshape(rows, heads, 1, dim).transpose(1, 2)
