@@ -301,7 +301,7 @@ def window(cli_rate: float, args) -> None:
 
 def window_cell(tokens: int, repeats: int) -> dict:
     """The window's engine worker on its thread, a 10 ms timer on the main thread counting gaps."""
-    from PySide6.QtCore import QTimer
+    from PySide6.QtCore import QEventLoop, QTimer
     from PySide6.QtWidgets import QApplication
 
     from samplewright import Preset
@@ -312,28 +312,28 @@ def window_cell(tokens: int, repeats: int) -> dict:
     from samplewright.core.sampling.metrics import preset_metrics
     from samplewright.qt.workers import EngineThread, EngineWorker
 
-    app = QApplication.instance() or QApplication([])
+    _app = QApplication.instance() or QApplication([])  # kept alive while the loop runs
     thread = EngineThread(EngineWorker(lambda source, progress: load_model(source, progress), Engine, preset_metrics))
     done: list = []
-    thread.worker.model_ready.connect(lambda serial, info: done.append(info))
+    loop = QEventLoop()
+    thread.worker.model_ready.connect(loop.quit)
     thread.worker.audition_ready.connect(lambda serial, result, metrics: done.append(result))
+    thread.worker.audition_ready.connect(loop.quit)
     thread.load_model(None)
-    while not done:
-        app.processEvents()
-        time.sleep(0.005)
+    loop.exec()
     presets = [Preset.from_dict(p) for p in PRESETS]
     best, stall = 0.0, 0.0
+    ticks: list[float] = []
+    timer = QTimer()
+    timer.setInterval(10)
+    timer.timeout.connect(lambda: ticks.append(time.perf_counter()))
     for seed in range(repeats + 1):
         done.clear()
-        ticks: list[float] = []
-        timer = QTimer()
-        timer.setInterval(10)
-        timer.timeout.connect(lambda ticks=ticks: ticks.append(time.perf_counter()))
+        ticks.clear()
         timer.start()
         start = time.perf_counter()
         thread.run_audition(AuditionRequest(demo_passages()[PASSAGE], presets, SAMPLES, tokens, seed))
-        while not done:
-            app.processEvents()
+        loop.exec()
         seconds = time.perf_counter() - start
         timer.stop()
         if seed:  # the first run warms up

@@ -35,7 +35,7 @@ def test_a_six_by_sixteen_audition_uses_every_core_and_the_loop_keeps_running(qt
         timer.timeout.connect(lambda: ticks.append(time.perf_counter()))
         timer.start()
         with qtbot.waitSignal(thread.worker.audition_ready, timeout=60000) as ready:
-            thread.run_audition(AuditionRequest(PASSAGE, presets, 16, 32, 3))
+            thread.run_audition(AuditionRequest(PASSAGE, presets, 16, 12, 3))
         timer.stop()
     finally:
         thread.shutdown()
