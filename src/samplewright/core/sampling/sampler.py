@@ -16,6 +16,8 @@ simulation).
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+
 import numpy as np
 import torch
 
@@ -63,3 +65,22 @@ def draw(log_probs: torch.Tensor, gumbels: torch.Tensor) -> torch.Tensor:
         (rows,) long tensor of token ids.
     """
     return torch.argmax(log_probs + gumbels, dim=-1)
+
+
+def noise_rows(seed: int, sample_indices: Sequence[int], step: int, vocab: int) -> torch.Tensor:
+    """The noise of every row of a batch at ``step``, in one call.
+
+    Row ``r`` gets exactly :func:`noise` ``(seed, sample_indices[r], step, vocab)``:
+    each distinct sample index draws its own keyed stream once, and the
+    Gumbel transform runs once over all of them.
+
+    Returns:
+        float64 tensor of shape ``(len(sample_indices), vocab)``.
+    """
+    distinct = sorted(set(int(i) for i in sample_indices))
+    u = np.stack([uniforms(seed, i, step, vocab) for i in distinct])
+    table = gumbel(u)
+    if len(distinct) == len(sample_indices) and distinct == [int(i) for i in sample_indices]:
+        return table
+    where = {index: row for row, index in enumerate(distinct)}
+    return table.index_select(0, torch.tensor([where[int(i)] for i in sample_indices], dtype=torch.long))
