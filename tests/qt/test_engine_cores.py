@@ -2,8 +2,10 @@
 
 The stall is measured the common-practice way: a 10 ms timer on the window's
 thread records when it fires; the longest gap between firings is how long
-the event loop was kept from running. It is printed; the assertion only uses
-the generous bound of the other event-loop test (tests/qt/test_workflow.py).
+the event loop was kept from running. It is printed (the benchmark prints it
+too); the assertion is not a time but a share: the loop was never held for
+more than a quarter of the run, which holds on a loaded machine as on a quiet
+one, and fails when generation runs on the window's thread.
 """
 
 from __future__ import annotations
@@ -45,4 +47,5 @@ def test_a_six_by_sixteen_audition_uses_every_core_and_the_loop_keeps_running(qt
     assert len(gaps) > 5
     stall_ms, threads = max(gaps) * 1000, thread.worker.threads
     print(f"\nlongest event-loop stall during a 6 x 16 audition: {stall_ms:.0f} ms on {threads} threads")
-    assert max(gaps) < 0.150, f"longest stall {max(gaps) * 1000:.0f} ms"
+    run = ticks[-1] - ticks[0]
+    assert max(gaps) < run / 4, f"the event loop was held {stall_ms:.0f} ms of a {run * 1000:.0f} ms run"
