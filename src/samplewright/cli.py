@@ -192,7 +192,7 @@ def run_audition(args) -> int:
         {
             "name": preset.name,
             "samples": [{"text": s.text, "token_ids": s.token_ids, "stop_reason": s.stop_reason} for s in row],
-            "metrics": preset_metrics(row),
+            "metrics": preset_metrics(row).to_dict(),
         }
         for preset, row in zip(presets, result.samples, strict=False)
     ]
