@@ -17,7 +17,7 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
-from . import cli_exchange
+from . import cli_evaluation, cli_exchange
 from .core import limits
 from .core.errors import SamplewrightError
 from .core.presets import Preset
@@ -105,6 +105,7 @@ def build_parser() -> argparse.ArgumentParser:
     window.set_defaults(handler=run_window)
 
     cli_exchange.register(sub)
+    cli_evaluation.register(sub)
     return parser
 
 
