@@ -111,11 +111,10 @@ def _passage_entries(args, library_dir: Path):
     return passages_of(sets)
 
 
-def _plan(args, presets, sweep=None):
+def _plan(args, passages, presets, sweep=None):
     from .core.evaluation.plan import RunPlan
 
-    library_dir = _library_dir(args)
-    return RunPlan(tuple(presets), _passage_entries(args, library_dir), args.samples, args.tokens, args.seed, sweep)
+    return RunPlan(tuple(presets), passages, args.samples, args.tokens, args.seed, sweep)
 
 
 def run_evaluate(args) -> int:
@@ -124,7 +123,8 @@ def run_evaluate(args) -> int:
         return _execute(args, None)
     if not args.preset:
         raise SamplewrightError("name the presets to compare with --preset (repeatable)")
-    return _execute(args, _plan(args, _preset_entries(args.preset, _library_dir(args))))
+    passages = _passage_entries(args, _library_dir(args))
+    return _execute(args, _plan(args, passages, _preset_entries(args.preset, _library_dir(args))))
 
 
 def run_sweep(args) -> int:
@@ -139,11 +139,12 @@ def run_sweep(args) -> int:
     if not 1 <= len(args.vary) <= 2:
         raise SamplewrightError("a sweep needs --vary FIELD=SPEC once, or twice for a grid")
     axes = tuple(parse_vary(v) for v in args.vary)  # refuses bad values before anything loads
+    passages = _passage_entries(args, _library_dir(args))
     base = _preset_entries(args.preset, _library_dir(args))
     if len(base) != 1:
         raise SamplewrightError("the base preset must be one preset, not a settings file of several")
     presets = [PresetEntry(p) for p in derived_presets(base[0].preset, axes)]
-    return _execute(args, _plan(args, presets, Sweep(base[0].preset, axes)))
+    return _execute(args, _plan(args, passages, presets, Sweep(base[0].preset, axes)))
 
 
 def _engine(args):

@@ -177,3 +177,28 @@ def test_instruction_framing_needs_a_chat_template(tiny_model):
     with pytest.raises(PassageError, match="no chat template"):
         framing.prompt("Dear office", tiny_model.tokenizer)
     assert Framing().prompt("Dear office", tiny_model.tokenizer) == "Dear office"
+
+
+@pytest.mark.model
+def test_temperature_sweep_trades_coherence_for_diversity(default_model):
+    # Fact of the trade (common practice, no source): raising the temperature from 0.3 to 1.5 makes
+    # samples more varied and less probable under the model. The ends are compared, not every step.
+    from samplewright.core.evaluation.plan import Sweep, passages_of
+    from samplewright.core.evaluation.sweep import derived_presets, parse_vary
+
+    engine = Engine(default_model)
+    base = Preset("Notices")
+    axes = (parse_vary("temperature=0.3,1.5"),)
+    plan = RunPlan(
+        tuple(PresetEntry(p) for p in derived_presets(base, axes)),
+        passages_of([s for s in ps.demo_sets() if s.name == "service-notices"]),
+        4,
+        32,
+        0,
+        Sweep(base, axes),
+    )
+    run = run_evaluation(engine, new_run(engine, plan))
+    cold, hot = run.preset_summary(0).pooled, run.preset_summary(1).pooled
+    assert hot["diversity"].value > cold["diversity"].value
+    assert hot["coherence"].value < cold["coherence"].value
+    assert hot["self_bleu"].value < cold["self_bleu"].value
