@@ -1,14 +1,30 @@
 """The evaluation screen on the tiny model: a small sweep draws one point per value and a line,
 clicking a point shows its samples, a derived preset is saved, the report is written."""
 
+import base64
+import io
 from html.parser import HTMLParser
 
 import pytest
+from matplotlib import image as mpimg
 from PySide6.QtCore import QPointF, Qt
 from PySide6.QtGui import QAction
 
 from samplewright.core.library.library import PresetLibrary
 from samplewright.qt.evaluation_view import EvaluationView
+
+
+class _Collect(HTMLParser):
+    def __init__(self):
+        super().__init__()
+        self.text, self.images = [], []
+
+    def handle_starttag(self, tag, attrs):
+        if tag == "img":
+            self.images.append(dict(attrs)["src"])
+
+    def handle_data(self, data):
+        self.text.append(data)
 
 
 class Answers:
@@ -96,9 +112,14 @@ def test_sweep_draws_points_and_line_and_clicks_show_samples(qtbot, view, tmp_pa
     out = tmp_path / "report.html"
     view.answers.save_paths.append(str(out))
     view.write_report()
-    parser = HTMLParser()
-    parser.feed(out.read_text(encoding="utf-8"))
-    assert "Greedy baseline · temperature=0.5" in out.read_text(encoding="utf-8")
+    collected = _Collect()
+    collected.feed(out.read_text(encoding="utf-8"))
+    text = "".join(collected.text)
+    assert all(entry.preset.name in text for entry in view.run.plan.presets)
+    assert collected.images
+    for src in collected.images:
+        assert src.startswith("data:image/png;base64,")
+        assert mpimg.imread(io.BytesIO(base64.b64decode(src.split(",", 1)[1])), format="png").shape[0] > 100
 
 
 def test_axes_switch_and_reopen_saved_run(qtbot, view, tmp_path):
@@ -157,6 +178,11 @@ def test_passage_set_panel_create_paste_skip(qtbot, view, tmp_path):
     (tmp_path / "library" / "passages" / "letters" / "old.txt").write_bytes(b"caf\xe9")
     panel.reload(select="letters")
     assert any("skipped" in panel.passages.item(r).text() for r in range(panel.passages.count()))
+    # The framing is stored with the set and shown.
+    view.answers.texts += ["Write a reply to this letter: {passage}", "You answer for the ferry office."]
+    panel.edit_framing()
+    assert panel.current_set().framing.kind == "instruction"
+    assert "Write a reply" in panel.framing.text()
 
 
 def test_main_window_menu_opens_the_evaluation_window(qtbot, window):

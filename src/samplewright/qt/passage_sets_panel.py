@@ -22,6 +22,7 @@ from PySide6.QtWidgets import (
 )
 
 from ..core.errors import SamplewrightError
+from ..core.evaluation.framing import INSTRUCTION, Framing
 from ..core.evaluation.passage_sets import PassageSet, PassageSets, demo_sets
 from .evaluation_prompts import Prompts
 
@@ -53,6 +54,7 @@ class PassageSetPanel(QWidget):
             ("files", "Add files…", self.add_files, row2),
             ("paste", "Paste passage…", self.paste_passage, row2),
             ("demo", "Add demo sets", self.add_demo_sets, row2),
+            ("framing", "How to ask…", self.edit_framing, row1),
         ):
             button = QPushButton(text)
             button.clicked.connect(slot)
@@ -132,7 +134,7 @@ class PassageSetPanel(QWidget):
         chosen = self.current_set()
         item = self.list.currentItem()
         demo = bool(item and item.data(Qt.UserRole))
-        for key in ("rename", "delete", "files", "paste"):
+        for key in ("rename", "delete", "files", "paste", "framing"):
             self.buttons[key].setEnabled(chosen is not None and not demo)
         if chosen is None:
             self.framing.setText("")
@@ -205,6 +207,31 @@ class PassageSetPanel(QWidget):
         if text:
             self._guard(lambda: self.sets.add_passage(chosen.name, name, text))
             self.reload(select=chosen.name)
+
+    def edit_framing(self) -> None:
+        """Ask how the model is asked for this set: an instruction (with the model's chat
+        template) or, left empty, plain continuation."""
+        chosen = self.current_set()
+        if chosen is None:
+            return
+        instruction = self.prompts.ask_text(
+            "How the assistant is asked",
+            "Instruction, with {passage} where the passage goes (empty: plain continuation):",
+            chosen.framing.instruction,
+        )
+        if instruction is None:
+            return
+        if not instruction.strip():
+            framing = Framing()
+        else:
+            system = self.prompts.ask_text(
+                "How the assistant is asked", "System message (optional):", chosen.framing.system
+            )
+            if system is None:
+                return
+            framing = Framing(INSTRUCTION, system, instruction)
+        self._guard(lambda: self.sets.set_framing(chosen.name, framing))
+        self.reload(select=chosen.name)
 
     def add_demo_sets(self) -> None:
         """Copy the demo sets into the library."""
