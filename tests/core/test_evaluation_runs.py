@@ -202,3 +202,37 @@ def test_temperature_sweep_trades_coherence_for_diversity(default_model):
     assert hot["diversity"].value > cold["diversity"].value
     assert hot["coherence"].value < cold["coherence"].value
     assert hot["self_bleu"].value < cold["self_bleu"].value
+
+
+CHAT_TEMPLATE = (
+    "{% for m in messages %}<|{{ m['role'] }}|>{{ m['content'] }}\n{% endfor %}"
+    "{% if add_generation_prompt %}<|assistant|>{% endif %}"
+)
+
+
+def test_instruction_framing_uses_the_chat_template_for_samples_and_coherence(tiny_model):
+    # Reference: transformers' apply_chat_template renders the same messages to the same text, and the
+    # first token's raw probability is the model's at the end of that framed prompt.
+    import copy
+
+    from samplewright.core.engine.model import model_from_parts
+
+    tokenizer = copy.deepcopy(tiny_model.tokenizer)
+    tokenizer.chat_template = CHAT_TEMPLATE
+    chat = model_from_parts(tiny_model.model, tokenizer, "tiny chat model")
+    framing = Framing("instruction", "You answer for the ferry office.", "Reply to: {passage}")
+    messages = [
+        {"role": "system", "content": "You answer for the ferry office."},
+        {"role": "user", "content": "Reply to: Dear office"},
+    ]
+    expected = tokenizer.apply_chat_template(messages, tokenize=False, add_generation_prompt=True)
+    assert framing.prompt("Dear office", tokenizer) == expected
+    engine = Engine(chat)
+    plan = RunPlan((PresetEntry(Preset("A")),), (PassageEntry("s", "p", "Dear office", framing),), 1, 3, 0)
+    run = run_evaluation(engine, new_run(engine, plan))
+    prompt = tokenizer(expected, add_special_tokens=False)["input_ids"]
+    assert run.outcomes[0].prompt_tokens == len(prompt)
+    first = run.outcomes[0].samples[0][0].tokens[0]
+    with torch.no_grad():
+        logp = torch.log_softmax(chat.model(input_ids=torch.tensor([prompt])).logits[0, -1].double(), dim=-1)
+    assert math.log(first.raw_p) == pytest.approx(float(logp[first.token_id]), abs=1e-5)
