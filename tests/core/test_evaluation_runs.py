@@ -193,7 +193,7 @@ def test_temperature_sweep_trades_coherence_for_diversity(default_model):
         tuple(PresetEntry(p) for p in derived_presets(base, axes)),
         passages_of([s for s in ps.demo_sets() if s.name == "service-notices"]),
         4,
-        32,
+        24,
         0,
         Sweep(base, axes),
     )
