@@ -159,3 +159,20 @@ def test_report_parses_names_presets_decodes_images_and_escapes_samples():
         picture = mpimg.imread(io.BytesIO(base64.b64decode(src.split(",", 1)[1])), format="png")
         assert picture.shape[0] > 100 and picture.shape[1] > 100
     assert "http://" not in html and "https://" not in html  # opens without a network
+
+
+def test_resume_finishes_a_cut_run_file_identically(capsys, tiny_model_folder, passages, library, tmp_path):
+    # Common practice: resuming gives what an uninterrupted run gives. The run file is cut back to
+    # its first passage, as a cancel after one passage leaves it, then resumed from the command line.
+    out_file = tmp_path / "run.json"
+    argv = ["--passages", passages, "--preset", "Greedy baseline", "--samples", 2, "--tokens", 5,
+            "--model", tiny_model_folder, "--json"]  # fmt: skip
+    code, whole, err = run(capsys, "evaluate", *argv, "--out", out_file)
+    assert code == 0, err
+    data = json.loads(out_file.read_text(encoding="utf-8"))
+    data["passages_done"] = data["passages_done"][:1]
+    out_file.write_text(json.dumps(data), encoding="utf-8")
+    code, resumed, err = run(capsys, "evaluate", "--resume", out_file, "--model", tiny_model_folder, "--json")
+    assert code == 0, err
+    assert json.loads(resumed)["presets"] == json.loads(whole)["presets"]
+    assert json.loads(out_file.read_text(encoding="utf-8"))["finished"] is True
