@@ -3,7 +3,9 @@
 Subcommands: ``audition`` (generate samples for several presets), ``step``
 (the next-token distribution under each preset), ``check`` (validate a
 preset or settings file), ``window`` (open the desktop window), and the
-library/exchange commands registered by :mod:`samplewright.cli_exchange`.
+library/exchange commands registered by :mod:`samplewright.cli_exchange`,
+and the evaluation commands (``evaluate``, ``sweep``, ``passages``, ``report``)
+registered by :mod:`samplewright.cli_evaluation`.
 
 Errors print one line on stderr and exit with status 2; never a traceback.
 """
