@@ -37,6 +37,7 @@ test-core: $(STAMP)
 
 benchmark: $(STAMP)
 	$(PY) benchmarks/audition_speed.py
+	$(PY) benchmarks/evaluation_speed.py
 
 # Concurrent saves, conflicts, deletes and restores on one folder; prints lost/corrupt counts.
 stress: $(STAMP)

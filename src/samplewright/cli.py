@@ -3,7 +3,9 @@
 Subcommands: ``audition`` (generate samples for several presets), ``step``
 (the next-token distribution under each preset), ``check`` (validate a
 preset or settings file), ``window`` (open the desktop window), and the
-library/exchange commands registered by :mod:`samplewright.cli_exchange`.
+library/exchange commands registered by :mod:`samplewright.cli_exchange`,
+and the evaluation commands (``evaluate``, ``sweep``, ``passages``, ``report``)
+registered by :mod:`samplewright.cli_evaluation`.
 
 Errors print one line on stderr and exit with status 2; never a traceback.
 """
@@ -17,7 +19,7 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
-from . import cli_exchange
+from . import cli_evaluation, cli_exchange
 from .core import limits
 from .core.errors import SamplewrightError
 from .core.presets import Preset
@@ -111,6 +113,7 @@ def build_parser() -> argparse.ArgumentParser:
     window.set_defaults(handler=run_window)
 
     cli_exchange.register(sub)
+    cli_evaluation.register(sub)
     return parser
 
 
@@ -198,7 +201,7 @@ def run_audition(args) -> int:
         {
             "name": preset.name,
             "samples": [{"text": s.text, "token_ids": s.token_ids, "stop_reason": s.stop_reason} for s in row],
-            "metrics": preset_metrics(row),
+            "metrics": preset_metrics(row).to_dict(),
         }
         for preset, row in zip(presets, result.samples, strict=False)
     ]

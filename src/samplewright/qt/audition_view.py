@@ -32,6 +32,7 @@ from PySide6.QtWidgets import (
 
 from ..core.engine.session import AuditionSession
 from ..core.engine.token_text import GrowingText, Vocabulary
+from ..core.sampling.metrics import PresetMetrics
 from . import palette
 
 COLUMN_WIDTH = 176
@@ -59,19 +60,17 @@ def _fmt(value, digits: int = 2) -> str:
 METRIC_LINES = (("distinct",), ("self_bleu", "seq_rep_4"), ("mean_surprisal_bits", "mean_kept"), ("mean_length",))
 
 
-def metrics_text(metrics: dict | None) -> str:
+def metrics_text(metrics: PresetMetrics | None) -> str:
     """Four short lines of a preset's metrics; '–' where a value is undefined."""
-    if not metrics:
+    if metrics is None:
         return "metrics appear when the run ends\n\n\n"
-    reasons = metrics.get("stop_reasons") or {}
-    ended = ", ".join(f"{k} {v}" for k, v in sorted(reasons.items())) or "–"
-    distinct = " / ".join(_fmt(metrics.get(f"distinct_{n}")) for n in (1, 2, 3))
+    ended = ", ".join(f"{k} {v}" for k, v in sorted(metrics.stop_reasons.items())) or "–"
+    distinct = " / ".join(_fmt(v) for v in (metrics.distinct_1, metrics.distinct_2, metrics.distinct_3))
     return (
         f"distinct-1/2/3 {distinct}\n"
-        f"self-BLEU {_fmt(metrics.get('self_bleu'))} · repeats {_fmt(metrics.get('seq_rep_4'))}\n"
-        f"surprisal {_fmt(metrics.get('mean_surprisal_bits'), 1)} bits · kept "
-        f"{_fmt(metrics.get('mean_kept'), 1)}\n"
-        f"length {_fmt(metrics.get('mean_length'), 1)} · ended: {ended}"
+        f"self-BLEU {_fmt(metrics.self_bleu)} · repeats {_fmt(metrics.seq_rep_4)}\n"
+        f"surprisal {_fmt(metrics.mean_surprisal_bits, 1)} bits · kept {_fmt(metrics.mean_kept, 1)}\n"
+        f"length {_fmt(metrics.mean_length, 1)} · ended: {ended}"
     )
 
 
@@ -261,7 +260,7 @@ class ColumnHeader(QFrame):
         for line in self.metric_lines:
             layout.addWidget(line)
 
-    def set_metrics(self, metrics: dict | None) -> None:
+    def set_metrics(self, metrics: PresetMetrics | None) -> None:
         """Show the preset's metrics, one line per group; hovering a line explains its measures."""
         for line, text in zip(self.metric_lines, metrics_text(metrics).split("\n"), strict=True):
             line.setText(text)

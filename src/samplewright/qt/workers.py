@@ -130,6 +130,11 @@ class EngineWorker(QObject):
         #: torch threads the engine thread uses (set when a model loads).
         self.threads = 0
 
+    @property
+    def loaded_model(self):
+        """The loaded model, or None before one is ready (the evaluation screen uses it)."""
+        return self._engine.loaded if self._engine is not None else None
+
     def cancel(self, serial: int) -> None:
         """Stop the job with this serial (safe to call from any thread)."""
         self.cancelled.add(serial)

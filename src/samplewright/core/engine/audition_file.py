@@ -33,6 +33,7 @@ from ..errors import SamplewrightError
 from ..library.storage import BadContent, atomic_write, dump_json, parse_json, read_limited
 from ..presets import Preset, PresetError, now_iso
 from ..results import AuditionRequest, Sample, TokenStep
+from ..sampling.metrics import PresetMetrics
 from .session import AuditionSession
 
 FORMAT = "samplewright-audition"
@@ -51,7 +52,7 @@ class SavedAudition:
 
     request: AuditionRequest
     samples: list[list[Sample]]
-    metrics: list[dict | None]
+    metrics: list[PresetMetrics | None]
     record_ids: list[str | None]
     drafts: list[bool]
     seeds: list[int]
@@ -101,7 +102,7 @@ def audition_dict(
                 "record_id": session.record_ids[column],
                 "draft": session.drafts[column],
                 "seed": session.seeds[column],
-                "metrics": _plain(session.metrics[column]),
+                "metrics": _plain(metrics.to_dict()) if (metrics := session.metrics[column]) else None,
                 "samples": [
                     {
                         "stop_reason": s.stop_reason,
@@ -195,7 +196,7 @@ def _saved(data: dict) -> SavedAudition:
     return SavedAudition(
         request=request,
         samples=samples,
-        metrics=[c["metrics"] for c in columns],
+        metrics=[PresetMetrics.from_dict(c["metrics"]) if c["metrics"] else None for c in columns],
         record_ids=[c["record_id"] for c in columns],
         drafts=[bool(c["draft"]) for c in columns],
         seeds=[int(c["seed"]) for c in columns],

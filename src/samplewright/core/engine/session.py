@@ -16,11 +16,14 @@ from __future__ import annotations
 import dataclasses
 from collections.abc import Sequence
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from ..events import Emitter
 from ..presets import Preset
 from ..results import AuditionRequest, AuditionResult, Sample, TokenEvent
+
+if TYPE_CHECKING:
+    from ..sampling.metrics import PresetMetrics
 
 
 @dataclasses.dataclass(frozen=True)
@@ -57,7 +60,7 @@ class AuditionSession:
         self.running = False
         self.presets: list[Preset] = []
         self.samples: list[list[Sample]] = []
-        self.metrics: list[dict[str, Any] | None] = []
+        self.metrics: list[PresetMetrics | None] = []
         self.passage = ""
         self.passage_ids: list[int] = []
         self.passage_dropped = 0
@@ -153,7 +156,7 @@ class AuditionSession:
             self.progress.emit(self.done_tokens, self.total_tokens)
         return True
 
-    def finish(self, serial: int, result: AuditionResult, metrics: Sequence[dict | None]) -> bool:
+    def finish(self, serial: int, result: AuditionResult, metrics: Sequence[PresetMetrics | None]) -> bool:
         """Take the run's final samples and metrics; False for a stale serial."""
         if serial != self.serial or not self.running:
             return False

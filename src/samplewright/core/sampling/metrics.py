@@ -19,10 +19,17 @@ References:
         n-grams over model tokens, averaged over samples with n-grams.
     Surprisal: Shannon (1948). Mean of -log2 p_raw(token) over generated
         tokens, under the unshaped model at temperature 1.
+    Coherence: Su & Collier (2023), "Contrastive Search Is What You Need for
+        Neural Text Generation", TMLR: the mean log-probability (nats) of the
+        sample's tokens under the unshaped model at temperature 1.
+    Diversity: Su et al. (2022), "A Contrastive Framework for Neural Text
+        Generation", NeurIPS 2022: the product over n = 2..4 of (1 - rep-n),
+        rep-n = 1 - unique n-grams / n-grams of one text (whitespace words).
 """
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections import Counter
 from collections.abc import Iterable, Sequence
@@ -98,24 +105,97 @@ def mean_surprisal_bits(raw_probs: Iterable[float]) -> float | None:
     return float(np.mean(values)) if values else None
 
 
-def preset_metrics(samples: Sequence[Sample]) -> dict:
-    """All metrics of one preset's samples, plus ``stop_reasons`` counts.
+def coherence(raw_probs: Iterable[float]) -> float | None:
+    """Mean natural-log probability of the drawn tokens under the unshaped model
+    (Su & Collier 2023); ``None`` when there is no token."""
+    values = [math.log(p) if p > 0 else -math.inf for p in raw_probs]
+    return float(np.mean(values)) if values else None
 
-    Returns:
-        A dict with the keys of ``METRIC_KEYS`` (float or None) and
-        ``stop_reasons`` (reason -> count).
-    """
+
+def rep_n(words: Sequence[str], n: int) -> float | None:
+    """rep-n of one word list (Su et al. 2022): 1 - unique n-grams / n-grams;
+    ``None`` when it has fewer than n words."""
+    grams = _ngrams(list(words), n)
+    if not grams:
+        return None
+    return 1.0 - len(set(grams)) / len(grams)
+
+
+def diversity(text: str) -> float | None:
+    """Diversity of one text (Su et al. 2022): Π over n = 2..4 of (1 - rep-n) over
+    lowercased whitespace words; ``None`` for a text of fewer than 4 words."""
+    words = text.lower().split()
+    if len(words) < 4:
+        return None
+    value = 1.0
+    for n in (2, 3, 4):
+        value *= 1.0 - (rep_n(words, n) or 0.0)  # defined: the text has at least n words
+    return value
+
+
+#: The rule for a degenerate sample: a token 4-gram seen this many times, or an
+#: end on EOS within this many tokens.
+DEGENERATE_REPEATS = 3
+DEGENERATE_EARLY_END = 5
+
+
+def is_degenerate(token_ids: Sequence[int], stop_reason: str | None) -> bool:
+    """True when one model-token 4-gram occurs three or more times in the sample,
+    or the sample ended on EOS before writing 5 tokens (see docs/evaluation.md)."""
+    if stop_reason == "eos" and len(token_ids) < DEGENERATE_EARLY_END:
+        return True
+    counts = Counter(_ngrams(list(token_ids), 4))
+    return bool(counts) and max(counts.values()) >= DEGENERATE_REPEATS
+
+
+@dataclasses.dataclass(frozen=True)
+class PresetMetrics:
+    """The measures of one preset's samples of one audition; ``None`` where undefined."""
+
+    distinct_1: float | None
+    distinct_2: float | None
+    distinct_3: float | None
+    self_bleu: float | None
+    seq_rep_4: float | None
+    mean_surprisal_bits: float | None
+    mean_kept: float | None
+    mean_length: float | None
+    coherence: float | None = None
+    stop_reasons: dict[str, int] = dataclasses.field(default_factory=dict)
+
+    def value(self, key: str) -> float | None:
+        """One measure by its key (one of ``METRIC_KEYS`` or ``"coherence"``)."""
+        if key not in METRIC_KEYS and key != "coherence":
+            raise KeyError(key)
+        return getattr(self, key)
+
+    def to_dict(self) -> dict:
+        """Plain JSON form: every key of ``METRIC_KEYS``, ``coherence`` and ``stop_reasons``."""
+        return dataclasses.asdict(self)
+
+    @classmethod
+    def from_dict(cls, data: dict) -> PresetMetrics:
+        """Read back :meth:`to_dict`'s form; a missing measure is None (undefined)."""
+        values = {f.name: data.get(f.name) for f in dataclasses.fields(cls) if f.name != "stop_reasons"}
+        numbers = {k: (None if v is None else float(v)) for k, v in values.items()}
+        reasons = {str(k): int(v) for k, v in (data.get("stop_reasons") or {}).items()}
+        return cls(**numbers, stop_reasons=reasons)
+
+
+def preset_metrics(samples: Sequence[Sample]) -> PresetMetrics:
+    """All metrics of one preset's samples, with the counts of stop reasons."""
     texts = [s.text for s in samples]
     tokens = [t for s in samples for t in s.tokens]
     reasons = Counter(s.stop_reason for s in samples if s.stop_reason)
-    return {
-        "distinct_1": distinct_n(texts, 1),
-        "distinct_2": distinct_n(texts, 2),
-        "distinct_3": distinct_n(texts, 3),
-        "self_bleu": self_bleu(texts),
-        "seq_rep_4": seq_rep_n([s.token_ids for s in samples], 4),
-        "mean_surprisal_bits": mean_surprisal_bits(t.raw_p for t in tokens),
-        "mean_kept": float(np.mean([t.kept for t in tokens])) if tokens else None,
-        "mean_length": float(np.mean([len(s.tokens) for s in samples])) if samples else None,
-        "stop_reasons": {r: reasons[r] for r in STOP_REASONS if reasons[r]},
-    }
+    return PresetMetrics(
+        distinct_1=distinct_n(texts, 1),
+        distinct_2=distinct_n(texts, 2),
+        distinct_3=distinct_n(texts, 3),
+        self_bleu=self_bleu(texts),
+        seq_rep_4=seq_rep_n([s.token_ids for s in samples], 4),
+        mean_surprisal_bits=mean_surprisal_bits(t.raw_p for t in tokens),
+        mean_kept=float(np.mean([t.kept for t in tokens])) if tokens else None,
+        mean_length=float(np.mean([len(s.tokens) for s in samples])) if samples else None,
+        coherence=coherence(t.raw_p for t in tokens),
+        stop_reasons={r: reasons[r] for r in STOP_REASONS if reasons[r]},
+    )
