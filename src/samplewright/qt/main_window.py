@@ -30,7 +30,6 @@ from .audition_controller import AuditionController
 from .audition_controls import QtAuditionControls
 from .audition_view import QtAuditionGrid
 from .evaluation_hook import add_evaluation_action
-from .evaluation_hook import add_evaluation_action
 from .library_controller import Favourites, LibraryController
 from .library_dialogs import captioned
 from .library_folder import LibraryFolderController, LibraryInUse, QtLibraryBox, open_first_library
@@ -91,7 +90,6 @@ class MainWindow(QMainWindow):
         self._build_parts()
         self._build_commands()
         add_evaluation_action(self)  # the evaluation screen's menu entry, in the Audition menu
-        add_evaluation_action(self)
         self._wire()
         self.state.restore_state()
         self.folders.show_library_folder()
