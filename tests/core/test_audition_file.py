@@ -18,6 +18,7 @@ from samplewright.core.engine.audition_file import (
 from samplewright.core.engine.session import AuditionSession
 from samplewright.core.presets import Preset
 from samplewright.core.results import AuditionRequest, AuditionResult, Sample, TokenStep
+from samplewright.core.sampling.metrics import PresetMetrics
 
 
 def finished_session(tmp_path) -> AuditionSession:
@@ -30,7 +31,7 @@ def finished_session(tmp_path) -> AuditionSession:
         for c in range(2)
     ]
     result = AuditionResult(request, [1, 2, 3], 0, samples)
-    metrics = [{"distinct_1": 1.0, "self_bleu": math.nan, "stop_reasons": {"length": 2}}, None]
+    metrics = [PresetMetrics.from_dict({"distinct_1": 1.0, "self_bleu": math.nan, "stop_reasons": {"length": 2}}), None]
     assert session.finish(serial, result, metrics)
     return session
 
@@ -48,7 +49,8 @@ def test_an_audition_comes_back_as_it_was_saved(tmp_path):
     assert again.request.seed == 42 and again.seeds == [42, 42] and again.token_limit(0) == (2, "preset")
     assert again.passage_ids == [1, 2, 3] and again.library_folder == tmp_path
     # A non-finite metric (self-BLEU of a single sample is undefined) is kept as "undefined", not NaN.
-    assert again.metrics[0]["self_bleu"] is None and again.metrics[0]["distinct_1"] == 1.0
+    assert again.metrics[0].self_bleu is None and again.metrics[0].distinct_1 == 1.0
+    assert again.metrics[0].stop_reasons == {"length": 2} and again.metrics[1] is None
     assert saved.model == "tiny"
     assert json.loads(path.read_text(encoding="utf-8"))["format"] == FORMAT
 
