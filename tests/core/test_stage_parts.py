@@ -11,14 +11,14 @@ from samplewright.core.fields import NumberField
 from samplewright.core.presets import DEFAULT_ORDER, FIELDS
 from samplewright.core.results import StageEffect
 from samplewright.core.sampling import inspection
-from samplewright.core.sampling.stage_parts import STAGE_PARTS, is_off, stages_kept, switched
+from samplewright.core.sampling.stage_parts import chain_parts, is_off, stages_kept, switched
 
 # A four-token distribution worked by hand: probabilities 0.5, 0.3, 0.15, 0.05.
 PROBS = np.array([0.5, 0.3, 0.15, 0.05])
 
 
 def test_every_field_of_the_chain_belongs_to_exactly_one_stage():
-    fields = [f for part in STAGE_PARTS.values() for f in part.fields]
+    fields = [f for part in chain_parts().values() for f in part.fields]
     assert sorted(fields) == sorted(set(fields))
     # The numeric parameters that are no stage's: the preset's token limit only.
     numeric = {f for f, spec in FIELDS.items() if isinstance(spec, NumberField)}

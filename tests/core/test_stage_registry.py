@@ -13,6 +13,7 @@ from samplewright.core.fields import NumberField
 from samplewright.core.presets import DEFAULT_ORDER, FIELDS
 from samplewright.core.sampling import inspection, registry
 from samplewright.core.sampling.chain import RowHistory, RowParams, run_chain
+from samplewright.core.sampling.stage_parts import chain_parts, is_off, switched
 
 VOCAB = 40
 STAGES = registry.stages()
@@ -96,6 +97,38 @@ def test_registering_a_clashing_stage_is_refused():
     assert "second_penalties" not in registry.names()
 
 
+def test_a_stage_whose_starting_values_leave_it_off_or_out_of_range_is_refused():
+    # Switching a stage on in the editor must make it act, with a value its field allows.
+    strength = NumberField("drop_strength", 0.0, 1.0, 0.0, "A test parameter.", neutral=0.0)
+    entry = registry.Stage(
+        name="starts_off",
+        label="starts off",
+        summary="A test stage.",
+        source="none: invented for this test",
+        mark=registry.StageMark(colour="#777777", shape="plus", hatch="dots", glyph="+"),
+        fields=(strength,),
+        apply=lambda logits, params, history: logits,
+    )
+    with pytest.raises(ValueError, match="other than neutral"):
+        registry.register(entry)
+    with pytest.raises(ValueError, match="drop_strength=2"):
+        registry.register(registry.Stage(**{**entry.__dict__, "starting": (("drop_strength", 2.0),)}))
+    assert "starts_off" not in registry.names()
+
+
+def test_every_built_in_stage_switched_on_acts_and_switched_off_is_neutral():
+    # Each stage's starting value lies in its range and is not its neutral value (common practice:
+    # switching a stage on gives it a typical value to tune), and the editor's parts show the entry.
+    parts = chain_parts()
+    assert tuple(parts) == DEFAULT_ORDER
+    for stage in STAGES:
+        on = switched(Preset("plain"), stage.name, True)
+        assert not is_off(on, stage.name) and is_off(switched(on, stage.name, False), stage.name)
+        part = parts[stage.name]
+        assert (part.label, part.explanation, part.starting) == (stage.label, stage.summary, stage.switched_on)
+        assert part.fields == tuple(f.name for f in stage.fields)
+
+
 # --- A new stage is one entry plus its function --------------------------------------------------
 # A throwaway stage invented for this test (no paper): it removes the live token with the highest id.
 THROWAWAY = "drop_highest_id"
@@ -136,6 +169,22 @@ def test_a_registered_stage_runs_through_shape_and_the_step_view(throwaway_stage
     # The step view attributes the cut to the new stage, by its name.
     view = inspection.step_view(np.array([1.0, 2.0, 3.0, 4.0]), [preset], texts=["a", "b", "c", "d"], top=4)
     assert [row.cut_by for row in view.presets[0].top] == [THROWAWAY, None, None, None]
+
+
+def test_a_registered_stage_gets_its_block_in_the_editors_chain(throwaway_stage):
+    # docs/sampling-chain.md, "Adding a stage": the editor's blocks come from the registry, so the
+    # new stage shows with its own label and summary after the built-in ones, and nothing else is added.
+    parts = chain_parts()
+    assert tuple(parts) == DEFAULT_ORDER + (THROWAWAY,)
+    part = parts[THROWAWAY]
+    assert (part.label, part.explanation, part.fields) == (throwaway_stage.label, throwaway_stage.summary, ())
+    # A stage without parameters always acts: it is never shown as off.
+    assert not is_off(Preset("with it", order=DEFAULT_ORDER + (THROWAWAY,)), THROWAWAY)
+    registry.unregister(THROWAWAY)
+    try:
+        assert THROWAWAY not in chain_parts()
+    finally:
+        registry.register(throwaway_stage)
 
 
 def test_a_registered_stage_takes_its_place_in_each_rows_order(throwaway_stage):

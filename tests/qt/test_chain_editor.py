@@ -11,7 +11,7 @@ from test_presets_ui import retype
 from test_workflow import generate, tick, untick_all, with_tokens
 
 from samplewright.core.presets import Preset
-from samplewright.core.sampling.stage_parts import STAGE_PARTS
+from samplewright.core.sampling.stage_parts import chain_parts
 
 
 def edit(window, preset):
@@ -78,7 +78,7 @@ def test_blocks_follow_the_preset_order_and_off_stages_are_folded(window):
     assert not chain.blocks["min_p"].switch.isChecked() and not chain.blocks["min_p"].fields.isVisible()
     assert "Off" in chain.blocks["min_p"].explanation.text()
     # The penalties block holds its parts.
-    assert set(STAGE_PARTS["penalties"].fields) == set(chain.blocks["penalties"].inputs)
+    assert set(chain_parts()["penalties"].fields) == set(chain.blocks["penalties"].inputs)
     # The header holds the preset's own settings, above the chain.
     header = window.editor.inputs["max_new_tokens"]
     assert header.mapTo(window.editor, QPoint(0, 0)).y() < chain.mapTo(window.editor, QPoint(0, 0)).y()

@@ -7,9 +7,11 @@ import json
 import pytest
 from PySide6.QtCore import Qt
 
+from samplewright.core.engines.fidelity import DIFFERS, EXACT, EXACT_EXCEPT_TIES, THRESHOLD
 from samplewright.core.errors import LibraryError
 from samplewright.core.library.settings_file import check_file, read_settings
-from samplewright.core.presets import FIELDS, PresetError, validate_field
+from samplewright.core.presets import FIELDS, Preset, PresetError, validate_field
+from samplewright.qt.prompts import ExportChoice
 
 
 def highlight_first(window):
@@ -146,7 +148,7 @@ def test_export_writes_a_file_the_core_check_accepts(window, tmp_path):
     target = tmp_path / "shared" / "harbour-presets.json"
     target.parent.mkdir()
     window.prompts.ask_save_path = lambda *args: str(target)
-    window.prompts.choose_export_target = lambda presets, add_closest: "samplewright"
+    window.prompts.choose_export_target = lambda presets, add_closest: ExportChoice("samplewright")
     window.menu_actions["export"].trigger()
     assert window.errors == []
     verdict = check_file(target)
@@ -263,13 +265,60 @@ def test_export_for_transformers_writes_a_folder_generation_config_reads(window,
     record = next(r for r in window.library.records() if r.preset.top_p is not None)
     window.library_list.set_chosen([record.id])
     seen = []
-    window.prompts.choose_export_target = lambda presets, add_closest: seen.append(presets) or "transformers"
+    window.prompts.choose_export_target = lambda presets, add_closest: (
+        seen.append(presets) or ExportChoice("transformers")
+    )
     window.prompts.ask_folder = lambda *args: str(tmp_path / "for-transformers")
     window.menu_actions["export"].trigger()
     assert window.errors == [] and seen == [[record.preset]]
     written = [p.parent for p in (tmp_path / "for-transformers").rglob("generation_config.json")]
     assert len(written) == 1
     assert GenerationConfig.from_pretrained(written[0]).top_p == record.preset.top_p
+
+
+def test_the_after_export_check_reports_each_folders_verdict(window, qtbot, tmp_path):
+    # The check runs each written folder through transformers' own generate() processors
+    # (GenerationConfig.from_pretrained, then the model's logits processors) on the tiny model and
+    # compares them with samplewright's chain. Temperature then top-p is defined the same way in both
+    # (Ackley, Hinton & Sejnowski 1985; Holtzman et al. 2020, eq. 2) and transformers applies them in
+    # that order (its TemperatureLogitsWarper and TopPLogitsWarper), so that verdict is not "differs";
+    # transformers has no frequency penalty (its GenerationConfig has no such field), so the export
+    # drops it and the other preset's sampled tokens, which repeat, make the distributions differ.
+    kept = Preset("check kept", temperature=0.7, top_p=0.9)
+    dropped = Preset("check dropped", temperature=0.9, frequency_penalty=0.6)
+    ids = [window.library_list.push_add(preset) for preset in (kept, dropped)]
+    window.library_list.set_chosen(ids)
+    window.prompts.choose_export_target = lambda presets, add_closest: ExportChoice("transformers", check=True)
+    window.prompts.ask_folder = lambda *args: str(tmp_path / "checked")
+    shown = []
+    window.prompts.show_info = lambda title, text: shown.append(text)
+    with qtbot.waitSignal(window.export_check.finished, timeout=120000) as blocker:
+        window.menu_actions["export"].trigger()
+    window.export_check.shutdown()
+    results = {result.preset: result for result in blocker.args[0]}
+    assert window.errors == [] and all(r.problem is None for r in results.values()), results
+    folders = {p.parent for p in (tmp_path / "checked").rglob("generation_config.json")}
+    assert {r.folder for r in results.values()} == folders and len(folders) == 2
+    same, other = results[kept.name], results[dropped.name]
+    assert same.verdict in (EXACT, EXACT_EXCEPT_TIES) and (same.verdict != EXACT or same.max_tv < THRESHOLD)
+    assert other.verdict == DIFFERS and other.max_tv > THRESHOLD
+    message = window.statusBar().currentMessage()
+    assert f"{kept.name}: {same.verdict}" in message and f"{dropped.name}: differs" in message
+    assert kept.name in shown[0] and dropped.name in shown[0]
+
+
+def test_the_after_export_check_needs_a_passage(window, tmp_path):
+    # Without a passage there is nothing to run the model on: the files are written, the user is told why
+    # no check ran (common practice: say what and why and what to do).
+    record = window.library.records()[0]
+    window.library_list.set_chosen([record.id])
+    window.passage.set_text("")
+    window.prompts.choose_export_target = lambda presets, add_closest: ExportChoice("transformers", check=True)
+    window.prompts.ask_folder = lambda *args: str(tmp_path / "unchecked")
+    window.menu_actions["export"].trigger()
+    assert list((tmp_path / "unchecked").rglob("generation_config.json"))
+    assert len(window.errors) == 1 and "passage is empty" in window.errors[0]
+    assert not window.export_check.running()
 
 
 def test_a_closest_variant_is_added_under_a_free_name_and_ticked(window):

@@ -29,7 +29,7 @@ from PySide6.QtWidgets import (
 
 from ..core.presets import FIELDS
 from ..core.results import StageEffect
-from ..core.sampling.stage_parts import STAGE_PARTS
+from ..core.sampling.stage_parts import StagePart, chain_parts
 
 STAGE_MIME = "application/x-samplewright-stage"
 HELP_STYLE = "color: #505050;"
@@ -65,9 +65,9 @@ class StageBlock(QFrame):
     move_requested = Signal(str, int)
     switch_requested = Signal(str, bool)
 
-    def __init__(self, stage: str, on_edit: Callable[[str, str], None], parent: QWidget | None = None):
+    def __init__(self, part: StagePart, on_edit: Callable[[str, str], None], parent: QWidget | None = None):
         super().__init__(parent)
-        part = STAGE_PARTS[stage]
+        stage = part.name
         self.stage, self.part = stage, part
         self.inputs: dict[str, QLineEdit] = {}
         self.error_labels: dict[str, QLabel] = {}
@@ -86,6 +86,7 @@ class StageBlock(QFrame):
         self.switch.setAccessibleName(f"{part.label} on")
         self.switch.setToolTip(f"Switch {part.label} on (a starting value you then tune) or off (changes nothing)")
         self.switch.clicked.connect(lambda checked: self.switch_requested.emit(stage, checked))
+        self.switch.setEnabled(bool(part.fields))  # a stage without parameters always acts
         self.up, self.down = QToolButton(), QToolButton()
         for button, text, delta, tip in ((self.up, "▲", -1, "earlier"), (self.down, "▼", +1, "later")):
             button.setText(text)
@@ -200,14 +201,14 @@ class ChainView(QWidget):
         super().__init__(parent)
         self.setAcceptDrops(True)
         self.setAccessibleName("Stage order")
-        self.blocks = {stage: StageBlock(stage, on_edit) for stage in STAGE_PARTS}
+        self.blocks = {name: StageBlock(part, on_edit) for name, part in chain_parts().items()}
         self.column = QVBoxLayout(self)
         self.column.setContentsMargins(0, 0, 0, 0)
         self.column.setSpacing(4)
         for block in self.blocks.values():
             block.move_requested.connect(self.move_stage)
             block.switch_requested.connect(self.switch_requested)
-        self.order: list[str] = list(STAGE_PARTS)
+        self.order: list[str] = list(self.blocks)
         self._place()
 
     def set_order(self, order: Sequence[str]) -> None:

@@ -30,6 +30,7 @@ from .audition_controller import AuditionController
 from .audition_controls import QtAuditionControls
 from .audition_view import QtAuditionGrid
 from .evaluation_hook import add_evaluation_action
+from .export_check import ExportChecker
 from .library_controller import Favourites, LibraryController
 from .library_dialogs import captioned
 from .library_folder import LibraryFolderController, LibraryInUse, QtLibraryBox, open_first_library
@@ -166,7 +167,12 @@ class MainWindow(QMainWindow):
             self.engine, self.settings, prompts, self.model_label, self.model_progress, self.passage, self
         )
         model_name = lambda: self.models.info.name if self.models.info else None  # noqa: E731
-        self.presets = PresetController(draft, in_use, self.editor, presets_list, prompts, status, model_name, self)
+        self.export_check = ExportChecker(
+            lambda: self.engine.worker.loaded_model, self.passage.text, prompts, status, self
+        )
+        self.presets = PresetController(
+            draft, in_use, self.editor, presets_list, prompts, status, model_name, self, checker=self.export_check
+        )
         settle, current = self.presets.settle_draft, self.presets.current_record
         self.library_tools = LibraryController(
             in_use, draft, settle, current, presets_list, undo, prompts, status, self
@@ -219,6 +225,7 @@ class MainWindow(QMainWindow):
             # Waiting on the engine can take a moment (a model load stops at its next progress report).
             self.statusBar().showMessage("Closing…")
             self.hide()
+            self.export_check.shutdown()
             self.engine.shutdown()
             self.library_watch.stop()
             self.library_list.cleanup()

@@ -22,6 +22,7 @@ from ..core.library.library import SaveConflict
 from ..core.library.records import PresetRecord
 from ..core.library.settings_file import export_preset_file, read_importable
 from ..core.presets import Preset
+from .export_check import ExportChecker
 from .export_dialog import TARGET_LABELS
 from .library_folder import LibraryInUse
 from .library_panel import QtLibraryList
@@ -58,8 +59,11 @@ class PresetController(QObject):
         status: QStatusBar,
         model_name: Callable[[], str | None],
         parent: QObject | None = None,
+        checker: ExportChecker | None = None,
     ):
         super().__init__(parent)
+        #: Runs the after-export transformers check (None: the check is not offered).
+        self.checker = checker
         self.draft, self.in_use, self.editor, self.library_list = draft, in_use, editor, library_list
         self.prompts, self.status, self.model_name = prompts, status, model_name
         draft.loaded.connect(lambda record: editor.set_preset(record.preset if record else None))
@@ -298,9 +302,10 @@ class PresetController(QObject):
             self.prompts.show_error("Nothing to export", "Tick the presets to export in the list, then try again.")
             return
         presets = [self.library.get(i).preset for i in ids]
-        target = self.prompts.choose_export_target(presets, self.add_for_audition)
-        if target is None:
+        choice = self.prompts.choose_export_target(presets, self.add_for_audition)
+        if choice is None:
             return
+        target = choice.target
         if destination_kind(target, len(presets)) == "folder":
             path = self.prompts.ask_folder(
                 f"Export {len(presets)} preset(s) for {TARGET_LABELS[target]}: choose a folder"
@@ -310,11 +315,13 @@ class PresetController(QObject):
         if not path:
             return
         try:
-            message, _files = write_for_target(presets, target, path, model=self.model_name())
+            message, files = write_for_target(presets, target, path, model=self.model_name())
         except SamplewrightError as error:
             self.prompts.show_error("The export was not written", str(error))
             return
         self.status.showMessage(message, 8000)
+        if choice.check and target == "transformers" and self.checker is not None:
+            self.checker.start(presets, files)
 
     def add_for_audition(self, preset: Preset) -> None:
         """Add ``preset`` (an engine's closest expressible variant) to the library under a free

@@ -29,7 +29,7 @@ from PySide6.QtWidgets import (
 from ..core.fields import NumberField
 from ..core.presets import FIELDS, Preset, PresetError, validate_field
 from ..core.results import StageEffect
-from ..core.sampling.stage_parts import STAGE_PARTS, is_off, switched
+from ..core.sampling.stage_parts import is_off, switched
 from . import palette
 from .chain_editor import ERROR_STYLE, ChainView
 from .difference_view import value_text
@@ -282,9 +282,10 @@ class QtPresetEditor(QWidget):
         """Switch ``stage`` on (its starting values) or off (its neutral values, folded)."""
         block = self.chain.blocks[stage]
         base = self.original or Preset("(none)")
-        values = switched(base.replace(**dict(STAGE_PARTS[stage].neutral)), stage, True) if on else None
-        for field in STAGE_PARTS[stage].fields:
-            value = getattr(values, field) if values is not None else STAGE_PARTS[stage].neutral[field]
+        part = block.part
+        values = switched(base.replace(**dict(part.neutral)), stage, True) if on else None
+        for field in part.fields:
+            value = getattr(values, field) if values is not None else part.neutral[field]
             self._show_value(field, block.inputs[field], value)
             self.errors.pop(field, None)
             self.error_labels[field].hide()

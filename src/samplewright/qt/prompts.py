@@ -8,6 +8,7 @@ modal dialog blocking it.
 
 from __future__ import annotations
 
+import dataclasses
 from pathlib import Path
 
 from PySide6.QtCore import QSettings, Qt
@@ -17,6 +18,19 @@ from .dialogs import ImportPreviewDialog, ask_conflict_choice
 
 #: The window settings key of the folder the file choosers open in.
 LAST_FOLDER_KEY = "files/last_folder"
+
+
+@dataclasses.dataclass(frozen=True)
+class ExportChoice:
+    """What the user chose in the export dialog.
+
+    Attributes:
+        target: the target's name (``samplewright``, ``transformers``, ``vllm``, ``openai-request``).
+        check: run the transformers check on the current passage after writing.
+    """
+
+    target: str
+    check: bool = False
 
 
 class QtPrompts:
@@ -67,15 +81,17 @@ class QtPrompts:
         path, _ = QFileDialog.getSaveFileName(self.parent, title, start, file_filter)
         return self.remember_folder(path or None)
 
-    def choose_export_target(self, presets, add_closest) -> str | None:
+    def choose_export_target(self, presets, add_closest) -> ExportChoice | None:
         """Show the export dialog (targets, each preset's verdict and reasons); the chosen target
-        name, or None when cancelled. ``add_closest(preset)`` is called for each closest
-        expressible variant the user asks to audition."""
+        and whether to check it afterwards, or None when cancelled. ``add_closest(preset)`` is
+        called for each closest expressible variant the user asks to audition."""
         from .export_dialog import ExportDialog
 
-        dialog = ExportDialog(presets, transformers_check=False, parent=self.parent)
+        dialog = ExportDialog(presets, transformers_check=True, parent=self.parent)
         dialog.closest_requested.connect(add_closest)
-        return dialog.target() if dialog.exec() == QDialog.DialogCode.Accepted else None
+        if dialog.exec() != QDialog.DialogCode.Accepted:
+            return None
+        return ExportChoice(dialog.target(), dialog.check_requested())
 
     def ask_folder(self, title: str) -> str | None:
         """Ask for a folder; None when cancelled."""

@@ -3,7 +3,8 @@
 An entry (:class:`Stage`) holds the stage's name in a preset's ``order``, its
 label (the trade's name), how the step view marks a token the stage cut, its
 parameters with their ranges and neutral values (:class:`~..fields.NumberField`),
-the published source, and the function that applies it. The chain, the
+the values the editor gives them when the user switches the stage on, the
+published source, and the function that applies it. The chain, the
 neutral-stage skip, the plot's legend and marks, the preset editor and the
 settings-file schema test all read from here.
 
@@ -73,6 +74,8 @@ class Stage:
         mark: how the step view marks a token this stage cut.
         fields: the stage's parameters, each with its range and neutral value.
         apply: the stage function, ``(logits, params, history) -> logits``.
+        starting: the value the editor gives each field when the user switches the stage on
+            (a field left out starts at its neutral value); at least one must differ from neutral.
     """
 
     name: str
@@ -82,11 +85,17 @@ class Stage:
     mark: StageMark
     fields: tuple[NumberField, ...]
     apply: StageFunction
+    starting: tuple[tuple[str, float], ...] = ()
 
     @property
     def neutral(self) -> dict[str, float]:
         """The value of each field at which the stage changes nothing."""
         return {f.name: f.neutral for f in self.fields if f.neutral is not None}
+
+    @property
+    def switched_on(self) -> dict[str, float]:
+        """The value of each field when the user switches the stage on (neutral unless ``starting`` says)."""
+        return {**self.neutral, **dict(self.starting)}
 
     def is_off(self, preset: Any) -> bool:
         """True when every field holds its neutral value in ``preset`` (a stage without fields always acts)."""
@@ -101,7 +110,8 @@ def register(stage: Stage) -> Stage:
 
     Raises:
         ValueError: a stage of that name exists, a field name is taken, a field
-            has no neutral value, or the mark's shape or hatch is unknown.
+            has no neutral value, the mark's shape or hatch is unknown, or the
+            starting values name an unknown field, leave the range, or leave the stage off.
     """
     if stage.name in _STAGES:
         raise ValueError(f"a stage named {stage.name!r} is registered already")
@@ -113,8 +123,21 @@ def register(stage: Stage) -> Stage:
             raise ValueError(f"field {field.name!r} of stage {stage.name!r} needs a neutral value")
     if stage.mark.shape not in MARK_SHAPES or stage.mark.hatch not in HATCHES:
         raise ValueError(f"stage {stage.name!r}: mark shape must be one of {MARK_SHAPES}, hatch one of {HATCHES}")
+    _check_starting(stage)
     _STAGES[stage.name] = stage
     return stage
+
+
+def _check_starting(stage: Stage) -> None:
+    """Refuse starting values that are not the stage's fields, leave their range, or keep it off."""
+    fields = {f.name: f for f in stage.fields}
+    for name, value in stage.starting:
+        if name not in fields or not fields[name].contains(value):
+            raise ValueError(
+                f"stage {stage.name!r}: starting value {name}={value!r} is not an allowed value of its fields"
+            )
+    if stage.fields and stage.switched_on == stage.neutral:
+        raise ValueError(f"stage {stage.name!r} needs a starting value other than neutral, so switching it on acts")
 
 
 def unregister(name: str) -> None:
@@ -173,6 +196,8 @@ def _one_parameter(name: str) -> StageFunction:
 # Mark colours: the "muted" qualitative scheme of Tol (2021), "Colour Schemes", SRON technical
 # note SRON/EPS/TN/09-002 (hex values from memory), kept apart from the Okabe & Ito colours that
 # tell the presets apart; shape and hatch are the second and third cues, so colour is never the only one.
+# Starting values (what switching a stage on in the editor gives it) are common practice, the middle
+# of what teams usually try, not tuned results.
 
 register(
     Stage(
@@ -221,6 +246,7 @@ register(
             ),
         ),
         apply=_penalties,
+        starting=(("repetition_penalty", 1.1),),
     )
 )
 register(
@@ -242,6 +268,7 @@ register(
             ),
         ),
         apply=_one_parameter("temperature"),
+        starting=(("temperature", 0.8),),
     )
 )
 register(
@@ -263,6 +290,7 @@ register(
             ),
         ),
         apply=_one_parameter("top_k"),
+        starting=(("top_k", 40),),
     )
 )
 register(
@@ -284,6 +312,7 @@ register(
             ),
         ),
         apply=_one_parameter("top_p"),
+        starting=(("top_p", 0.9),),
     )
 )
 register(
@@ -305,6 +334,7 @@ register(
             ),
         ),
         apply=_one_parameter("min_p"),
+        starting=(("min_p", 0.05),),
     )
 )
 register(
@@ -327,5 +357,6 @@ register(
             ),
         ),
         apply=_one_parameter("typical_p"),
+        starting=(("typical_p", 0.9),),
     )
 )

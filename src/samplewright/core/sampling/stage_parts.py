@@ -1,6 +1,9 @@
 """The chain as the editor shows it: each stage's label, plain explanation and
 parameters, whether a preset leaves it off, and what it keeps at one step.
 
+Everything about a stage comes from its entry in :mod:`.registry` (label,
+summary, fields, neutral and starting values), so a new stage needs nothing here.
+
 The editor lays a preset out as its chain, one block per stage in the
 preset's order. A stage is "off" when every one of its parameters sits at the
 value that changes nothing (the chain then skips it); switching it on gives it
@@ -19,13 +22,14 @@ from collections.abc import Mapping, Sequence
 
 import numpy as np
 
-from ..presets import DEFAULT_ORDER, Preset
+from ..presets import Preset
 from ..results import StageEffect
+from . import registry
 
 
 @dataclasses.dataclass(frozen=True)
 class StagePart:
-    """One stage of the chain as the editor presents it.
+    """One stage of the chain as the editor presents it, read from its registry entry.
 
     Attributes:
         name: the stage's name in a preset's ``order``.
@@ -44,67 +48,31 @@ class StagePart:
     starting: Mapping[str, float]
 
 
-# The starting values are common practice (the middle of what teams usually try), not tuned results.
-STAGE_PARTS: dict[str, StagePart] = {
-    part.name: part
-    for part in (
-        StagePart(
-            "penalties",
-            "repetition penalties",
-            "Makes words already used less likely, or forbids repeating a run of tokens.",
-            ("repetition_penalty", "frequency_penalty", "presence_penalty", "no_repeat_ngram_size"),
-            {"repetition_penalty": 1.0, "frequency_penalty": 0.0, "presence_penalty": 0.0, "no_repeat_ngram_size": 0},
-            {"repetition_penalty": 1.1, "frequency_penalty": 0.0, "presence_penalty": 0.0, "no_repeat_ngram_size": 0},
-        ),
-        StagePart(
-            "temperature",
-            "temperature",
-            "Sharpens (below 1) or flattens (above 1) the whole distribution; it removes no token.",
-            ("temperature",),
-            {"temperature": 1.0},
-            {"temperature": 0.8},
-        ),
-        StagePart(
-            "top_k",
-            "top-k",
-            "Keeps only the k most likely tokens.",
-            ("top_k",),
-            {"top_k": 0},
-            {"top_k": 40},
-        ),
-        StagePart(
-            "top_p",
-            "top-p",
-            "Keeps the most likely tokens until together they hold this share of the probability.",
-            ("top_p",),
-            {"top_p": 1.0},
-            {"top_p": 0.9},
-        ),
-        StagePart(
-            "min_p",
-            "min-p",
-            "Drops tokens less likely than this fraction of the most likely token.",
-            ("min_p",),
-            {"min_p": 0.0},
-            {"min_p": 0.05},
-        ),
-        StagePart(
-            "typical_p",
-            "typical sampling",
-            "Keeps the tokens about as surprising as the average, until they hold this share.",
-            ("typical_p",),
-            {"typical_p": 1.0},
-            {"typical_p": 0.9},
-        ),
+def part_of(stage: registry.Stage) -> StagePart:
+    """The editor's view of one registry entry."""
+    return StagePart(
+        name=stage.name,
+        label=stage.label,
+        explanation=stage.summary,
+        fields=tuple(f.name for f in stage.fields),
+        neutral=stage.neutral,
+        starting=stage.switched_on,
     )
-}
-assert tuple(STAGE_PARTS) == DEFAULT_ORDER, "every stage of the chain needs its part"
+
+
+def chain_parts() -> dict[str, StagePart]:
+    """Every registered stage as the editor shows it, by name, in registration order.
+
+    Read from the registry on each call, so a stage registered later (one entry plus its
+    function) gets its block in an editor built afterwards.
+    """
+    return {stage.name: part_of(stage) for stage in registry.stages()}
 
 
 def is_off(preset: Preset, stage: str) -> bool:
-    """Whether ``preset`` leaves ``stage`` at the values that change nothing."""
-    part = STAGE_PARTS[stage]
-    return all(getattr(preset, field) == value for field, value in part.neutral.items())
+    """Whether ``preset`` leaves ``stage`` at the values that change nothing
+    (a stage without parameters always acts, so it is never off)."""
+    return registry.stage(stage).is_off(preset)
 
 
 def switched(preset: Preset, stage: str, on: bool) -> Preset:
@@ -112,8 +80,8 @@ def switched(preset: Preset, stage: str, on: bool) -> Preset:
     a stage already in the wanted state is left as it is."""
     if is_off(preset, stage) != on:
         return preset
-    part = STAGE_PARTS[stage]
-    return preset.replace(**dict(part.starting if on else part.neutral))
+    entry = registry.stage(stage)
+    return preset.replace(**(entry.switched_on if on else entry.neutral))
 
 
 def stages_kept(
