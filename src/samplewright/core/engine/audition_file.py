@@ -30,7 +30,7 @@ from pathlib import Path
 from typing import Any
 
 from ..errors import SamplewrightError
-from ..library.storage import BadContent, atomic_write, dump_json, parse_json, read_limited
+from ..library.storage import atomic_write, dump_json, read_document
 from ..presets import Preset, PresetError, now_iso
 from ..results import AuditionRequest, Sample, TokenStep
 from ..sampling.metrics import PresetMetrics
@@ -165,16 +165,7 @@ def load_audition(path: str | os.PathLike) -> SavedAudition:
         AuditionFileError: missing, unreadable, not an audition file, another version, or damaged.
     """
     path = Path(path).expanduser()
-    try:
-        data = parse_json(read_limited(path, MAX_BYTES))
-    except FileNotFoundError:
-        raise AuditionFileError(f"The audition file {path} does not exist: check the name.") from None
-    except (OSError, BadContent) as exc:
-        raise AuditionFileError(f"Could not read the audition file {path}: {exc}.") from None
-    if not isinstance(data, dict) or data.get("format") != FORMAT:
-        raise AuditionFileError(f"{path} is not a Samplewright audition file (an evaluation run opens with the CLI).")
-    if data.get("version") != VERSION:
-        raise AuditionFileError(f"{path} is an audition file of version {data.get('version')}; this reads {VERSION}.")
+    data = read_document(path, MAX_BYTES, "audition file", FORMAT, VERSION, AuditionFileError)
     try:
         return _saved(data)
     except (KeyError, TypeError, ValueError, IndexError, PresetError) as exc:

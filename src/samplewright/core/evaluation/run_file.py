@@ -15,7 +15,7 @@ import secrets
 from pathlib import Path
 
 from ..errors import SamplewrightError
-from ..library.storage import BadContent, atomic_write, dump_json, parse_json, read_limited
+from ..library.storage import atomic_write, dump_json, read_document
 from .passage_sets import PassageSets
 from .run import FORMAT, FORMAT_VERSION, EvaluationRun
 
@@ -66,18 +66,7 @@ def load_run(path: str | os.PathLike) -> EvaluationRun:
         RunFileError: missing, unreadable, not JSON or not a Samplewright run file.
     """
     path = Path(path).expanduser()
-    try:
-        data = parse_json(read_limited(path, MAX_RUN_BYTES))
-    except FileNotFoundError:
-        raise RunFileError(f"The run file {path} does not exist: check the name.") from None
-    except (OSError, BadContent) as exc:
-        raise RunFileError(f"Could not read the run file {path}: {exc}.") from None
-    if not isinstance(data, dict) or data.get("format") != FORMAT:
-        raise RunFileError(f"{path} is not a Samplewright run file.")
-    if data.get("version") != FORMAT_VERSION:
-        raise RunFileError(
-            f"{path} is a run file of version {data.get('version')}; this program reads {FORMAT_VERSION}."
-        )
+    data = read_document(path, MAX_RUN_BYTES, "run file", FORMAT, FORMAT_VERSION, RunFileError)
     try:
         return EvaluationRun.from_dict(data, path)
     except (KeyError, TypeError, ValueError) as exc:

@@ -375,3 +375,26 @@ def hold_lock(folder: Path, timeout: float, user: str) -> Iterator[None]:
         with contextlib.suppress(OSError):
             os.unlink(folder / OWNER_NOTE_NAME)
         lock.release()
+
+
+def read_document(path: Path, limit: int, kind: str, fmt: str, version: int, error: type[Exception]) -> dict:
+    """Read a JSON file of ours that names its ``format`` and ``version`` (a run or audition file).
+
+    Args:
+        path: the file.
+        limit: largest size read, in bytes.
+        kind: what the user calls it, e.g. ``"run file"``.
+        fmt, version: the ``format`` and ``version`` the file must carry.
+        error: the exception raised, with one line saying what is wrong.
+    """
+    try:
+        data = parse_json(read_limited(path, limit))
+    except FileNotFoundError:
+        raise error(f"The {kind} {path} does not exist: check the name.") from None
+    except (OSError, BadContent) as exc:
+        raise error(f"Could not read the {kind} {path}: {exc}.") from None
+    if not isinstance(data, dict) or data.get("format") != fmt:
+        raise error(f"{path} is not a Samplewright {kind}.")
+    if data.get("version") != version:
+        raise error(f"{path} is a {kind} of version {data.get('version')}; this program reads {version}.")
+    return data
