@@ -52,6 +52,13 @@ def _add_common(parser: argparse.ArgumentParser) -> None:
         metavar="DIR",
         help="preset library folder (default: the one last chosen in the window, else your own)",
     )
+    parser.add_argument(
+        "--instruction",
+        metavar="TEXT",
+        help="ask the model through its chat template with this instruction instead of letting it continue "
+        "the passage; '{passage}' marks where the passage goes (else it follows the instruction)",
+    )
+    parser.add_argument("--system", metavar="TEXT", help="system message before the instruction (needs --instruction)")
     parser.add_argument("--json", action="store_true", help="print one JSON object instead of text")
 
 
@@ -115,6 +122,17 @@ def build_parser() -> argparse.ArgumentParser:
     cli_exchange.register(sub)
     cli_evaluation.register(sub)
     return parser
+
+
+def _framing(args):
+    """How the model is asked: plain continuation unless ``--instruction`` is given."""
+    from .core.framing import INSTRUCTION, Framing
+
+    if args.instruction is None:
+        if args.system:
+            raise SamplewrightError("--system needs --instruction: a plain continuation has no system message")
+        return Framing()
+    return Framing(INSTRUCTION, args.system or "", args.instruction)
 
 
 def _passage(args) -> str:
@@ -190,9 +208,11 @@ def run_audition(args) -> int:
     _check_range("tokens", args.tokens, 1, limits.MAX_NEW_TOKENS)
     if args.seed < 0:
         raise SamplewrightError(f"--seed must be a whole number 0 or more, got {args.seed}")
-    passage, presets = _passage(args), _presets(args)
+    passage, presets, framing = _passage(args), _presets(args), _framing(args)
     engine = _engine(args)
-    request = AuditionRequest(passage, presets, samples=args.samples, max_new_tokens=args.tokens, seed=args.seed)
+    request = AuditionRequest(
+        passage, presets, samples=args.samples, max_new_tokens=args.tokens, seed=args.seed, framing=framing
+    )
     bar = _progress_bar(not args.json)
     result = engine.audition(request, on_token=bar.update if bar else None)
     if bar:
@@ -213,6 +233,7 @@ def run_audition(args) -> int:
                     "precision": engine.loaded.precision,
                     "passage_tokens": len(result.passage_ids),
                     "passage_dropped": result.passage_dropped,
+                    "framing": framing.to_dict(),
                     "presets": report,
                 },
                 ensure_ascii=False,
@@ -284,11 +305,11 @@ def run_step(args) -> int:
     from .core.sampling import registry
 
     _check_range("top", args.top, 1, 200)
-    passage, presets = _passage(args), _presets(args)
+    passage, presets, framing = _passage(args), _presets(args), _framing(args)
     engine = _engine(args)
     tokenizer = engine.loaded.tokenizer
     after = tokenizer.encode(args.after, add_special_tokens=False) if args.after else []
-    view = engine.step(passage, presets, sample_ids=after, top=args.top)
+    view = engine.step(passage, presets, sample_ids=after, top=args.top, framing=framing)
     entries = [
         {
             "name": ps.name,

@@ -10,11 +10,11 @@ import torch
 from samplewright.core.engine.engine import Engine
 from samplewright.core.errors import PassageError
 from samplewright.core.evaluation import passage_sets as ps
-from samplewright.core.evaluation.framing import Framing
 from samplewright.core.evaluation.measures import sample_values
 from samplewright.core.evaluation.plan import PassageEntry, PresetEntry, RunPlan, passage_seed
 from samplewright.core.evaluation.run_file import changes_since, load_run
 from samplewright.core.evaluation.runner import new_run, preset_chunks, run_evaluation
+from samplewright.core.framing import Framing
 from samplewright.core.library.library import PresetLibrary
 from samplewright.core.presets import Preset
 

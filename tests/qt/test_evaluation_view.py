@@ -193,3 +193,19 @@ def test_main_window_menu_opens_the_evaluation_window(qtbot, window):
     assert opened.view.library_dir == window.library.folder
     assert opened.view.loaded_model() is not None  # the main window's model
     opened.close()
+
+
+def test_progress_shows_time_left_while_running(qtbot, view):
+    view.sets_panel.check("newsletter")
+    view.tick_presets(["Greedy baseline"])
+    view.samples.setValue(2)
+    view.tokens.setValue(12)
+    seen = []
+    view.thread.worker.progress.connect(lambda progress: seen.append((view.status.text(), view.progress.format())))
+    view.start_evaluation()
+    qtbot.waitUntil(lambda: not view.running, timeout=60000)
+    assert view.run.finished and seen
+    status, bar = seen[-1]
+    assert status.endswith(" left") and " of " in status and "tokens/s" in status
+    assert bar.startswith("%p% · ") and bar.endswith(" left")
+    assert view.progress.format() == "%p%"  # the finished bar no longer promises time

@@ -7,6 +7,7 @@ import dataclasses
 
 import numpy as np
 
+from .framing import Framing
 from .limits import DEFAULT_NEW_TOKENS, DEFAULT_SAMPLES, DEFAULT_SEED
 from .presets import Preset
 
@@ -59,13 +60,18 @@ class TokenEvent:
 
 @dataclasses.dataclass
 class AuditionRequest:
-    """What to audition: one passage, several presets, N samples each."""
+    """What to audition: one passage, several presets, N samples each.
+
+    ``framing`` says how the model is asked: the engine encodes
+    ``framing.prompt(passage, tokenizer)`` (the passage itself for plain continuation).
+    """
 
     passage: str
     presets: list[Preset]
     samples: int = DEFAULT_SAMPLES
     max_new_tokens: int = DEFAULT_NEW_TOKENS  # budget; a row writes min(budget, preset.max_new_tokens)
     seed: int = DEFAULT_SEED
+    framing: Framing = Framing()
 
 
 @dataclasses.dataclass

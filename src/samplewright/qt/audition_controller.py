@@ -14,6 +14,7 @@ computed again with the typed values (debounced), so a change is seen at once.
 from __future__ import annotations
 
 import contextlib
+import dataclasses
 import random
 from collections.abc import Callable, Sequence
 
@@ -113,6 +114,7 @@ class AuditionController(QObject):
         library_list.chosen_changed.connect(lambda ids: self.update_buttons())
         grid.generate_again_requested.connect(self.generate_all)
         passage.passage_settled.connect(lambda text: self.check_staleness())
+        passage.framing_changed.connect(self.check_staleness)
         self.watched = in_use.library
         in_use.switched.connect(self._follow_library)
         self._follow_library(in_use.library)
@@ -144,6 +146,7 @@ class AuditionController(QObject):
             samples=controls.samples_spin.value(),
             max_new_tokens=controls.tokens_spin.value(),
             seed=controls.seed_spin.value(),
+            framing=self.passage.framing(),
         )
         self.clear_inspection()
         self._start(request, None, [r.id for r in records], drafts, notes)
@@ -177,6 +180,9 @@ class AuditionController(QObject):
             (session.request.passage, session.library_folder),
             (self.passage.text(), library.folder),
         )
+        if report.audition is None and session.request.framing != self.passage.framing():
+            message = "The way the model is asked changed since these samples were written."
+            report = dataclasses.replace(report, audition=message)
         for column, saved in enumerate(report.saved_drafts):
             if saved:
                 session.mark_saved(column)
@@ -285,6 +291,8 @@ class AuditionController(QObject):
             return "The model is still loading (see the status bar). Try again when it is ready."
         if not self.passage.text().strip():
             return "The passage is empty. Type or paste a draft passage, or open one with Ctrl+O."
+        if problem := self.passage.framing_problem():
+            return problem
         if not self.library_list.chosen:
             return f"No preset is ticked. Tick up to {MAX_PRESETS} presets in the list on the left."
         return None
@@ -348,6 +356,7 @@ class AuditionController(QObject):
             tuple(sample.token_ids[: ref.step]),
             sample.tokens[ref.step].token_id,
             top=self.inspector.plot.top_n,
+            framing=self.session.request.framing if self.session.request else None,
         )
         if self._step_serial is None:
             self._send_waiting_step()

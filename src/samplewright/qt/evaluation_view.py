@@ -281,11 +281,9 @@ class EvaluationView(QWidget):
     def _on_progress(self, progress) -> None:
         self.progress.setRange(0, max(1, progress.total_tokens))
         self.progress.setValue(progress.done_tokens)
-        left = "" if progress.seconds_left is None else f", about {progress.seconds_left:.0f} s left"
-        self.status.setText(
-            f"{progress.done_tokens} of {progress.total_tokens} tokens, passage "
-            f"{min(progress.passages_done + 1, progress.passages_total)} of {progress.passages_total}{left}"
-        )
+        left = progress.time_left()
+        self.progress.setFormat(f"%p% · {left} left" if left else "%p%")
+        self.status.setText(progress.describe())
 
     def _on_passage_done(self, index: int, run) -> None:
         if run is self.run:
@@ -296,6 +294,7 @@ class EvaluationView(QWidget):
             return
         self.running = False
         self.progress.setRange(0, 1)
+        self.progress.setFormat("%p%")
         self.progress.setValue(1 if run.finished else 0)
         where = f" Saved to {run.path}." if run.path else ""
         done = f"{len(run.outcomes)} of {len(run.plan.passages)} passages"
@@ -305,6 +304,7 @@ class EvaluationView(QWidget):
     def _on_failed(self, message: str) -> None:
         self.running = False
         self.progress.setRange(0, 1)
+        self.progress.setFormat("%p%")
         self.status.setText("The run stopped: " + message)
         self.prompts.show_error(message)
         self._update_buttons()

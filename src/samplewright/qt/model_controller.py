@@ -133,6 +133,7 @@ class ModelController(QObject):
         )
         self.label.setToolTip(f"{info.description}\n{info.source}")
         self.settings.setValue("model/source", self._pending_source or "")
+        self.passage.set_chat_template(info.chat_template)
         self.model_ready.emit(info)
         self.count_passage(self.passage.text())
 

@@ -1,7 +1,9 @@
 """The passage the presets continue: typed, pasted or opened from a file.
 
 Shows how many tokens the passage has and, when it is longer than the
-model's context, shades the start that the model will not see.
+model's context, shades the start that the model will not see. A compact
+row below says how the model is asked: plain continuation, or an instruction
+(with an optional system message) in the model's own chat template.
 """
 
 from __future__ import annotations
@@ -11,11 +13,26 @@ from pathlib import Path
 
 from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtGui import QColor, QTextCharFormat, QTextCursor
-from PySide6.QtWidgets import QHBoxLayout, QLabel, QMenu, QPlainTextEdit, QTextEdit, QToolButton, QVBoxLayout, QWidget
+from PySide6.QtWidgets import (
+    QComboBox,
+    QHBoxLayout,
+    QLabel,
+    QLineEdit,
+    QMenu,
+    QPlainTextEdit,
+    QTextEdit,
+    QToolButton,
+    QVBoxLayout,
+    QWidget,
+)
+
+from ..core.framing import CONTINUATION, INSTRUCTION, MAX_FRAMING_TEXT, PLACEHOLDER, Framing
 
 MAX_RECENT = 8
 COUNT_DELAY_MS = 400
 CUT_SHADE = "#D9D9D9"
+NO_TEMPLATE = "This model has no chat template, so it can only continue the passage."
+FRAMING_CHOICES = ((CONTINUATION, "Continue the passage"), (INSTRUCTION, "Follow an instruction"))
 
 
 class QtPassagePanel(QWidget):
@@ -24,10 +41,12 @@ class QtPassagePanel(QWidget):
     Signals:
         passage_settled(str): the text stopped changing for a moment (time to count tokens).
         open_requested(str): a recent file was chosen from the menu.
+        framing_changed(): the way the model is asked changed (kind, instruction or system message).
     """
 
     passage_settled = Signal(str)
     open_requested = Signal(str)
+    framing_changed = Signal()
 
     def __init__(self, parent: QWidget | None = None):
         super().__init__(parent)
@@ -58,11 +77,79 @@ class QtPassagePanel(QWidget):
         layout.setContentsMargins(0, 0, 0, 0)
         layout.addLayout(header)
         layout.addWidget(self.editor, 1)
+        layout.addLayout(self._framing_row())
         self._settle = QTimer(self)
         self._settle.setSingleShot(True)
         self._settle.setInterval(COUNT_DELAY_MS)
         self._settle.timeout.connect(lambda: self.passage_settled.emit(self.text()))
         self.editor.textChanged.connect(self._on_text_changed)
+
+    def _framing_row(self) -> QHBoxLayout:
+        """The compact "how the model is asked" row: a choice, then the instruction and system texts."""
+        self.framing_choice = QComboBox()
+        self.framing_choice.setAccessibleName("How the model is asked")
+        for kind, label in FRAMING_CHOICES:
+            self.framing_choice.addItem(label, kind)
+        self.instruction_edit = QLineEdit()
+        self.instruction_edit.setAccessibleName("Instruction")
+        self.instruction_edit.setPlaceholderText(f"Instruction, e.g. Write a reply to this letter: {PLACEHOLDER}")
+        self.instruction_edit.setToolTip(
+            f"What the model is asked to do; {PLACEHOLDER} marks where the passage goes "
+            "(without it the passage follows the instruction)"
+        )
+        self.system_edit = QLineEdit()
+        self.system_edit.setAccessibleName("System message")
+        self.system_edit.setPlaceholderText("System message (optional)")
+        for edit in (self.instruction_edit, self.system_edit):
+            edit.setMaxLength(MAX_FRAMING_TEXT)
+            edit.textChanged.connect(lambda _=None: self.framing_changed.emit())
+        self.framing_note = QLabel("")
+        self.framing_note.setAccessibleName("Why instructions are unavailable")
+        self.framing_note.setVisible(False)
+        row = QHBoxLayout()
+        row.addWidget(QLabel("Ask:"))
+        row.addWidget(self.framing_choice)
+        row.addWidget(self.instruction_edit, 2)
+        row.addWidget(self.system_edit, 1)
+        row.addWidget(self.framing_note, 1)
+        self.framing_choice.currentIndexChanged.connect(self._on_framing_choice)
+        self._on_framing_choice()
+        return row
+
+    def _on_framing_choice(self) -> None:
+        instructed = self.framing_choice.currentData() == INSTRUCTION
+        self.instruction_edit.setVisible(instructed)
+        self.system_edit.setVisible(instructed)
+        self.framing_changed.emit()
+
+    def set_chat_template(self, available: bool) -> None:
+        """Offer instructions only when the loaded model has a chat template; otherwise fall back to
+        continuation (the typed instruction is kept) and say why."""
+        if not available:
+            self.framing_choice.setCurrentIndex(0)
+        self.framing_choice.setEnabled(available)
+        self.framing_choice.setToolTip("" if available else NO_TEMPLATE)
+        self.framing_note.setText("" if available else NO_TEMPLATE)
+        self.framing_note.setVisible(not available)
+
+    def framing_problem(self) -> str | None:
+        """Why the chosen framing cannot be used yet, or None."""
+        if self.framing_choice.currentData() == INSTRUCTION and not self.instruction_edit.text().strip():
+            return "The instruction is empty: write what the model should do, or choose Continue the passage."
+        return None
+
+    def framing(self) -> Framing:
+        """How the model is asked (plain continuation while the instruction is unusable)."""
+        if self.framing_choice.currentData() != INSTRUCTION or self.framing_problem():
+            return Framing()
+        return Framing(INSTRUCTION, self.system_edit.text(), self.instruction_edit.text())
+
+    def set_framing(self, framing: Framing) -> None:
+        """Show ``framing`` (an instruction is only selectable while the choice is enabled)."""
+        self.instruction_edit.setText(framing.instruction)
+        self.system_edit.setText(framing.system)
+        if self.framing_choice.isEnabled():
+            self.framing_choice.setCurrentIndex(self.framing_choice.findData(framing.kind))
 
     def _menu_button(self, text: str, tip: str) -> tuple[QToolButton, QMenu]:
         """A tool button that opens its own menu at once."""

@@ -22,8 +22,8 @@ from PySide6.QtWidgets import (
 )
 
 from ..core.errors import SamplewrightError
-from ..core.evaluation.framing import INSTRUCTION, Framing
 from ..core.evaluation.passage_sets import PassageSet, PassageSets, demo_sets
+from ..core.framing import INSTRUCTION, Framing
 from .evaluation_prompts import Prompts
 
 

@@ -10,6 +10,8 @@ from typing import Any, cast
 from PySide6.QtCore import QByteArray, QSettings
 from PySide6.QtWidgets import QMainWindow, QSplitter
 
+from ..core.errors import PassageError
+from ..core.framing import Framing
 from ..core.limits import DEFAULT_NEW_TOKENS, DEFAULT_SAMPLES, DEFAULT_SEED
 from .audition_controls import QtAuditionControls
 from .library_folder import LibraryInUse
@@ -61,6 +63,7 @@ class WindowState:
         if text:
             self.passage.set_text(text, _setting_str(s, "passage/source") or None)
         self.fill_example_passage()
+        self._restore_framing(_setting_json(s, "passage/framing", None))
         for key, spin, default in (
             ("audition/samples", self.controls.samples_spin, DEFAULT_SAMPLES),
             ("audition/new_tokens", self.controls.tokens_spin, DEFAULT_NEW_TOKENS),
@@ -76,6 +79,15 @@ class WindowState:
         if self.library_list.current_id() is None and library.records():
             self.library_list.select(library.records()[0].id)
 
+    def _restore_framing(self, data) -> None:
+        """Show the framing kept last time; a damaged value leaves plain continuation."""
+        if data is None:
+            return
+        try:
+            self.passage.set_framing(Framing.from_dict(data))
+        except PassageError:
+            return
+
     def save_state(self) -> None:
         """Remember layout, passage, selection and audition settings for next time."""
         s = self.settings
@@ -85,6 +97,7 @@ class WindowState:
         s.setValue("passage/text", self.passage.text()[:500_000])
         s.setValue("passage/source", self.passage.source or "")
         s.setValue("passage/recent", json.dumps(self.passage.recent))
+        s.setValue("passage/framing", json.dumps(self.passage.framing().to_dict()))
         controls = self.controls
         s.setValue("audition/samples", controls.samples_spin.value())
         s.setValue("audition/new_tokens", controls.tokens_spin.value())

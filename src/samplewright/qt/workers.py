@@ -23,6 +23,7 @@ from typing import Any
 from PySide6.QtCore import QObject, QThread, Signal, Slot
 
 from ..core.errors import SamplewrightError
+from ..core.framing import supports_instructions
 
 #: Token events are sent to the window in batches at most this often (seconds).
 BATCH_SECONDS = 0.02
@@ -46,6 +47,7 @@ class ModelInfo:
     vocab_size: int
     description: str
     vocabulary: Any = None  # core Vocabulary: each token's bytes, for showing text and labels
+    chat_template: bool = False  # the tokenizer has one, so the audition can be framed as an instruction
 
 
 @dataclasses.dataclass(frozen=True)
@@ -57,6 +59,7 @@ class StepQuery:
     sample_ids: tuple
     drawn_id: int | None
     top: int = 20
+    framing: Any = None  # the audition's Framing (None: plain continuation)
 
 
 class Cancelled(Exception):
@@ -188,6 +191,7 @@ class EngineWorker(QObject):
                     int(loaded.vocab_size),
                     str(loaded.describe()),
                     getattr(self._engine, "vocabulary", None),
+                    supports_instructions(getattr(loaded, "tokenizer", None)),
                 ),
             )
 
@@ -224,7 +228,12 @@ class EngineWorker(QObject):
 
         def job():
             view = self._need_engine().step(
-                query.passage, query.presets, sample_ids=query.sample_ids, top=query.top, drawn_id=query.drawn_id
+                query.passage,
+                query.presets,
+                sample_ids=query.sample_ids,
+                top=query.top,
+                drawn_id=query.drawn_id,
+                framing=query.framing,
             )
             self.step_ready.emit(serial, view)
 

@@ -1,7 +1,8 @@
 """Audition run files: one audition on screen, kept as JSON to reopen after a restart.
 
 A file holds everything the window shows of an audition, so it can be reopened
-without generating again: the passage, the run's sizes and seed, the model's
+without generating again: the passage and how the model was asked (its framing;
+``passage_ids`` are the framed prompt's tokens), the run's sizes and seed, the model's
 name, the library folder, and per column the preset as it was written (with its
 library record id, whether it was an unsaved draft, its seed), its metrics and
 its samples token by token. It lives under ``<library>/runs/`` beside the
@@ -12,6 +13,7 @@ Format (``format`` = :data:`FORMAT`, ``version`` = :data:`VERSION`)::
     {"format": "samplewright-audition", "version": 1, "saved_at": ISO 8601, "model": name or null,
      "library_folder": path or null, "passage": text, "passage_ids": [int], "passage_dropped": int,
      "samples": int, "max_new_tokens": int, "seed": int,
+     "framing": {"kind": "continuation" or "instruction", "system": str, "instruction": str},
      "columns": [{"preset": {preset fields}, "record_id": id or null, "draft": bool, "seed": int,
                   "metrics": {name: number or null or {...}} or null,
                   "samples": [{"stop_reason": str or null, "text": str,
@@ -29,7 +31,8 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
-from ..errors import SamplewrightError
+from ..errors import PassageError, SamplewrightError
+from ..framing import Framing
 from ..library.storage import atomic_write, dump_json, read_document
 from ..presets import Preset, PresetError, now_iso
 from ..results import AuditionRequest, Sample, TokenStep
@@ -130,6 +133,7 @@ def audition_dict(
         "samples": request.samples,
         "max_new_tokens": request.max_new_tokens,
         "seed": request.seed,
+        "framing": request.framing.to_dict(),
         "columns": _plain(columns),
     }
 
@@ -168,7 +172,7 @@ def load_audition(path: str | os.PathLike) -> SavedAudition:
     data = read_document(path, MAX_BYTES, "audition file", FORMAT, VERSION, AuditionFileError)
     try:
         return _saved(data)
-    except (KeyError, TypeError, ValueError, IndexError, PresetError) as exc:
+    except (KeyError, TypeError, ValueError, IndexError, PresetError, PassageError) as exc:
         raise AuditionFileError(f"The audition file {path} is damaged ({exc}): generate the audition again.") from None
 
 
@@ -181,6 +185,8 @@ def _saved(data: dict) -> SavedAudition:
         samples=int(data["samples"]),
         max_new_tokens=int(data["max_new_tokens"]),
         seed=int(data["seed"]),
+        # Files written before the audition had a framing continued the passage plainly.
+        framing=Framing.from_dict(data["framing"]) if "framing" in data else Framing(),
     )
     samples = [[_sample(c, r, s) for r, s in enumerate(column["samples"])] for c, column in enumerate(columns)]
     folder = data.get("library_folder")

@@ -26,6 +26,7 @@ from typing import Any
 import torch
 
 from ..errors import PassageError, RequestError
+from ..framing import Framing
 from ..limits import MAX_NEW_TOKENS
 from ..presets import Preset
 from ..results import AuditionRequest, AuditionResult, StepView, TokenEvent
@@ -156,12 +157,12 @@ class Engine:
             The samples, with ``cancelled`` set when ``should_stop`` ended the run.
 
         Raises:
-            PassageError: the passage is empty.
+            PassageError: the passage is empty, or an instruction framing for a model without a chat template.
             RequestError: no presets, fewer than one sample or token, or a negative seed.
         """
         started = time.perf_counter()
         batch.check_request(request)
-        passage = self.encode_passage(request.passage)
+        passage = self.encode_passage(request.framing.prompt(request.passage, self.loaded.tokenizer))
         with torch.inference_mode():
             state = self.passage_state(passage.ids)
             return batch.run_audition(self.backend, passage, state, request, on_token, should_stop, started)
@@ -173,6 +174,7 @@ class Engine:
         sample_ids: Sequence[int] = (),
         top: int = 20,
         drawn_id: int | None = None,
+        framing: Framing | None = None,
     ) -> StepView:
         """The next-token distribution after the passage (and ``sample_ids``), raw and per preset.
 
@@ -182,15 +184,17 @@ class Engine:
             sample_ids: the first tokens of a sample, continuing the passage.
             top: how many tokens (by raw probability) to list.
             drawn_id: the token the inspected sample drew here, passed through.
+            framing: how the model is asked (the step follows the framed prompt, as the audition did);
+                None is plain continuation.
 
         Returns:
             The step view.
 
         Raises:
-            PassageError: the passage is empty.
+            PassageError: the passage is empty, or an instruction framing the model cannot use.
             RequestError: a sample id is outside the vocabulary or the text exceeds the context.
         """
-        tokens = self.encode_passage(passage)
+        tokens = self.encode_passage((framing or Framing()).prompt(passage, self.loaded.tokenizer))
         sample_ids = [int(i) for i in sample_ids]
         if any(not 0 <= i < self.loaded.vocab_size for i in sample_ids):
             raise RequestError(f"Sample token ids must lie in 0..{self.loaded.vocab_size - 1}.")

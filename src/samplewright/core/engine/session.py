@@ -243,6 +243,7 @@ class AuditionSession:
             samples=last.samples,
             max_new_tokens=last.max_new_tokens,
             seed=last.seed if seed is None else seed,
+            framing=last.framing,
         )
 
     def token_limit(self, column: int) -> tuple[int, str] | None:

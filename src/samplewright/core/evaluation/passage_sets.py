@@ -21,6 +21,7 @@ from importlib import resources
 from pathlib import Path
 
 from ..errors import LibraryError, PassageError
+from ..framing import Framing
 from ..library.storage import (
     BadContent,
     atomic_write,
@@ -31,7 +32,6 @@ from ..library.storage import (
     parse_json,
     read_limited,
 )
-from .framing import Framing
 
 SETS_DIR = "passages"
 TRASH_DIR = Path(".trash") / "passages"

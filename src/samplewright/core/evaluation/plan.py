@@ -14,8 +14,8 @@ import hashlib
 from typing import Any
 
 from ..errors import RequestError
+from ..framing import Framing
 from ..presets import Preset
-from .framing import Framing
 from .passage_sets import PassageSet, text_hash
 from .sweep import Axis
 

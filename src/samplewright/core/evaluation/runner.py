@@ -45,6 +45,24 @@ class RunProgress:
     seconds: float
     seconds_left: float | None
 
+    def time_left(self) -> str:
+        """Time left as the terminal's bar writes it (tqdm's ``format_interval``: "01:05", "1:01:40"),
+        or "" before any token has set a pace."""
+        if self.seconds_left is None:
+            return ""
+        from tqdm import tqdm
+
+        return str(tqdm.format_interval(max(0.0, self.seconds_left)))
+
+    def describe(self) -> str:
+        """One line for the window: tokens done of the upper bound, the passage, the pace and time left."""
+        passage = min(self.passages_done + 1, self.passages_total)
+        line = f"{self.done_tokens:,} of {self.total_tokens:,} tokens · passage {passage} of {self.passages_total}"
+        if self.seconds > 0 and self.done_tokens:
+            line += f" · {self.done_tokens / self.seconds:.1f} tokens/s"
+        left = self.time_left()
+        return f"{line} · {left} left" if left else line
+
 
 def model_identity(loaded: Any) -> dict[str, Any]:
     """The model's identity as stored in run files."""

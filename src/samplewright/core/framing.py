@@ -6,7 +6,7 @@ from __future__ import annotations
 import dataclasses
 from typing import Any
 
-from ..errors import PassageError
+from .errors import PassageError
 
 CONTINUATION = "continuation"
 INSTRUCTION = "instruction"
