@@ -17,7 +17,6 @@ import json
 import os
 import sys
 from collections.abc import Sequence
-from pathlib import Path
 
 from . import cli_evaluation, cli_exchange
 from .core import limits
@@ -146,39 +145,12 @@ def _passage(args) -> str:
     return next(iter(demo_passages().values()))
 
 
-def resolve_presets(spec: str, library_dir: str | None = None) -> list[Preset]:
-    """The presets ``--preset spec`` names: a file's presets, or one preset by name.
-
-    A path to a file (or any spec ending in ``.json``) is read with
-    :func:`settings_file.read_importable`: a single preset file gives one
-    preset, a settings file all of its presets. A name is looked up in the
-    library first, so a team's edited copy of a starter preset wins; the
-    built-in starter presets answer only names the library does not hold.
-
-    Raises:
-        LibraryError: when the file is missing or refused, or when neither the
-            library nor the starter set holds the name (the message lists what does).
-    """
-    from .core.library import library
-    from .core.library.settings_file import read_importable
-    from .core.library.user_state import library_in_use
-
-    if spec.endswith(".json") or Path(spec).is_file():
-        return list(read_importable(spec).presets)
-    lib = library.PresetLibrary(library_dir or library_in_use())
-    wanted = spec.strip().casefold()
-    if spec in {r.id for r in lib.records()} or any(r.name.casefold() == wanted for r in lib.records()):
-        return [lib.find(spec).preset]  # raises LibraryError when several share the name
-    for preset in library.starter_presets():
-        if preset.name.casefold() == wanted:
-            return [preset]
-    return [lib.find(spec).preset]  # raises LibraryError naming what exists
-
-
 def _presets(args) -> list[Preset]:
+    from .core.library.library import starter_presets
+    from .core.library.lookup import resolve_presets
+
     if args.preset:
         return [preset for spec in args.preset for preset in resolve_presets(spec, args.library)]
-    from .core.library.library import starter_presets
 
     return list(starter_presets())[:3]
 

@@ -144,8 +144,8 @@ def _verify(written, model: str | None, passage: str) -> list[dict[str, Any]]:
 
 def run_fidelity(args: argparse.Namespace) -> int:
     """Print the verdict, reasons and distances of one preset for one target."""
-    from .cli import resolve_presets
     from .core.engines.fidelity import fidelity
+    from .core.library.lookup import resolve_presets
 
     presets = resolve_presets(args.name, args.library)
     if len(presets) != 1:

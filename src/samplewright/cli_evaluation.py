@@ -85,9 +85,9 @@ def _library_dir(args) -> Path:
 
 def _preset_entries(specs: list[str], library_dir: Path):
     """Presets with their library record id and revision when the library holds them as they are."""
-    from .cli import resolve_presets
     from .core.evaluation.plan import PresetEntry
     from .core.library.library import PresetLibrary
+    from .core.library.lookup import resolve_presets
 
     presets = [p for spec in specs for p in resolve_presets(spec, str(library_dir))]
     records = PresetLibrary(library_dir).records() if library_dir.is_dir() else []

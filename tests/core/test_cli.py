@@ -209,8 +209,8 @@ def test_cli_uses_the_library_folder_chosen_in_the_window(capsys, tmp_path, monk
 
 def test_a_library_preset_wins_over_the_starter_of_the_same_name(tmp_path):
     # Every new library is seeded with starter copies; a team's edit of one must be the one the CLI uses.
-    from samplewright.cli import resolve_presets
     from samplewright.core.library.library import PresetLibrary, starter_presets
+    from samplewright.core.library.lookup import resolve_presets
 
     folder = tmp_path / "team"
     lib = PresetLibrary(folder, create=True)
@@ -225,8 +225,8 @@ def test_a_library_preset_wins_over_the_starter_of_the_same_name(tmp_path):
 
 
 def test_preset_files_are_read_strictly_and_settings_files_give_all_their_presets(capsys, tmp_path):
-    from samplewright.cli import resolve_presets
     from samplewright.core.errors import LibraryError
+    from samplewright.core.library.lookup import resolve_presets
     from samplewright.core.library.settings_file import export_settings
 
     bundle = tmp_path / "bundle.json"
