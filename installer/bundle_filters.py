@@ -19,14 +19,13 @@ KEPT_MODEL_FAMILIES = ("auto", "llama", "encoder_decoder", "gemma", "gpt2", "qwe
 #: transformers sub-packages for training, serving and exporting, which the engine never uses.
 UNUSED_TRANSFORMERS = ("commands", "cli", "pipelines", "onnx", "data", "trainer", "sagemaker", "kernels", "exporters")
 
-#: Modules left out of the analysis: development tools, plotting, notebooks, and torch's parts for
+#: Modules left out of the analysis: development tools, notebooks, and torch's parts for
 #: training tools, benchmarks, C++ extensions and TensorBoard; scipy (only transformers' object-detection
 #: losses would use it), hf_xet (downloads), Qt's network module, pyqtgraph's 3D, notebook and example
-#: parts. (sympy and torch._dynamo stay: torch imports them while loading the model.)
+#: parts. (sympy and torch._dynamo stay: torch imports them while loading the model; matplotlib stays:
+#: it draws the evaluation report's map.)
 EXCLUDED_MODULES = (
     "tkinter",
-    "matplotlib",
-    "mpl_toolkits",
     "pandas",
     "IPython",
     "notebook",

@@ -97,6 +97,16 @@ else
   fail "audition: $(tail -3 "$scratch/audition.err")"
 fi
 
+mkdir -p "$scratch/one-passage"
+echo "Dear passengers, from Monday the early crossing leaves ten minutes later." > "$scratch/one-passage/notice.txt"
+if as_user samplewright evaluate --passages "$scratch/one-passage" --preset "Greedy baseline" --samples 1 --tokens 4 --seed 1 \
+    --out "$scratch/run.json" --report "$scratch/run.html" > "$scratch/evaluate.log" 2>&1 \
+    && grep -q "data:image/png;base64," "$scratch/run.html"; then
+  pass "evaluate writes a run file and an HTML report with its map"
+else
+  fail "evaluate/report: $(tail -3 "$scratch/evaluate.log")"
+fi
+
 desktop-file-validate "$data/applications/$id.desktop" && pass "desktop-file-validate" || fail "desktop-file-validate"
 exec_path=$(sed -n 's/^Exec="\{0,1\}\([^"]*\)"\{0,1\}$/\1/p' "$data/applications/$id.desktop")
 [ -x "$exec_path" ] && pass "desktop entry starts $exec_path" || fail "desktop entry Exec '$exec_path' is not executable"
