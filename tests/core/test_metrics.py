@@ -25,7 +25,7 @@ from samplewright.core.sampling.metrics import (
 
 
 def test_distinct_n_hand_counted():
-    # REFERENCES §10 (Li et al. 2016), counted by hand: 10 words, 6 distinct; 8 bigrams, 5 distinct.
+    # Li et al. 2016, "A Diversity-Promoting Objective Function for Neural Conversation Models" (distinct-n), counted by hand: 10 words, 6 distinct; 8 bigrams, 5 distinct.
     texts = ["the tide table is posted", "The tide table is late"]
     assert distinct_n(texts, 1) == pytest.approx(0.6)
     assert distinct_n(texts, 2) == pytest.approx(0.625)
@@ -39,7 +39,7 @@ def test_distinct_n_undefined_is_none():
 
 
 def test_self_bleu_worked_example():
-    # REFERENCES §10 (Zhu et al. 2018 with sacrebleu): per sample 75.9836, 75.9836, 6.5673 -> 0.528448.
+    # Zhu et al. 2018, "Texygen" (self-BLEU), computed with sacrebleu: per sample 75.9836, 75.9836, 6.5673 -> 0.528448.
     texts = ["the harbour bell rings at noon", "the harbour bell rings at dusk", "a gull sat on the ticket booth"]
     assert self_bleu(texts) == pytest.approx(0.528448, abs=1e-6)
 
@@ -93,7 +93,7 @@ def test_self_bleu_needs_two_samples():
 
 
 def test_seq_rep_4_worked_example():
-    # REFERENCES §10 (Welleck et al. 2020): six 4-grams, five distinct -> 1/6.
+    # Welleck et al. 2020, "Neural Text Generation with Unlikelihood Training" (seq-rep-4): six 4-grams, five distinct -> 1/6.
     assert seq_rep_n([[5, 6, 7, 8, 5, 6, 7, 8, 9]], 4) == pytest.approx(1 / 6)
     assert seq_rep_n([[1, 2, 3]], 4) is None
     # Sequences too short are skipped in the mean.
@@ -101,7 +101,7 @@ def test_seq_rep_4_worked_example():
 
 
 def test_surprisal_worked_example():
-    # REFERENCES §10 (Shannon 1948): p = 0.5, 0.25, 0.125, 0.125 -> mean 2.25 bits, perplexity 4.756828.
+    # Shannon 1948, "A Mathematical Theory of Communication": p = 0.5, 0.25, 0.125, 0.125 -> mean 2.25 bits, perplexity 4.756828.
     mean = mean_surprisal_bits([0.5, 0.25, 0.125, 0.125])
     assert mean == pytest.approx(2.25)
     assert 2**mean == pytest.approx(4.756828, abs=1e-6)
@@ -112,7 +112,7 @@ def test_surprisal_worked_example():
     "p, bits", [([0.5, 0.25, 0.125, 0.125], 1.75), ([2, 1, 0.5, 0.5], 1.75), ([0.5, 0.5, 0], 1.0), ([0, 1, 0], 0.0)]
 )
 def test_entropy_worked_examples(p, bits):
-    # REFERENCES §10 (Shannon 1948).
+    # Shannon 1948, "A Mathematical Theory of Communication".
     assert entropy_bits(p) == pytest.approx(bits)
 
 
