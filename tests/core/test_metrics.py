@@ -25,7 +25,8 @@ from samplewright.core.sampling.metrics import (
 
 
 def test_distinct_n_hand_counted():
-    # Li et al. 2016, "A Diversity-Promoting Objective Function for Neural Conversation Models" (distinct-n), counted by hand: 10 words, 6 distinct; 8 bigrams, 5 distinct.
+    # Li et al. 2016, "A Diversity-Promoting Objective Function for Neural Conversation Models"
+    # (distinct-n), counted by hand: 10 words, 6 distinct; 8 bigrams, 5 distinct.
     texts = ["the tide table is posted", "The tide table is late"]
     assert distinct_n(texts, 1) == pytest.approx(0.6)
     assert distinct_n(texts, 2) == pytest.approx(0.625)
@@ -93,7 +94,8 @@ def test_self_bleu_needs_two_samples():
 
 
 def test_seq_rep_4_worked_example():
-    # Welleck et al. 2020, "Neural Text Generation with Unlikelihood Training" (seq-rep-4): six 4-grams, five distinct -> 1/6.
+    # Welleck et al. 2020, "Neural Text Generation with Unlikelihood Training" (seq-rep-4):
+    # six 4-grams, five distinct -> 1/6.
     assert seq_rep_n([[5, 6, 7, 8, 5, 6, 7, 8, 9]], 4) == pytest.approx(1 / 6)
     assert seq_rep_n([[1, 2, 3]], 4) is None
     # Sequences too short are skipped in the mean.
@@ -101,7 +103,8 @@ def test_seq_rep_4_worked_example():
 
 
 def test_surprisal_worked_example():
-    # Shannon 1948, "A Mathematical Theory of Communication": p = 0.5, 0.25, 0.125, 0.125 -> mean 2.25 bits, perplexity 4.756828.
+    # Shannon 1948, "A Mathematical Theory of Communication":
+    # p = 0.5, 0.25, 0.125, 0.125 -> mean 2.25 bits, perplexity 4.756828.
     mean = mean_surprisal_bits([0.5, 0.25, 0.125, 0.125])
     assert mean == pytest.approx(2.25)
     assert 2**mean == pytest.approx(4.756828, abs=1e-6)
