@@ -127,6 +127,7 @@ def test_run_file_keeps_everything_and_marks_changes(engine, tmp_path):
     run = run_evaluation(engine, new_run(engine, plan), path=path)
     loaded = load_run(path)
     assert loaded.plan == run.plan and loaded.model == run.model
+    assert loaded.model["precision"] == engine.loaded.precision  # which precision ran is kept with the run
     assert loaded.outcomes[0].samples == run.outcomes[0].samples
     assert changes_since(loaded, library.folder) == []
     library.save(dataclasses.replace(record, preset=record.preset.replace(temperature=0.5)), record.revision)

@@ -72,7 +72,7 @@ def report_context(run: EvaluationRun, changes: list[str] | None = None) -> dict
     return {
         "title": f"Evaluation run {run.created}",
         "caution": CAUTION,
-        "model": run.model.get("name", "?"),
+        "model": f"{run.model.get('name', '?')} ({run.model.get('precision', 'float32')})",
         "created": run.created,
         "user": run.user or "unknown",
         "tool_version": run.tool_version,

@@ -72,6 +72,7 @@ def model_identity(loaded: Any) -> dict[str, Any]:
         "parameters": int(loaded.n_parameters),
         "vocab_size": int(loaded.vocab_size),
         "context_length": int(loaded.context_length),
+        "precision": str(getattr(loaded, "precision", "float32")),
     }
 
 
