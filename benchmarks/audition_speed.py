@@ -37,25 +37,13 @@ import time
 
 os.environ.setdefault("HF_HUB_OFFLINE", "1")
 
-PRESETS = [
-    {"name": "steady", "temperature": 0.7, "top_p": 0.9},
-    {"name": "top-k 40", "temperature": 1.0, "top_k": 40},
-    {"name": "min-p", "temperature": 1.0, "min_p": 0.05},
-    {"name": "varied", "temperature": 1.1, "top_p": 0.95, "repetition_penalty": 1.1},
-]
+from bench_common import PRESETS, machine_line, report_sides  # noqa: E402 (after the offline switch)
+
 SAMPLES = 4
 PASSAGE = "electric-ferry"
 TABLE_ROWS = (1, 4, 16, 32, 96)
 TABLE_PASSAGES = (200, 1000)
 TABLE_TOKENS = 16
-
-
-def machine_line() -> str:
-    """CPU model, cores and the load average (the machine may be shared)."""
-    from samplewright.core.engine.precision import cpu_name
-
-    load = ", ".join(f"{x:.2f}" for x in os.getloadavg())
-    return f"CPU: {cpu_name()} ({os.cpu_count()} cores), load average {load}"
 
 
 def ensure_cache() -> None:
@@ -174,12 +162,9 @@ def comparison(loaded, passage, presets, passage_ids, args) -> float:
         baseline_runs.append(run_baseline(loaded, passage_ids, presets, args.tokens, seed=repeat))
         for label, (n, s) in (("engine", engine_runs[-1]), ("baseline", baseline_runs[-1])):
             print(f"  run {repeat + 1} {label:8s}: {n} tokens in {s:.2f} s = {n / s:.1f} tokens/s", flush=True)
-    engine_rate = max(n / s for n, s in engine_runs)
-    baseline_rate = max(n / s for n, s in baseline_runs)
-    print(f"engine audition (passage pass included): {engine_rate:.1f} tokens/s")
-    print(f"baseline generate(): {baseline_rate:.1f} tokens/s")
-    print(f"ratio: {engine_rate / baseline_rate:.2f}")
-    return engine_rate
+    return report_sides(
+        ("engine audition (passage pass included)", engine_runs), ("baseline generate()", baseline_runs), "ratio"
+    )
 
 
 def overhead_and_precision(loaded, passage, presets, passage_ids, args) -> float:

@@ -16,32 +16,15 @@ from __future__ import annotations
 
 import argparse
 import os
-import platform
 import sys
 import time
 
 os.environ.setdefault("HF_HUB_OFFLINE", "1")
 
-PRESETS = [
-    {"name": "steady", "temperature": 0.7, "top_p": 0.9},
-    {"name": "top-k 40", "temperature": 1.0, "top_k": 40},
-    {"name": "min-p", "temperature": 1.0, "min_p": 0.05},
-    {"name": "varied", "temperature": 1.1, "top_p": 0.95, "repetition_penalty": 1.1},
-]
+from bench_common import PRESETS, machine_line, report_sides  # noqa: E402 (after the offline switch)
+
 SAMPLES = 8
 SET = "service-notices"
-
-
-def cpu_model() -> str:
-    """The CPU's model name (from /proc/cpuinfo where there is one)."""
-    try:
-        with open("/proc/cpuinfo", encoding="utf-8") as handle:
-            for line in handle:
-                if line.startswith("model name"):
-                    return line.split(":", 1)[1].strip()
-    except OSError:
-        pass
-    return platform.processor() or platform.machine()
 
 
 def run_evaluation_once(engine, plan) -> tuple[int, float]:
@@ -86,7 +69,7 @@ def main(argv=None) -> int:
     passages = passages_of([s for s in demo_sets() if s.name == SET])
     plan = RunPlan(tuple(PresetEntry(Preset.from_dict(p)) for p in PRESETS), passages, SAMPLES, args.tokens, 0)
     print(f"model: {loaded.describe()}")
-    print(f"cpu: {cpu_model()}, torch threads: {torch.get_num_threads()}")
+    print(f"{machine_line()}, torch threads: {torch.get_num_threads()}")
     print(f"work: {len(PRESETS)} presets x {len(passages)} passages x {SAMPLES} samples x {args.tokens} tokens")
     warm = RunPlan(plan.presets[:1], plan.passages[:1], 1, 2, 0)
     run_evaluation_once(engine, warm)
@@ -97,11 +80,7 @@ def main(argv=None) -> int:
         loops.append(run_loop_once(engine, plan))
         for label, (n, s) in (("evaluation", evaluations[-1]), ("loop", loops[-1])):
             print(f"  run {repeat + 1} {label:10s}: {n} tokens in {s:.2f} s = {n / s:.1f} tokens/s", flush=True)
-    evaluation_rate = max(n / s for n, s in evaluations)
-    loop_rate = max(n / s for n, s in loops)
-    print(f"evaluation: {evaluation_rate:.1f} tokens/s")
-    print(f"loop of auditions: {loop_rate:.1f} tokens/s")
-    print(f"evaluation ratio: {evaluation_rate / loop_rate:.2f}")
+    report_sides(("evaluation", evaluations), ("loop of auditions", loops), "evaluation ratio")
     return 0
 
 
