@@ -1,63 +1,48 @@
-"""The main window's way in to the evaluation screen: one menu action.
+"""The main window's way in to the evaluation screen.
 
-:func:`add_evaluation_action` puts "Evaluation runs…" into the window's Audition
-menu (or a menu of its own when there is none). The action opens the
-evaluation window on the main window's library folder and loaded model, and
-raises it when it is open already; it closes with the main window.
+:class:`EvaluationOpener` opens the evaluation window on the main window's
+library folder and loaded model, raises it when it is open already, opens a new
+one when the library folder changed, and closes it with the main window. Its
+menu entry is the ``open_evaluation`` row in ``window_actions.py``.
 """
 
 from __future__ import annotations
 
 from typing import Any
 
-from PySide6.QtGui import QAction
-from PySide6.QtWidgets import QApplication, QMainWindow, QMenu
+from PySide6.QtWidgets import QApplication, QMainWindow
 
 from .evaluation_view import EvaluationWindow
 
-MENU_TITLE = "&Audition"
-ACTION_TEXT = "Evaluation runs…"
 
+class EvaluationOpener:
+    """Opens and keeps the one evaluation window of ``window`` (which has ``library.folder``
+    and ``engine.worker.loaded_model``)."""
 
-def add_evaluation_action(window: QMainWindow) -> QAction:
-    """Add the action to ``window`` (which has ``library.folder`` and ``engine.worker.loaded_model``)."""
-    action = QAction(ACTION_TEXT, window)
-    action.setStatusTip("Run presets over passage sets, sweep a field, and compare them on the quality–diversity map")
-    action.setObjectName("open_evaluation")
-    state: dict[str, Any] = {"window": None}
+    def __init__(self, window: QMainWindow):
+        self.window: Any = window
+        self._shown: EvaluationWindow | None = None
+        window.destroyed.connect(lambda *_: self.close())
+        app = QApplication.instance()
+        if app is not None:
+            app.aboutToQuit.connect(self.close)
 
-    def loaded_model():
-        return window.engine.worker.loaded_model  # type: ignore[attr-defined]
+    def current(self) -> EvaluationWindow | None:
+        """The evaluation window, if one is open."""
+        return self._shown
 
-    def open_window() -> None:
-        folder = window.library.folder  # type: ignore[attr-defined]
-        current = state["window"]
-        if current is None or current.view.library_dir != folder:
-            if current is not None:
-                current.close()
-            current = EvaluationWindow(folder, loaded_model)
-            state["window"] = current
-        current.show()
-        current.raise_()
-        current.activateWindow()
+    def open(self) -> None:
+        """Show the evaluation window for the library in use (a new one after a folder change)."""
+        folder = self.window.library.folder
+        if self._shown is None or self._shown.view.library_dir != folder:
+            self.close()
+            self._shown = EvaluationWindow(folder, lambda: self.window.engine.worker.loaded_model)
+        self._shown.show()
+        self._shown.raise_()
+        self._shown.activateWindow()
 
-    def close_window(*_args) -> None:
-        if state["window"] is not None:
-            state["window"].close()
-            state["window"] = None
-
-    action.triggered.connect(lambda _=False: open_window())
-    window.destroyed.connect(close_window)
-    app = QApplication.instance()
-    if app is not None:
-        app.aboutToQuit.connect(close_window)
-    window.evaluation_window = lambda: state["window"]  # type: ignore[attr-defined]
-    _menu(window).addAction(action)
-    return action
-
-
-def _menu(window: QMainWindow) -> QMenu:
-    for entry in window.menuBar().actions():
-        if entry.menu() is not None and entry.text() == MENU_TITLE:
-            return entry.menu()
-    return window.menuBar().addMenu("E&valuate")
+    def close(self) -> None:
+        """Close the evaluation window, if one is open."""
+        if self._shown is not None:
+            self._shown.close()
+            self._shown = None

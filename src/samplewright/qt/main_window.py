@@ -29,7 +29,7 @@ from . import palette, window_actions
 from .audition_controller import AuditionController
 from .audition_controls import QtAuditionControls
 from .audition_view import QtAuditionGrid
-from .evaluation_hook import add_evaluation_action
+from .evaluation_hook import EvaluationOpener
 from .export_check import ExportChecker
 from .library_controller import Favourites, LibraryController
 from .library_dialogs import captioned
@@ -90,7 +90,6 @@ class MainWindow(QMainWindow):
         self._build_views()
         self._build_parts()
         self._build_commands()
-        add_evaluation_action(self)  # the evaluation screen's menu entry, in the Audition menu
         self._wire()
         self.state.restore_state()
         self.folders.show_library_folder()
@@ -186,6 +185,8 @@ class MainWindow(QMainWindow):
         self.state = WindowState(self.settings, self, self.splitters, self.passage, self.controls, presets_list, in_use)
         self.library_watch, self.recent_menu = self.library_tools.watch, self.folders.recent_menu
         # A new screen that needs these models is built here; its menu entry is a row in window_actions.py.
+        self.evaluation = EvaluationOpener(self)
+        self.evaluation_window = self.evaluation.current
 
     def _build_commands(self) -> None:
         """The window's actions and menus (the commands themselves are listed in ``window_actions.py``)."""

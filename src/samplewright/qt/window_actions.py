@@ -172,6 +172,13 @@ def window_commands(w: MainWindow) -> list[Command]:
         Command("shortcuts", "Keyboard shortcuts", lambda: help_dialogs.show_shortcuts(shortcut_rows(w), w)),
         Command("legend", "Reading the next-token view", lambda: show_legend(w), None),
         Command("about", "About Samplewright", lambda: help_dialogs.show_about(w)),
+        Command(
+            "open_evaluation",
+            "Evaluation runs…",
+            lambda: w.evaluation.open(),
+            None,
+            "Run presets over passage sets, sweep a field, and compare them on the quality–diversity map",
+        ),
     ]
 
 
@@ -221,7 +228,7 @@ MENUS: dict[str, list[str | None]] = {
         None,
         "rescan",
     ],
-    "&Audition": ["generate", "regenerate", "stop", None, "prev_step", "next_step"],
+    "&Audition": ["generate", "regenerate", "stop", None, "prev_step", "next_step", None, "open_evaluation"],
     "&Model": ["model_folder", "model_gguf", "model_default"],
     "&Help": ["guide", "shortcuts", "legend", None, "about"],
 }
@@ -234,6 +241,7 @@ def make_action(window: QMainWindow, command: Command) -> QAction:
     if command.shortcut is not None:
         action.setShortcut(QKeySequence(command.shortcut))
         tip = f"{tip} ({action.shortcut().toString()})"
+    action.setObjectName(command.key)
     action.setToolTip(tip)
     action.setStatusTip(command.tip or command.text)
     slot = command.slot
