@@ -135,3 +135,44 @@ def test_cli_refuses_an_instruction_for_a_model_without_a_template(capsys, tiny_
 def test_cli_system_message_needs_an_instruction(capsys, plain_preset):
     code, _, err = run(capsys, "audition", "--text", LETTER, "--system", SYSTEM)
     assert code == 2 and "--system needs --instruction" in err
+
+
+def test_the_passage_count_includes_the_instruction_the_audition_sends(chat_model):
+    # Reference: the audition's own passage ids (checked above against apply_chat_template): the
+    # editor's count must be the length of what the model will read, instruction and template included.
+    engine = Engine(chat_model)
+    counted = engine.measure_passage(LETTER, FRAMING)
+    request = AuditionRequest(LETTER, [Preset("Plain")], samples=1, max_new_tokens=1, seed=3, framing=FRAMING)
+    assert counted.framed and len(counted.tokens.ids) == len(engine.audition(request).passage_ids)
+    plain = engine.measure_passage(LETTER)
+    assert not plain.framed and len(plain.tokens.ids) < len(counted.tokens.ids)
+
+
+def test_a_long_framed_passage_shades_only_the_passage_part_left_out(chat_model):
+    # The engine keeps the prompt's last tokens (its passage window, 128 for the tiny model). The
+    # shaded part of the passage is what the kept prompt no longer holds: the kept prompt text
+    # starts with the passage's text from the cut on.
+    letter = " ".join(f"Crossing number {i} leaves on time." for i in range(60))
+    engine = Engine(chat_model)
+    counted = engine.measure_passage(letter, FRAMING)
+    prompt = FRAMING.prompt(letter, chat_model.tokenizer)
+    assert counted.tokens.dropped > 0 and counted.passage_cut is not None
+    assert prompt[counted.tokens.cut_at :].startswith(letter[counted.passage_cut :])
+    # A cut that stays inside the instruction leaves the passage whole.
+    short = "Is the 7:40 running?"
+    long_instruction = Framing(INSTRUCTION, "", " ".join(["Please be kind."] * 80) + " {passage}")
+    inside = engine.measure_passage(short, long_instruction)
+    assert inside.tokens.dropped > 0 and inside.passage_cut is None
+    assert FRAMING.prompt(short, chat_model.tokenizer) != short  # the framing did surround it
+
+
+def test_passage_cut_maps_the_prompt_offset_onto_the_passage():
+    from samplewright.core.framing import passage_cut
+
+    prompt = "<|user|>Reply: Dear office, the ferry.\n<|assistant|>"
+    passage = "Dear office, the ferry."
+    start = prompt.index(passage)
+    assert passage_cut(prompt, passage, None) is None
+    assert passage_cut(prompt, passage, 3) is None  # inside the template
+    assert passage_cut(prompt, passage, start + 5) == 5
+    assert passage_cut(prompt, passage, len(prompt)) == len(passage)

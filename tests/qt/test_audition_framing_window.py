@@ -88,3 +88,20 @@ def test_a_model_without_a_chat_template_offers_continuation_only(qtbot, tiny_mo
     assert panel.framing() == Framing() and not panel.instruction_edit.isVisible()
     assert panel.instruction_edit.text() == "Reply: {passage}"  # kept for a model that has a template
     win.close()
+
+
+def test_the_token_count_follows_the_instruction(window, qtbot, tiny_loader):
+    # Reference: transformers' apply_chat_template (tokenize=True): the count shown once the
+    # instruction rests is the length of the rendered conversation the audition will read.
+    panel = window.passage
+    panel.set_text(PASSAGE)
+    qtbot.waitUntil(lambda: panel.info.text().endswith(")") and "counting" not in panel.info.text(), timeout=10000)
+    assert "with the instruction" not in panel.info.text()
+    choose_instruction(window, "Write a notice from this draft: {passage}")
+    qtbot.waitUntil(lambda: "with the instruction" in panel.info.text(), timeout=10000)
+    messages = [{"role": "user", "content": f"Write a notice from this draft: {PASSAGE}"}]
+    expected = tiny_loader(None, None).tokenizer.apply_chat_template(
+        messages, tokenize=True, add_generation_prompt=True
+    )
+    expected = list(expected if isinstance(expected, list) else expected["input_ids"])
+    assert panel.info.text().startswith(f"{len(expected):,} tokens with the instruction")

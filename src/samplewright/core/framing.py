@@ -76,6 +76,22 @@ class Framing:
         return str(tokenizer.apply_chat_template(messages, tokenize=False, add_generation_prompt=True))
 
 
+def passage_cut(prompt: str, passage: str, cut_at: int | None) -> int | None:
+    """Where in ``passage`` the kept part of ``prompt`` starts, given the prompt's cut offset.
+
+    The passage sits verbatim in its prompt, so the prompt's cut maps onto it by the
+    passage's offset. Returns None when nothing of the passage itself is cut (the cut
+    falls in the instruction or template before it, or there is no cut).
+    """
+    if cut_at is None:
+        return None
+    start = prompt.find(passage)
+    if start < 0:
+        return None
+    inside = cut_at - start
+    return min(inside, len(passage)) if inside > 0 else None
+
+
 def supports_instructions(tokenizer: Any) -> bool:
     """True when the tokenizer carries a chat template (instruction framing is possible)."""
     return bool(getattr(tokenizer, "chat_template", None))

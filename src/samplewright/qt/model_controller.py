@@ -5,10 +5,10 @@ from __future__ import annotations
 
 from collections.abc import Callable
 
-from PySide6.QtCore import QObject, QSettings, Signal
+from PySide6.QtCore import QObject, QSettings, QTimer, Signal
 from PySide6.QtWidgets import QLabel, QProgressBar
 
-from .passage_panel import QtPassagePanel
+from .passage_panel import COUNT_DELAY_MS, QtPassagePanel
 from .prompts import QtPrompts
 from .workers import EngineThread, EngineWorker, ModelInfo
 
@@ -78,6 +78,12 @@ class ModelController(QObject):
         worker.failed.connect(self._on_failed)
         worker.passage_counted.connect(self._on_passage_counted)
         passage.passage_settled.connect(self.count_passage)
+        # An instruction typed key by key is counted once it rests, like the passage.
+        self._framing_settle = QTimer(self)
+        self._framing_settle.setSingleShot(True)
+        self._framing_settle.setInterval(COUNT_DELAY_MS)
+        self._framing_settle.timeout.connect(lambda: self.count_passage(self.passage.text()))
+        passage.framing_changed.connect(self._framing_settle.start)
         passage.open_requested.connect(self.open_passage)
 
     # -- model -----------------------------------------------------------------------------
@@ -173,12 +179,13 @@ class ModelController(QObject):
         if text.strip():
             if self._count_serial is not None:
                 self.engine.cancel(self._count_serial)
-            self._count_serial = self.engine.count_passage(text)
+            self._count_serial = self.engine.count_passage(text, self.passage.framing())
 
     def _on_passage_counted(self, serial: int, counted) -> None:
         if serial != self._count_serial or self.info is None:
             return
-        self.passage.show_length(len(counted.ids), counted.dropped, counted.limit, counted.cut_at)
+        tokens = counted.tokens
+        self.passage.show_length(len(tokens.ids), tokens.dropped, tokens.limit, counted.passage_cut, counted.framed)
 
 
 def _count(n: int) -> str:

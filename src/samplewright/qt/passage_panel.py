@@ -207,22 +207,25 @@ class QtPassagePanel(QWidget):
         self.info.setText(text)
         self.editor.setExtraSelections([])
 
-    def show_length(self, tokens: int, dropped: int, context: int, cut_at: int | None) -> None:
-        """Show the token count, and shade the part left out when the passage is too long.
+    def show_length(self, tokens: int, dropped: int, context: int, cut_at: int | None, framed: bool = False) -> None:
+        """Show the token count, and shade the part of the passage left out when it is too long.
 
         Args:
             tokens: tokens the model reads.
             dropped: tokens cut from the start to fit the context.
             context: how many passage tokens the model reads at most.
-            cut_at: character offset where the kept part starts, if known.
+            cut_at: character offset in the passage where the kept part starts, if the cut reaches it.
+            framed: the count includes the instruction and the chat template around the passage.
         """
+        what = "tokens with the instruction" if framed else "tokens"
         if dropped:
+            left_out = "the shaded start of the passage is" if cut_at else "the start of the instruction is"
             self.info.setText(
-                f"{tokens + dropped:,} tokens — longer than the {context:,} a passage may use: "
-                f"the first {dropped:,} (shaded) are left out."
+                f"{tokens + dropped:,} {what} — longer than the {context:,} a prompt may use: "
+                f"the first {dropped:,} are left out ({left_out} not read)."
             )
         else:
-            self.info.setText(f"{tokens:,} tokens (a passage may use up to {context:,})")
+            self.info.setText(f"{tokens:,} {what} (a prompt may use up to {context:,})")
         selections = []
         if dropped and cut_at:
             shade = QTextEdit.ExtraSelection()

@@ -119,7 +119,7 @@ class EngineWorker(QObject):
     tokens_ready = Signal(int, object)  # serial, list[TokenEvent]
     audition_ready = Signal(int, object, object)  # serial, AuditionResult, list[metrics dict]
     step_ready = Signal(int, object)  # serial, StepView
-    passage_counted = Signal(int, object)  # serial, PassageTokens
+    passage_counted = Signal(int, object)  # serial, PassageLength
     failed = Signal(int, str, str)  # serial, job kind, message
 
     def __init__(self, model_loader: Callable, engine_factory: Callable, metrics: Callable):
@@ -239,12 +239,12 @@ class EngineWorker(QObject):
 
         self._guard(serial, "step", job)
 
-    @Slot(int, str)
-    def count_passage(self, serial: int, text: str) -> None:
-        """Tokenise the passage to report its length and where it is cut."""
+    @Slot(int, str, object)
+    def count_passage(self, serial: int, text: str, framing=None) -> None:
+        """Tokenise the passage's prompt (framed as the audition would be) to report its length and cut."""
 
         def job():
-            self.passage_counted.emit(serial, self._need_engine().encode_passage(text))
+            self.passage_counted.emit(serial, self._need_engine().measure_passage(text, framing))
 
         self._guard(serial, "count", job)
 
@@ -268,7 +268,7 @@ class EngineThread(QObject):
     _load = Signal(int, object)
     _audition = Signal(int, object)
     _step = Signal(int, object)
-    _count = Signal(int, str)
+    _count = Signal(int, str, object)
 
     def __init__(self, worker: EngineWorker, parent: QObject | None = None):
         super().__init__(parent)
@@ -307,10 +307,10 @@ class EngineThread(QObject):
         self._step.emit(serial, query)
         return serial
 
-    def count_passage(self, text: str) -> int:
-        """Queue a token count of ``text``; returns its serial."""
+    def count_passage(self, text: str, framing=None) -> int:
+        """Queue a token count of ``text`` framed by ``framing`` (None: plain); returns its serial."""
         serial = self.next_serial()
-        self._count.emit(serial, text)
+        self._count.emit(serial, text, framing)
         return serial
 
     def cancel(self, serial: int) -> None:

@@ -19,6 +19,7 @@ passage cache, the per-row copies of its key/value cache.
 
 from __future__ import annotations
 
+import dataclasses
 import time
 from collections.abc import Callable, Sequence
 from typing import Any
@@ -26,7 +27,7 @@ from typing import Any
 import torch
 
 from ..errors import PassageError, RequestError
-from ..framing import Framing
+from ..framing import CONTINUATION, Framing, passage_cut
 from ..limits import MAX_NEW_TOKENS
 from ..presets import Preset
 from ..results import AuditionRequest, AuditionResult, StepView, TokenEvent
@@ -36,12 +37,28 @@ from .backend import PassageState, PassageTokens, TransformersBackend
 from .model import LoadedModel
 from .token_text import Vocabulary, vocabulary_of
 
-__all__ = ["Engine", "PassageState", "PassageTokens", "passage_limit"]
+__all__ = ["Engine", "PassageLength", "PassageState", "PassageTokens", "passage_limit"]
 
 #: Tokens of context kept free for the sample (the largest max_new_tokens).
 GENERATION_ROOM = MAX_NEW_TOKENS
 #: Default upper bound of the passage window (memory: one cache copy per row).
 MAX_PASSAGE_TOKENS = 1024
+
+
+@dataclasses.dataclass(frozen=True)
+class PassageLength:
+    """A passage's prompt as counted for the passage editor.
+
+    Attributes:
+        tokens: the prompt's tokens (kept ids, dropped count, window, cut offset in the prompt).
+        framed: whether an instruction and chat template surround the passage.
+        passage_cut: character offset in the passage where the kept part starts
+            (None when no character of the passage itself is left out).
+    """
+
+    tokens: PassageTokens
+    framed: bool
+    passage_cut: int | None
 
 
 def passage_limit(context_length: int, max_passage_tokens: int = MAX_PASSAGE_TOKENS) -> int:
@@ -93,6 +110,23 @@ class Engine:
         dropped = max(0, len(plain) - (self.passage_limit - len(prefix)))
         cut_at = int(offsets[dropped][0]) if dropped and offsets else None
         return PassageTokens(prefix + plain[dropped:], dropped, self.passage_limit, cut_at)
+
+    def measure_passage(self, text: str, framing: Framing | None = None) -> PassageLength:
+        """How long the prompt of ``text`` is, as the audition would build it with ``framing``.
+
+        Returns:
+            The prompt's kept and dropped tokens, and where in ``text`` itself the kept part
+            starts when the cut reaches into the passage (an instruction is cut first).
+
+        Raises:
+            PassageError: the passage is empty, or an instruction framing the model cannot use.
+        """
+        if not isinstance(text, str) or not text.strip():
+            raise PassageError("The passage is empty: write or paste a draft for the model to continue.")
+        framing = framing or Framing()
+        prompt = framing.prompt(text, self.loaded.tokenizer)
+        tokens = self.encode_passage(prompt)
+        return PassageLength(tokens, framing.kind != CONTINUATION, passage_cut(prompt, text, tokens.cut_at))
 
     def passage_state(self, ids: Sequence[int]) -> PassageState:
         """The forward pass of ``ids``, computed once and reused while the passage stays the same."""
