@@ -294,7 +294,6 @@ def test_the_after_export_check_reports_each_folders_verdict(window, qtbot, tmp_
     window.prompts.show_info = lambda title, text: shown.append(text)
     with qtbot.waitSignal(window.export_check.finished, timeout=120000) as blocker:
         window.menu_actions["export"].trigger()
-    window.export_check.shutdown()
     results = {result.preset: result for result in blocker.args[0]}
     assert window.errors == [] and all(r.problem is None for r in results.values()), results
     folders = {p.parent for p in (tmp_path / "checked").rglob("generation_config.json")}
@@ -305,6 +304,36 @@ def test_the_after_export_check_reports_each_folders_verdict(window, qtbot, tmp_
     message = window.statusBar().currentMessage()
     assert f"{kept.name}: {same.verdict}" in message and f"{dropped.name}: differs" in message
     assert kept.name in shown[0] and dropped.name in shown[0]
+
+
+def test_the_after_export_check_waits_for_the_audition_on_the_engine_thread(window, qtbot, tmp_path, monkeypatch):
+    # The check runs the model; queued on the engine thread it can never run while an audition uses
+    # the same model and cores (Qt: queued slots of one thread run one after the other).
+    from PySide6.QtCore import QThread
+
+    from samplewright.qt import export_check
+
+    where, ended, real = [], [], export_check.check_folder
+    # Direct connection: recorded on the engine thread the moment the audition's result is sent.
+    window.engine.worker.audition_ready.connect(lambda *args: ended.append(True), Qt.DirectConnection)
+
+    def recording(*args):
+        where.append((QThread.currentThread() is window.engine.thread, bool(ended)))
+        return real(*args)
+
+    monkeypatch.setattr(export_check, "check_folder", recording)
+    record = window.library.records()[0]
+    window.library_list.set_chosen([record.id])
+    window.prompts.choose_export_target = lambda presets, add_closest: ExportChoice("transformers", check=True)
+    window.prompts.ask_folder = lambda *args: str(tmp_path / "queued")
+    window.prompts.show_info = lambda title, text: None
+    window.controls.samples_spin.setValue(2)
+    window.controls.tokens_spin.setValue(24)
+    qtbot.mouseClick(window.controls.generate_button, Qt.LeftButton)
+    assert window.audition.running()
+    with qtbot.waitSignal(window.export_check.finished, timeout=120000):
+        window.menu_actions["export"].trigger()
+    assert where == [(True, True)]  # on the engine thread, after the audition had ended
 
 
 def test_the_after_export_check_needs_a_passage(window, tmp_path):

@@ -3,9 +3,10 @@ generate()'s own processors on the current passage and tell the user how close
 it came to samplewright's chain.
 
 The check (:func:`samplewright.core.engines.fidelity.verify_folder`) runs the
-model, so it runs on a thread of its own; that thread only emits plain results
-and the :class:`ExportChecker` (on the UI thread) shows them in the status bar
-and a message.
+model, so it is queued on the window's engine thread like an audition: it never
+runs at the same time as one (they would share the model and the cores), and
+the :class:`ExportChecker` (on the UI thread) shows its plain results in the
+status bar and a message.
 """
 
 from __future__ import annotations
@@ -13,13 +14,16 @@ from __future__ import annotations
 import dataclasses
 from collections.abc import Callable, Sequence
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from PySide6.QtCore import QObject, QThread, Signal
+from PySide6.QtCore import QObject, Signal
 from PySide6.QtWidgets import QStatusBar
 
 from ..core.presets import Preset
 from .prompts import QtPrompts
+
+if TYPE_CHECKING:
+    from .workers import EngineThread
 
 
 @dataclasses.dataclass(frozen=True)
@@ -50,26 +54,11 @@ def check_folder(folder: Path, preset: Preset, loaded: Any, passage: str) -> Fol
     return FolderCheck(preset.name, folder, measure.verdict, measure.max_tv)
 
 
-class ExportCheckThread(QThread):
-    """Checks the folders one after the other; emits ``checked(list[FolderCheck])`` at the end.
-    Never touches a widget."""
-
-    checked = Signal(object)
-
-    def __init__(self, jobs: Sequence[tuple[Path, Preset]], loaded: Any, passage: str, parent=None):
-        super().__init__(parent)
-        self.jobs, self.loaded, self.passage = list(jobs), loaded, passage
-
-    def run(self) -> None:
-        """Check every folder and hand the results over."""
-        self.checked.emit([check_folder(folder, preset, self.loaded, self.passage) for folder, preset in self.jobs])
-
-
 class ExportChecker(QObject):
     """Starts the after-export check and shows its results.
 
     Args:
-        loaded_model: returns the window's loaded model, or None while none is loaded.
+        engine: the window's engine thread (the check is queued there).
         passage_text: returns the current passage.
 
     Signals:
@@ -80,22 +69,25 @@ class ExportChecker(QObject):
 
     def __init__(
         self,
-        loaded_model: Callable[[], Any],
+        engine: EngineThread,
         passage_text: Callable[[], str],
         prompts: QtPrompts,
         status: QStatusBar,
         parent: QObject | None = None,
     ):
         super().__init__(parent)
-        self.loaded_model, self.passage_text = loaded_model, passage_text
+        self.engine, self.passage_text = engine, passage_text
         self.prompts, self.status = prompts, status
-        self.thread: ExportCheckThread | None = None
+        self.serial: int | None = None  # the check queued or running
+        engine.worker.export_checked.connect(self._on_checked)
+        engine.worker.failed.connect(self._on_failed)
 
     def start(self, presets: Sequence[Preset], files: Sequence[Path]) -> bool:
-        """Check each written ``generation_config.json``'s folder; False (and says why) when it cannot start."""
-        loaded, passage = self.loaded_model(), self.passage_text().strip()
+        """Queue a check of each written ``generation_config.json``'s folder; False (and says why)
+        when it cannot start."""
+        passage = self.passage_text().strip()
         why = None
-        if loaded is None:
+        if self.engine.worker.loaded_model is None:
             why = "no model is loaded yet. Load one, then export again with the check ticked."
         elif not passage:
             why = "the passage is empty. Type or open a passage, then export again with the check ticked."
@@ -105,17 +97,20 @@ class ExportChecker(QObject):
             self.prompts.show_error("The export was written but not checked", f"It was not checked because {why}")
             return False
         jobs = [(Path(path).parent, preset) for path, preset in zip(files, presets, strict=True)]
-        self.thread = ExportCheckThread(jobs, loaded, passage)
-        self.thread.checked.connect(self._on_checked)
-        self.status.showMessage(f"Checking {len(jobs)} exported preset(s) with transformers on the passage…")
-        self.thread.start()
+        self.status.showMessage(
+            f"Checking {len(jobs)} exported preset(s) with transformers on the passage (after any audition under way)…"
+        )
+        self.serial = self.engine.check_export(jobs, passage)
         return True
 
     def running(self) -> bool:
-        """True while a check runs."""
-        return self.thread is not None and self.thread.isRunning()
+        """True while a check is queued or runs."""
+        return self.serial is not None
 
-    def _on_checked(self, results: list[FolderCheck]) -> None:
+    def _on_checked(self, serial: int, results: list[FolderCheck]) -> None:
+        if serial != self.serial:
+            return
+        self.serial = None
         lines = [result.line() for result in results]
         self.status.showMessage("transformers check: " + "; ".join(lines), 15000)
         self.prompts.show_info(
@@ -125,7 +120,10 @@ class ExportChecker(QObject):
         )
         self.finished.emit(results)
 
-    def shutdown(self) -> None:
-        """Wait for a running check to end (the window calls this when it closes)."""
-        if self.thread is not None:
-            self.thread.wait()
+    def _on_failed(self, serial: int, kind: str, message: str) -> None:
+        if serial != self.serial:
+            return
+        self.serial = None
+        self.status.showMessage("The transformers check of the export did not run.", 15000)
+        if message:
+            self.prompts.show_error("The export was written but not checked", message)

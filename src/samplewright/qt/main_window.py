@@ -166,9 +166,7 @@ class MainWindow(QMainWindow):
             self.engine, self.settings, prompts, self.model_label, self.model_progress, self.passage, self
         )
         model_name = lambda: self.models.info.name if self.models.info else None  # noqa: E731
-        self.export_check = ExportChecker(
-            lambda: self.engine.worker.loaded_model, self.passage.text, prompts, status, self
-        )
+        self.export_check = ExportChecker(self.engine, self.passage.text, prompts, status, self)
         self.presets = PresetController(
             draft, in_use, self.editor, presets_list, prompts, status, model_name, self, checker=self.export_check
         )
@@ -226,7 +224,6 @@ class MainWindow(QMainWindow):
             # Waiting on the engine can take a moment (a model load stops at its next progress report).
             self.statusBar().showMessage("Closing…")
             self.hide()
-            self.export_check.shutdown()
             self.engine.shutdown()
             self.library_watch.stop()
             self.library_list.cleanup()

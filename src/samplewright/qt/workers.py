@@ -120,6 +120,7 @@ class EngineWorker(QObject):
     audition_ready = Signal(int, object, object)  # serial, AuditionResult, list[metrics dict]
     step_ready = Signal(int, object)  # serial, StepView
     passage_counted = Signal(int, object)  # serial, PassageLength
+    export_checked = Signal(int, object)  # serial, list[FolderCheck]
     failed = Signal(int, str, str)  # serial, job kind, message
 
     def __init__(self, model_loader: Callable, engine_factory: Callable, metrics: Callable):
@@ -248,6 +249,21 @@ class EngineWorker(QObject):
 
         self._guard(serial, "count", job)
 
+    @Slot(int, object, str)
+    def check_export(self, serial: int, jobs, passage: str) -> None:
+        """Run each exported folder of ``jobs`` ((folder, preset) pairs) through transformers on ``passage``."""
+        from .export_check import check_folder
+
+        def job():
+            loaded = self._need_engine().loaded
+            results = []
+            for folder, preset in jobs:
+                self._check(serial)
+                results.append(check_folder(folder, preset, loaded, passage))
+            self.export_checked.emit(serial, results)
+
+        self._guard(serial, "export check", job)
+
     def _need_engine(self):
         if self._engine is None:
             raise SamplewrightError(
@@ -269,6 +285,7 @@ class EngineThread(QObject):
     _audition = Signal(int, object)
     _step = Signal(int, object)
     _count = Signal(int, str, object)
+    _export_check = Signal(int, object, str)
 
     def __init__(self, worker: EngineWorker, parent: QObject | None = None):
         super().__init__(parent)
@@ -281,6 +298,7 @@ class EngineThread(QObject):
         self._audition.connect(worker.run_audition)
         self._step.connect(worker.compute_step)
         self._count.connect(worker.count_passage)
+        self._export_check.connect(worker.check_export)
         _THREADS.add(self.thread)
         self.thread.start()
 
@@ -311,6 +329,12 @@ class EngineThread(QObject):
         """Queue a token count of ``text`` framed by ``framing`` (None: plain); returns its serial."""
         serial = self.next_serial()
         self._count.emit(serial, text, framing)
+        return serial
+
+    def check_export(self, jobs, passage: str) -> int:
+        """Queue the after-export check of ``jobs`` ((folder, preset) pairs); returns its serial."""
+        serial = self.next_serial()
+        self._export_check.emit(serial, list(jobs), passage)
         return serial
 
     def cancel(self, serial: int) -> None:
