@@ -209,3 +209,28 @@ def test_progress_shows_time_left_while_running(qtbot, view):
     assert status.endswith(" left") and " of " in status and "tokens/s" in status
     assert bar.startswith("%p% · ") and bar.endswith(" left")
     assert view.progress.format() == "%p%"  # the finished bar no longer promises time
+
+
+def test_point_names_stay_inside_the_map_and_apart():
+    # Plot-labelling practice (common practice): a name near the right edge is written to the left
+    # of its point, and of two close points the lower one's name goes below it so the two names
+    # do not print over each other.
+    from samplewright.qt.quality_map import _label_anchors
+
+    labels = [("Greedy", 0.81, -1.35), ("Typical", 0.968, -2.242), ("Lively", 0.992, -2.307), ("Warm", 0.996, -2.665)]
+    anchors = _label_anchors(labels)
+    assert anchors[0] == (0.0, 1.0)  # left half: name to the right, above
+    assert anchors[1] == (1.0, 1.0)  # right half: to the left, above
+    assert anchors[2] == (1.0, 0.0)  # close under "Typical": below
+    assert anchors[3] == (1.0, 1.0)  # far enough below the others
+    assert _label_anchors([]) == []
+    assert _label_anchors([("one", 1.0, 1.0)]) == [(0.0, 1.0)]
+
+
+def test_the_measures_table_gets_the_full_width(qtbot, view):
+    # Every measure column must be readable at the default 1400-pixel window (common practice:
+    # a table of numbers is not squeezed into a side column).
+    view.resize(1400, 860)
+    view.show()
+    qtbot.waitExposed(view)
+    assert view.table.width() > 0.7 * view.width()

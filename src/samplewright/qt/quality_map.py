@@ -163,8 +163,9 @@ class QualityMap(QWidget):
             text = pg.TextItem("", color="#303030", anchor=(0, 1))
             self.plot_widget.getPlotItem().addItem(text)
             self.labels.append(text)
-        for item, (text, x, y) in zip(self.labels, labels, strict=False):
+        for item, (text, x, y), anchor in zip(self.labels, labels, _label_anchors(labels), strict=False):
             item.setText(text)
+            item.setAnchor(anchor)
             item.setPos(x, y)
             item.setVisible(True)
         for item in self.labels[len(labels) :]:
@@ -210,3 +211,23 @@ def _below(estimate) -> float:
 
 def _above(estimate) -> float:
     return 0.0 if estimate.high is None else estimate.high - estimate.value
+
+
+def _label_anchors(labels: list[tuple[str, float, float]]) -> list[tuple[float, float]]:
+    """Where each point's name sits: to the left of points in the right half (so the plot's edge
+    never cuts a name), and below the point instead of above when a higher point close by
+    already has its name above (names are long, so "close" is a third of the spread across and
+    a twelfth of the spread up)."""
+    if not labels:
+        return []
+    xs, ys = [c[1] for c in labels], [c[2] for c in labels]
+    middle = (min(xs) + max(xs)) / 2
+    near_x, near_y = (max(xs) - min(xs) or 1.0) / 3, (max(ys) - min(ys) or 1.0) / 12
+    above: list[tuple[float, float]] = []
+    anchors: dict[int, tuple[float, float]] = {}
+    for i in sorted(range(len(labels)), key=lambda n: -ys[n]):
+        crowded = any(abs(xs[i] - x) < near_x and abs(ys[i] - y) < near_y for x, y in above)
+        if not crowded:
+            above.append((xs[i], ys[i]))
+        anchors[i] = (1.0 if xs[i] > middle else 0.0, 0.0 if crowded else 1.0)
+    return [anchors[i] for i in range(len(labels))]

@@ -6,8 +6,10 @@ Uses the default model, the first demo passage and the starter presets, in
 a fresh temporary library and settings folder (the user's own are not
 touched). Writes ``1-ready.png`` (before a run), ``2-audition.png`` (after a
 run), ``3-step.png`` (inspecting one step) with ``3-step-view.png`` (the step
-view alone), and ``4-accented.png`` (a passage with accented names, a sample
-whose characters are spread over several tokens, inspected).
+view alone), ``4-accented.png`` (a passage with accented names, a sample
+whose characters are spread over several tokens, inspected), and
+``5-evaluation.png`` (the evaluation window after a small run over a demo
+passage set, one preset's samples shown beside another's).
 """
 
 from __future__ import annotations
@@ -21,6 +23,9 @@ from pathlib import Path
 
 SIZE = (1400, 900)
 PREFERRED = ("Timetable notice — exact", "Customer reply — warm", "Newsletter — lively")
+#: The evaluation screenshot's passage set and presets (demo set and starter presets).
+EVALUATION_SET = "customer-replies"
+EVALUATION_PRESETS = ("Greedy baseline", "Customer reply — warm", "Newsletter — lively", "Typical — steady")
 #: An invented notice with accented place names, so samples carry characters of several bytes.
 ACCENTED_PASSAGE = (
     "Notice to passengers: from Monday the ferry to Ærøskøbing calls at Søby and Fåborg. "
@@ -40,7 +45,9 @@ def _wait(app, until: Callable[[], bool], seconds: float, what: str) -> None:
 def _save(app, widget, path: Path) -> None:
     for _ in range(5):
         app.processEvents()
-    widget.window().inspector.plot.flush()
+    inspector = getattr(widget.window(), "inspector", None)
+    if inspector is not None:
+        inspector.plot.flush()  # the step view redraws on a timer: draw it now
     app.processEvents()
     widget.grab().save(str(path))
     print(f"wrote {path}")
@@ -116,8 +123,30 @@ def render(outdir: Path, model_seconds: float = 600, size: tuple[int, int] = SIZ
         _wait(app, lambda: not window.audition.running(), 900, "the audition")
         _inspect(app, window, *_accented(window))
         _save(app, window, files[4])
+        files.append(_evaluation(app, window, outdir / "5-evaluation.png"))
         window.close()
     return files
+
+
+def _evaluation(app, window, path: Path) -> Path:
+    """A small evaluation run (three presets, one demo passage set) in the evaluation window."""
+    window.evaluation.open()
+    shown = window.evaluation.current()
+    view = shown.view
+    view.sets_panel.add_demo_sets()
+    view.sets_panel.check(EVALUATION_SET)
+    view.reload_presets()
+    view.tick_presets(list(EVALUATION_PRESETS))
+    view.samples.setValue(6)
+    view.tokens.setValue(32)
+    view.seed.setValue(7)
+    view.start_evaluation()
+    _wait(app, lambda: not view.running, 1800, "the evaluation run")
+    view.select_preset(1)
+    view.compare.setCurrentIndex(min(1, view.compare.count() - 1))
+    _save(app, shown, path)
+    shown.close()
+    return path
 
 
 def _size(text: str) -> tuple[int, int] | None:
