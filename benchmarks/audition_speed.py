@@ -162,9 +162,43 @@ def comparison(loaded, passage, presets, passage_ids, args) -> float:
         baseline_runs.append(run_baseline(loaded, passage_ids, presets, args.tokens, seed=repeat))
         for label, (n, s) in (("engine", engine_runs[-1]), ("baseline", baseline_runs[-1])):
             print(f"  run {repeat + 1} {label:8s}: {n} tokens in {s:.2f} s = {n / s:.1f} tokens/s", flush=True)
-    return report_sides(
+    rate = report_sides(
         ("engine audition (passage pass included)", engine_runs), ("baseline generate()", baseline_runs), "ratio"
     )
+    chosen = auto_choice(loaded)
+    if chosen != "float32":
+        # What a user gets by default on this machine (auto's precision) against generate() as
+        # transformers runs it by default on a CPU (float32).
+        other = precision_copy(loaded, chosen)
+        run_engine(Engine(other), passage, presets[:1], SAMPLES, 2, seed=0)
+        runs = [run_engine(Engine(other), passage, presets, SAMPLES, args.tokens, seed=r) for r in range(args.repeats)]
+        report_sides(
+            (f"engine audition in {chosen} (auto's choice here)", runs),
+            ("baseline generate() in float32", baseline_runs),
+            f"ratio at auto's choice ({chosen} against float32)",
+        )
+    return rate
+
+
+_COPIES: dict[str, object] = {}
+
+
+def precision_copy(loaded, name: str):
+    """A copy of ``loaded`` in precision ``name`` (made once per run)."""
+    from samplewright.core.engine import precision
+
+    if name not in _COPIES:
+        _COPIES[name] = precision.apply_precision(copy.deepcopy(loaded), name)
+    return _COPIES[name]
+
+
+def auto_choice(loaded) -> str:
+    """The precision ``auto`` picks for the default model on this machine (measured once, then stored)."""
+    from samplewright.core.engine import precision
+    from samplewright.core.engine.model import cache_key, cache_root, default_model_path
+
+    folder = cache_root() / cache_key(default_model_path())
+    return precision.choose(loaded, precision.choice_file_for(default_model_path(), folder, cache_root()))
 
 
 def overhead_and_precision(loaded, passage, presets, passage_ids, args) -> float:
@@ -175,7 +209,7 @@ def overhead_and_precision(loaded, passage, presets, passage_ids, args) -> float
     from samplewright.core.engine.model import cache_key, cache_root, default_model_path
 
     rows = len(presets) * SAMPLES
-    bf16 = precision.apply_precision(copy.deepcopy(loaded), "bfloat16")
+    bf16 = precision_copy(loaded, "bfloat16")
     print(f"\n-- overhead at {rows} rows, float32 and bfloat16 ({machine_line()})")
     rates = {}
     for model in (loaded, bf16):
@@ -188,7 +222,7 @@ def overhead_and_precision(loaded, passage, presets, passage_ids, args) -> float
             f"overhead ratio: {rate / bare:.2f}; sampling step outside the model {share:.0%} of a step"
         )
     folder = cache_root() / cache_key(default_model_path())
-    chosen = precision.choose(loaded, precision.choice_file_for(default_model_path(), folder, cache_root()))
+    chosen = auto_choice(loaded)
     stored = precision._read(folder / "precision.json").get(precision.machine_key(), {})
     measured = ", ".join(f"{k} {v:.1f} tokens/s" for k, v in stored.get("tokens_per_second", {}).items())
     print(f"auto chose: {chosen} (its measurement at 16 rows: {measured or 'stored earlier'})")
