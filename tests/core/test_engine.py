@@ -115,22 +115,32 @@ def test_recorded_probabilities_match_shape(engine, tiny_model):
 
 
 class ForwardLog:
-    """Records the input shape of every model call."""
+    """Records the input shape of every model call the batch makes through the engine's
+    backend: the passage pass (1 × passage) and each decoding step (rows × 1), whichever
+    way the backend runs the model (transformers' modules or the lean step)."""
 
-    def __init__(self, model):
+    def __init__(self, engine):
         self.shapes = []
-        self._handle = model.register_forward_pre_hook(self._record, with_kwargs=True)
+        self._backend = engine.backend
+        encode, step = self._backend.encode, self._backend.step
 
-    def _record(self, module, args, kwargs):
-        self.shapes.append(tuple(kwargs["input_ids"].shape))
+        def logged_encode(ids):
+            self.shapes.append((1, len(ids)))
+            return encode(ids)
+
+        def logged_step(ids, cache):
+            self.shapes.append((ids.shape[0], 1))
+            return step(ids, cache)
+
+        self._backend.encode, self._backend.step = logged_encode, logged_step
 
     def close(self):
-        self._handle.remove()
+        del self._backend.encode, self._backend.step
 
 
 def test_passage_runs_once_and_rows_share_each_step(tiny_model):
     engine = Engine(tiny_model)
-    log = ForwardLog(tiny_model.model)
+    log = ForwardLog(engine)
     try:
         first = audition(engine, [WARM, MIXED], samples=2, tokens=4, seed=9)
         again = audition(engine, [WARM, MIXED], samples=2, tokens=4, seed=9)
@@ -147,7 +157,7 @@ def test_passage_runs_once_and_rows_share_each_step(tiny_model):
 def test_finished_rows_leave_the_batch_without_changing_results(tiny_model):
     engine = Engine(tiny_model)
     short, long = WARM.replace(name="short", max_new_tokens=2), WARM.replace(name="long", max_new_tokens=6)
-    log = ForwardLog(tiny_model.model)
+    log = ForwardLog(engine)
     try:
         both = audition(engine, [short, long], samples=1, tokens=10, seed=2)
     finally:

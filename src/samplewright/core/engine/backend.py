@@ -22,7 +22,7 @@ from typing import Any, Protocol
 
 import torch
 
-from . import shared_attention
+from . import lean_decode, shared_attention
 
 
 @dataclasses.dataclass(frozen=True)
@@ -85,14 +85,23 @@ class TransformersBackend:
         loaded: the model (a :class:`~samplewright.core.engine.model.LoadedModel`).
         shared: use the shared passage cache where the model supports it
             (False forces a copy of the passage cache per row).
+        lean: run decoding steps on the shared cache with the lean step
+            (:mod:`samplewright.core.engine.lean_decode`) where it supports the
+            model (False: always transformers' modules).
     """
 
-    def __init__(self, loaded, shared: bool = True):
+    def __init__(self, loaded, shared: bool = True, lean: bool = True):
         self.loaded = loaded
         self.model = loaded.model
         self.eos_ids: frozenset[int] = loaded.eos_ids
         self.context_length: int = loaded.context_length
         self.shared = bool(shared) and shared_attention.install(self.model)
+        #: The lean decoding step, or None (then :attr:`lean_note` says why).
+        self.lean: lean_decode.LeanDecoder | None = None
+        self.lean_note = "switched off" if not lean else "needs the shared passage cache"
+        if lean and self.shared:
+            self.lean_note = lean_decode.unsupported_reason(self.model) or ""
+            self.lean = None if self.lean_note else lean_decode.LeanDecoder(self.model)
         self.device = next(self.model.parameters()).device
         # Tokens decoded one at a time are few and repeat often: remember them.
         self._texts: dict[int, str] = {}
@@ -128,6 +137,8 @@ class TransformersBackend:
 
     def step(self, ids: torch.Tensor, cache: RowsCache) -> torch.Tensor:
         """Run every row one token further (see :class:`ModelBackend`)."""
+        if self.lean is not None and isinstance(cache, shared_attention.SharedPassageCache):
+            return self.lean.step(ids, cache)
         extra = {shared_attention.SHARED_KWARG: cache} if isinstance(cache, shared_attention.SharedPassageCache) else {}
         out = self.model(
             input_ids=ids.unsqueeze(-1).to(self.device), cache=cache, use_cache=True, logits_to_keep=1, **extra
