@@ -13,6 +13,8 @@ One run prints, each headed with the CPU model and the machine's load:
    decoding steps only; also the sampling step's share of a step;
 3. float32 and bfloat16 side by side, and which one ``auto`` chose;
 4. one row: the audition's steps/s against the bare forward pass's (target >= 1.3x);
+   in (2) and (4) the audition runs with the lean decoding step and with
+   transformers' modules side by side, and each one's decoding step alone;
 5. a scaling table: tokens/s and peak resident memory at 1, 4, 16, 32 and 96
    rows for a 200-token and a 1,000-token passage, shared passage cache
    against a copy per row (each cell in its own process, so each peak is its own);
@@ -177,6 +179,18 @@ def comparison(loaded, passage, presets, passage_ids, args) -> float:
             ("baseline generate() in float32", baseline_runs),
             f"ratio at auto's choice ({chosen} against float32)",
         )
+    packed = max(
+        n / s
+        for n, s in (
+            run_engine(Engine(loaded, packed_weights=True), passage, presets, SAMPLES, args.tokens, seed=repeat)
+            for repeat in range(args.repeats)
+        )
+    )
+    baseline = max(n / s for n, s in baseline_runs)
+    print(
+        f"engine audition with packed weights: {packed:.1f} tokens/s, ratio {packed / baseline:.2f} "
+        f"(packed copies add {packed_memory_mb(loaded):.0f} MB)"
+    )
     return rate
 
 
@@ -201,25 +215,90 @@ def auto_choice(loaded) -> str:
     return precision.choose(loaded, precision.choice_file_for(default_model_path(), folder, cache_root()))
 
 
+def packed_memory_mb(loaded) -> float:
+    """Resident memory the lean step's packed weight copies add (Linux; 0 elsewhere)."""
+    from samplewright.core.engine.backend import TransformersBackend
+
+    def resident() -> float:
+        try:
+            with open("/proc/self/statm") as f:
+                return int(f.read().split()[1]) * os.sysconf("SC_PAGE_SIZE") / 2**20
+        except (OSError, ValueError):
+            return 0.0
+
+    before = resident()
+    backend = TransformersBackend(loaded, packed_weights=True)
+    grown = resident() - before
+    del backend
+    return grown
+
+
+#: The decoding steps compared: transformers' modules, the lean step, the lean step with packed weights.
+STEP_KINDS = {"modules": {"lean_step": False}, "lean": {}, "packed": {"packed_weights": True}}
+
+
+def model_steps(loaded, passage_ids, rows: int, tokens: int, kind: str) -> float:
+    """The backend's decoding step alone on the shared passage cache (no sampling): steps/s
+    for one of :data:`STEP_KINDS`."""
+    import torch
+
+    from samplewright.core.engine.backend import TransformersBackend
+
+    options = STEP_KINDS[kind]
+    backend = TransformersBackend(
+        loaded, lean=options.get("lean_step", True), packed_weights=options.get("packed_weights", False)
+    )
+    with torch.inference_mode():
+        cache = backend.start_rows(backend.encode(passage_ids), rows, tokens + 1)
+        ids = torch.full((rows,), 42, dtype=torch.long)
+        start = time.perf_counter()
+        for _ in range(tokens):
+            ids = backend.step(ids, cache).argmax(-1)
+        return tokens / (time.perf_counter() - start)
+
+
+def side_by_side(model, passage, presets, passage_ids, samples: int, args) -> dict[str, float]:
+    """At ``len(presets) * samples`` rows: the audition with each of :data:`STEP_KINDS`, each
+    backend step alone, and transformers' bare forward pass (steps/s and tokens/s)."""
+    from samplewright.core.engine.engine import Engine
+
+    rows = len(presets) * samples
+    found: dict[str, float] = {}
+    for kind, options in STEP_KINDS.items():
+        engine = Engine(model, **options)
+        rate, share = decoding_rate(engine, passage, presets, samples, args.tokens, args.repeats)
+        found[kind], found[kind + " share"] = rate, share
+        del engine
+        found[kind + " step"] = max(model_steps(model, passage_ids, rows, args.tokens, kind) for _ in range(2))
+    found["bare"] = max(bare_forward(model, passage_ids, rows, args.tokens) for _ in range(2))
+    return found
+
+
 def overhead_and_precision(loaded, passage, presets, passage_ids, args) -> float:
-    """Sections 2 to 4: overhead ratio and sampling share, float32 vs bfloat16, one row.
+    """Sections 2 to 4: overhead ratio and sampling share, float32 vs bfloat16, one row; the
+    lean decoding step beside transformers' modules in each.
     Returns the float32 decoding rate at 16 rows (the CLI's rate the window is compared with)."""
     from samplewright.core.engine import precision
-    from samplewright.core.engine.engine import Engine
+    from samplewright.core.engine.backend import TransformersBackend
     from samplewright.core.engine.model import cache_key, cache_root, default_model_path
 
     rows = len(presets) * SAMPLES
     bf16 = precision_copy(loaded, "bfloat16")
+    note = TransformersBackend(loaded).lean_note
     print(f"\n-- overhead at {rows} rows, float32 and bfloat16 ({machine_line()})")
+    if note:
+        print(f"lean step not used: {note}")
     rates = {}
     for model in (loaded, bf16):
-        engine = Engine(model)
-        rate, share = decoding_rate(engine, passage, presets, SAMPLES, args.tokens, args.repeats)
-        rates[model.precision] = rate
-        bare = max(bare_forward(model, passage_ids, rows, args.tokens) for _ in range(2))
+        f = side_by_side(model, passage, presets, passage_ids, SAMPLES, args)
+        rates[model.precision] = f["lean"]
         print(
-            f"{model.precision:9s}: audition {rate:6.1f} tokens/s, bare forward pass {bare:6.1f} tokens/s, "
-            f"overhead ratio: {rate / bare:.2f}; sampling step outside the model {share:.0%} of a step"
+            f"{model.precision:9s}: audition {f['lean']:6.1f} tokens/s (lean step; transformers' modules "
+            f"{f['modules']:6.1f}; lean with packed weights {f['packed']:6.1f}), bare forward pass "
+            f"{f['bare']:6.1f} tokens/s, overhead ratio: {f['lean'] / f['bare']:.2f} (packed "
+            f"{f['packed'] / f['bare']:.2f}); sampling step outside the model {f['lean share']:.0%} of a step\n"
+            f"{'':11s}decoding step alone: lean {f['lean step'] * rows:6.1f} tokens/s, transformers' modules "
+            f"{f['modules step'] * rows:6.1f}, packed {f['packed step'] * rows:6.1f}"
         )
     folder = cache_root() / cache_key(default_model_path())
     chosen = auto_choice(loaded)
@@ -228,12 +307,14 @@ def overhead_and_precision(loaded, passage, presets, passage_ids, args) -> float
     print(f"auto chose: {chosen} (its measurement at 16 rows: {measured or 'stored earlier'})")
     print(f"\n-- one row, 1 preset x 1 sample x {args.tokens} tokens ({machine_line()})")
     for model in (loaded, bf16):
-        engine = Engine(model)
-        rate, share = decoding_rate(engine, passage, presets[:1], 1, args.tokens, args.repeats)
-        bare = max(bare_forward(model, passage_ids, 1, args.tokens) for _ in range(2))
+        f = side_by_side(model, passage, presets[:1], passage_ids, 1, args)
         print(
-            f"{model.precision:9s}: audition {rate:5.1f} steps/s, bare forward pass {bare:5.1f} steps/s, "
-            f"ratio {rate / bare:.2f}; sampling step {share:.0%} of a step"
+            f"{model.precision:9s}: audition {f['lean']:5.1f} steps/s (lean step; transformers' modules "
+            f"{f['modules']:5.1f}; packed {f['packed']:5.1f}), bare forward pass {f['bare']:5.1f} steps/s, "
+            f"ratio {f['lean'] / f['bare']:.2f} (modules {f['modules'] / f['bare']:.2f}, packed "
+            f"{f['packed'] / f['bare']:.2f}); sampling step {f['lean share']:.0%} of a step\n"
+            f"{'':11s}decoding step alone: lean {f['lean step']:5.1f} steps/s, transformers' modules "
+            f"{f['modules step']:5.1f}, packed {f['packed step']:5.1f}"
         )
     return rates["float32"]
 

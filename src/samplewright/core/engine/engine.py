@@ -73,10 +73,19 @@ class Engine:
     Not thread-safe: use one engine from one thread at a time.
     """
 
-    def __init__(self, loaded: LoadedModel, max_passage_tokens: int = MAX_PASSAGE_TOKENS, shared_cache: bool = True):
+    def __init__(
+        self,
+        loaded: LoadedModel,
+        max_passage_tokens: int = MAX_PASSAGE_TOKENS,
+        shared_cache: bool = True,
+        lean_step: bool = True,
+        packed_weights: bool = False,
+    ):
         self.loaded = loaded
-        #: What the audition batch calls (``shared_cache=False`` forces a passage copy per row).
-        self.backend = TransformersBackend(loaded, shared=shared_cache)
+        #: What the audition batch calls (``shared_cache=False`` forces a passage copy per row;
+        #: ``lean_step=False`` runs every decoding step through transformers' modules;
+        #: ``packed_weights=True`` trades weight memory for speed, see lean_decode).
+        self.backend = TransformersBackend(loaded, shared=shared_cache, lean=lean_step, packed_weights=packed_weights)
         self.passage_limit = passage_limit(loaded.context_length, max_passage_tokens)
         self._state: PassageState | None = None
         self._vocabulary: Vocabulary | None = None
