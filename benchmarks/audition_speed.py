@@ -216,21 +216,11 @@ def auto_choice(loaded) -> str:
 
 
 def packed_memory_mb(loaded) -> float:
-    """Resident memory the lean step's packed weight copies add (Linux; 0 elsewhere)."""
+    """Memory the lean step's packed weight copies take (on top of the model's own weights)."""
     from samplewright.core.engine.backend import TransformersBackend
 
-    def resident() -> float:
-        try:
-            with open("/proc/self/statm") as f:
-                return int(f.read().split()[1]) * os.sysconf("SC_PAGE_SIZE") / 2**20
-        except (OSError, ValueError):
-            return 0.0
-
-    before = resident()
-    backend = TransformersBackend(loaded, packed_weights=True)
-    grown = resident() - before
-    del backend
-    return grown
+    decoder = TransformersBackend(loaded, packed_weights=True).lean
+    return decoder.packed_bytes() / 2**20 if decoder is not None else 0.0
 
 
 #: The decoding steps compared: transformers' modules, the lean step, the lean step with packed weights.

@@ -169,7 +169,7 @@ def test_fused_weights_are_the_models_own_parameters(tiny_model):
     assert attn.k_proj.weight.data_ptr() == layer.qkv[attn.q_proj.weight.shape[0] :].data_ptr()
     assert mlp.gate_proj.weight.data_ptr() == layer.gate_up.data_ptr()
     assert mlp.up_proj.weight.data_ptr() == layer.gate_up[mlp.gate_proj.weight.shape[0] :].data_ptr()
-    assert _storage_bytes(loaded.model) == before
+    assert _storage_bytes(loaded.model) == before and decoder.packed_bytes() == 0
     # A second backend on the same model reuses them; the plain forward pass is unchanged.
     again = TransformersBackend(loaded).lean
     assert again is not None and again.layers[0].qkv.data_ptr() == layer.qkv.data_ptr()

@@ -30,9 +30,9 @@ sliding windows, models in training mode ...) is refused by
 
 With ``packed=True`` it also keeps the projections in oneDNN's packed layout
 (``torch.ops.mkldnn._reorder_linear_weight``), which saves repacking the
-weights inside every matrix product: measured 1.4x the decoding rate at 16
-rows in float32 and 1.3 to 1.5x in bfloat16, but the packed copies add about
-the model's weight memory again (docs/scaling.md), so it is off by default.
+weights inside every matrix product: measured 1.2 to 1.4x the lean step's
+rate at 16 rows in float32 and about 1.3x in bfloat16 (docs/scaling.md), but
+the packed copies add the model's weight memory again, so it is off by default.
 
 Once fused, the projections' parameters share storage, which safetensors'
 ``save_model`` refuses; the converted-model cache is written at load time,
@@ -238,6 +238,12 @@ class LeanDecoder:
             layer.packed = tuple(_pack(w) for w in (layer.qkv, layer.out_t.t(), layer.gate_up, layer.down_t.t()))
         half = self.head_dim // 2
         self.sign = torch.cat([-torch.ones(half), torch.ones(self.head_dim - half)]).to(self.device, self.dtype)
+
+    def packed_bytes(self) -> int:
+        """Memory held by the packed weight copies (0 when packing is off)."""
+        copies = [p for layer in self.layers for p in layer.packed]
+        copies += [self.head_packed] if self.head_packed is not None else []
+        return sum(p.numel() * p.element_size() for p in copies)
 
     def current(self) -> bool:
         """True while the model's parameters are still views into this decoder's fused weights."""
