@@ -197,3 +197,22 @@ def test_a_precision_change_rebuilds_the_fused_weights(tiny_model):
     assert backend.lean.current() and backend.lean.dtype == torch.float64
     assert loaded.model.model.layers[1].self_attn.q_proj.weight.data_ptr() == backend.lean.layers[1].qkv.data_ptr()
     assert float((step.double() - full).abs().max()) <= 1e-4
+
+
+def test_a_fused_model_can_still_be_saved_and_fuses_again(tiny_model, tmp_path):
+    # safetensors' save_model (the converted-model cache's writer) refuses tensors that are
+    # slices of one storage; save_converted separates them first, and the next lean step fuses again.
+    from safetensors.torch import load_file
+
+    from samplewright.core.engine.model import save_converted
+
+    loaded = _variant(tiny_model, seed=13)
+    backend = TransformersBackend(loaded)
+    assert backend.lean is not None and backend.lean.current()
+    save_converted(loaded.model, loaded.tokenizer, tmp_path / "saved")
+    stored = load_file(str(tmp_path / "saved" / "model.safetensors"))
+    q = loaded.model.model.layers[0].self_attn.q_proj.weight
+    assert torch.equal(stored["model.layers.0.self_attn.q_proj.weight"], q)
+    assert not backend.lean.current()
+    ids = Engine(loaded).encode_passage(PASSAGE).ids
+    assert max(_worst_step_difference(loaded, ids, rows=2, steps=3)) <= 1e-4

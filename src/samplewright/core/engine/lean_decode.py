@@ -35,8 +35,8 @@ rate at 16 rows in float32 and about 1.3x in bfloat16 (docs/scaling.md), but
 the packed copies add the model's weight memory again, so it is off by default.
 
 Once fused, the projections' parameters share storage, which safetensors'
-``save_model`` refuses; the converted-model cache is written at load time,
-before any lean step (transformers' ``save_pretrained`` copes either way).
+``save_model`` refuses: :func:`separate` gives them their own tensors again
+before such a save (a lean decoder notices and fuses again at its next step).
 """
 
 from __future__ import annotations
@@ -136,6 +136,15 @@ def fuse(linears: list[torch.nn.Linear]) -> torch.Tensor:
             lin.weight.data = fused[start : start + w.shape[0]]
             start += w.shape[0]
     return fused
+
+
+def separate(model) -> None:
+    """Give every linear weight of ``model`` that is a slice of a larger tensor (fused) its own copy."""
+    with torch.inference_mode(False), torch.no_grad():
+        for module in model.modules():
+            weight = getattr(module, "weight", None) if isinstance(module, torch.nn.Linear) else None
+            if weight is not None and weight.untyped_storage().nbytes() != weight.numel() * weight.element_size():
+                weight.data = weight.detach().clone()
 
 
 def _layer(decoder_layer) -> _Layer:

@@ -332,6 +332,9 @@ def save_converted(model, tokenizer, folder: Path) -> None:
     """
     from safetensors.torch import save_model
 
+    from .lean_decode import separate
+
+    separate(model)  # safetensors refuses the lean step's fused weights (views of one tensor)
     folder.parent.mkdir(parents=True, exist_ok=True)
     temp = Path(tempfile.mkdtemp(prefix=f".{folder.name}.", dir=folder.parent))
     try:
