@@ -160,7 +160,7 @@ def test_fused_weights_are_the_models_own_parameters(tiny_model):
     before = _storage_bytes(loaded.model)
     with torch.inference_mode():
         reference = loaded.model(torch.tensor([[3, 5, 8, 13]])).logits
-    decoder = TransformersBackend(loaded).lean
+    decoder = TransformersBackend(loaded, packed_weights=False).lean
     assert decoder is not None
     attn, mlp = loaded.model.model.layers[0].self_attn, loaded.model.model.layers[0].mlp
     layer = decoder.layers[0]
@@ -171,7 +171,7 @@ def test_fused_weights_are_the_models_own_parameters(tiny_model):
     assert mlp.up_proj.weight.data_ptr() == layer.gate_up[mlp.gate_proj.weight.shape[0] :].data_ptr()
     assert _storage_bytes(loaded.model) == before and decoder.packed_bytes() == 0
     # A second backend on the same model reuses them; the plain forward pass is unchanged.
-    again = TransformersBackend(loaded).lean
+    again = TransformersBackend(loaded, packed_weights=False).lean
     assert again is not None and again.layers[0].qkv.data_ptr() == layer.qkv.data_ptr()
     with torch.inference_mode():
         assert torch.equal(loaded.model(torch.tensor([[3, 5, 8, 13]])).logits, reference)
@@ -216,3 +216,36 @@ def test_a_fused_model_can_still_be_saved_and_fuses_again(tiny_model, tmp_path):
     assert not backend.lean.current()
     ids = Engine(loaded).encode_passage(PASSAGE).ids
     assert max(_worst_step_difference(loaded, ids, rows=2, steps=3)) <= 1e-4
+
+
+def test_engines_over_one_model_share_one_decoder_and_free_it_with_the_model(tiny_model):
+    # The window's engine and its evaluation screen's run over the same loaded model: one set of
+    # packed copies, not one per engine; and a model no longer used is freed with its decoder
+    # (Python's gc: weak references do not keep an object alive).
+    import gc
+    import weakref
+
+    loaded = _variant(tiny_model, seed=11)
+    first = TransformersBackend(loaded, packed_weights=True)
+    second = TransformersBackend(loaded, packed_weights=True)
+    assert first.lean is second.lean and first.lean is not None
+    gone = weakref.ref(loaded.model)
+    del first, second, loaded
+    gc.collect()
+    assert gone() is None
+
+
+def test_packing_is_left_on_only_within_its_memory_budget(tiny_model, monkeypatch):
+    # packed_size counts every projection and the output head once, at the weights' own width
+    # (the packed layout holds the same numbers, common practice for oneDNN's reordered weights).
+    loaded = _variant(tiny_model, seed=12)
+    model = loaded.model
+    expected = sum(
+        m.weight.numel() * m.weight.element_size() for m in model.modules() if isinstance(m, torch.nn.Linear)
+    )
+    assert lean_decode.packed_size(model) == expected
+    available = lean_decode.packing_available(torch.float32, torch.device("cpu"))
+    assert TransformersBackend(loaded).lean.packed == available  # the tiny model is far below the budget
+    small = _variant(tiny_model, seed=13)
+    monkeypatch.setattr(lean_decode, "PACKED_BUDGET_BYTES", expected - 1)
+    assert TransformersBackend(small).lean.packed is False

@@ -88,11 +88,11 @@ class TransformersBackend:
         lean: run decoding steps on the shared cache with the lean step
             (:mod:`samplewright.core.engine.lean_decode`) where it supports the
             model (False: always transformers' modules).
-        packed_weights: let the lean step keep packed copies of the weights
-            (faster, about twice the weight memory; off by default).
+        packed_weights: let the lean step keep packed copies of the weights (faster, about
+            twice the weight memory); None packs when the copies fit the lean step's budget.
     """
 
-    def __init__(self, loaded, shared: bool = True, lean: bool = True, packed_weights: bool = False):
+    def __init__(self, loaded, shared: bool = True, lean: bool = True, packed_weights: bool | None = None):
         self.loaded = loaded
         self.model = loaded.model
         self.eos_ids: frozenset[int] = loaded.eos_ids
@@ -103,7 +103,7 @@ class TransformersBackend:
         self.lean_note = "switched off" if not lean else "needs the shared passage cache"
         if lean and self.shared:
             self.lean_note = lean_decode.unsupported_reason(self.model) or ""
-            self.lean = None if self.lean_note else lean_decode.LeanDecoder(self.model, packed_weights)
+            self.lean = None if self.lean_note else lean_decode.shared_decoder(self.model, packed_weights)
         self.device = next(self.model.parameters()).device
         # Tokens decoded one at a time are few and repeat often: remember them.
         self._texts: dict[int, str] = {}

@@ -79,7 +79,7 @@ class Engine:
         max_passage_tokens: int = MAX_PASSAGE_TOKENS,
         shared_cache: bool = True,
         lean_step: bool = True,
-        packed_weights: bool = False,
+        packed_weights: bool | None = None,
     ):
         self.loaded = loaded
         #: What the audition batch calls (``shared_cache=False`` forces a passage copy per row;

@@ -42,6 +42,8 @@ before such a save (a lean decoder notices and fuses again at its next step).
 from __future__ import annotations
 
 import dataclasses
+import threading
+import weakref
 from typing import Any
 
 import torch
@@ -55,6 +57,44 @@ ACTIVATIONS = frozenset({"silu"})
 PACK_ROWS = 16
 #: Fewest rows for which the packed products are used in float32 (fewer measured no faster).
 PACKED_MIN_ROWS = {torch.float32: 3, torch.bfloat16: 1}
+#: Largest extra memory the packed copies may take when packing is left to the backend.
+PACKED_BUDGET_BYTES = 768 * 2**20
+
+_DECODERS: weakref.WeakKeyDictionary[Any, dict[bool, LeanDecoder]] = weakref.WeakKeyDictionary()
+_DECODERS_LOCK = threading.Lock()
+
+
+def packed_size(model) -> int:
+    """Bytes the packed copies of ``model``'s projections and output head would take."""
+    inner = model.model
+    weights = [model.lm_head.weight]
+    for layer in inner.layers:
+        attn, mlp = layer.self_attn, layer.mlp
+        weights += [attn.q_proj.weight, attn.k_proj.weight, attn.v_proj.weight, attn.o_proj.weight]
+        weights += [mlp.gate_proj.weight, mlp.up_proj.weight, mlp.down_proj.weight]
+    return sum(w.numel() * w.element_size() for w in weights)
+
+
+def shared_decoder(model, packed: bool | None = None) -> LeanDecoder | None:
+    """The one lean decoder of ``model`` (None when :func:`unsupported_reason` refuses it).
+
+    Args:
+        packed: keep packed weight copies; None packs when :func:`packed_size` is within
+            :data:`PACKED_BUDGET_BYTES`.
+
+    Engines over the same model (the window's and its evaluation screen's, on two
+    threads) get the same decoder: the fused weights are the model's own either way, and
+    the packed copies are made once.
+    """
+    if unsupported_reason(model) is not None:
+        return None
+    if packed is None:
+        packed = packed_size(model) <= PACKED_BUDGET_BYTES
+    with _DECODERS_LOCK:
+        decoders = _DECODERS.setdefault(model, {})
+        if packed not in decoders:
+            decoders[packed] = LeanDecoder(model, packed)
+        return decoders[packed]
 
 
 @dataclasses.dataclass
@@ -207,14 +247,16 @@ def _flash_available(dtype: torch.dtype, device: torch.device) -> bool:
 class LeanDecoder:
     """Runs one decoding step of every row of a :class:`SharedPassageCache` for a Llama model.
 
-    Build it with :meth:`for_model` (None when the model is not supported).
+    Get it with :func:`shared_decoder` (None when the model is not supported).
     It checks before every step that the model's weights are still the ones it
     fused (a precision change with ``model.to(dtype)`` replaces them) and
     rebuilds itself when they are not.
     """
 
     def __init__(self, model, packed: bool = False):
-        self.model = model
+        # A weak reference: the shared-decoder table is keyed by the model, and a strong one
+        # from here would keep every model ever loaded alive.
+        self._model = weakref.ref(model)
         self.want_packed = packed
         config = model.config
         self.heads = config.num_attention_heads
@@ -226,12 +268,13 @@ class LeanDecoder:
         self.scaling = self.head_dim**-0.5
         self._build()
 
-    @classmethod
-    def for_model(cls, model, packed: bool = False) -> LeanDecoder | None:
-        """A lean decoder for ``model``, or None when :func:`unsupported_reason` refuses it."""
-        if unsupported_reason(model) is not None:
-            return None
-        return cls(model, packed)
+    @property
+    def model(self):
+        """The model this decoder runs (it must still exist)."""
+        model = self._model()
+        if model is None:
+            raise RuntimeError("the lean decoder's model was freed")
+        return model
 
     def _build(self) -> None:
         inner = self.model.model
