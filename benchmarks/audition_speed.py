@@ -13,7 +13,8 @@ One run prints, each headed with the CPU model and the machine's load:
    decoding steps only; also the sampling step's share of a step;
 3. float32 and bfloat16 side by side, and which one ``auto`` chose;
 4. one row: the audition's steps/s against the bare forward pass's (target >= 1.3x);
-   in (2) and (4) the audition runs with the lean decoding step and with
+   in (2) and (4) the audition runs with the default decoding step (the lean
+   step with packed weights), the lean step without packing and
    transformers' modules side by side, and each one's decoding step alone;
 5. a scaling table: tokens/s and peak resident memory at 1, 4, 16, 32 and 96
    rows for a 200-token and a 1,000-token passage, shared passage cache
@@ -179,17 +180,17 @@ def comparison(loaded, passage, presets, passage_ids, args) -> float:
             ("baseline generate() in float32", baseline_runs),
             f"ratio at auto's choice ({chosen} against float32)",
         )
-    packed = max(
+    unpacked = max(
         n / s
         for n, s in (
-            run_engine(Engine(loaded, packed_weights=True), passage, presets, SAMPLES, args.tokens, seed=repeat)
+            run_engine(Engine(loaded, packed_weights=False), passage, presets, SAMPLES, args.tokens, seed=repeat)
             for repeat in range(args.repeats)
         )
     )
     baseline = max(n / s for n, s in baseline_runs)
     print(
-        f"engine audition with packed weights: {packed:.1f} tokens/s, ratio {packed / baseline:.2f} "
-        f"(packed copies add {packed_memory_mb(loaded):.0f} MB)"
+        f"the engine above keeps packed weight copies ({packed_memory_mb(loaded):.0f} MB, its default within "
+        f"the budget); without them: {unpacked:.1f} tokens/s, ratio {unpacked / baseline:.2f}"
     )
     return rate
 
@@ -224,7 +225,7 @@ def packed_memory_mb(loaded) -> float:
 
 
 #: The decoding steps compared: transformers' modules, the lean step, the lean step with packed weights.
-STEP_KINDS = {"modules": {"lean_step": False}, "lean": {}, "packed": {"packed_weights": True}}
+STEP_KINDS = {"modules": {"lean_step": False}, "lean": {"packed_weights": False}, "packed": {"packed_weights": True}}
 
 
 def model_steps(loaded, passage_ids, rows: int, tokens: int, kind: str) -> float:
@@ -281,30 +282,33 @@ def overhead_and_precision(loaded, passage, presets, passage_ids, args) -> float
     rates = {}
     for model in (loaded, bf16):
         f = side_by_side(model, passage, presets, passage_ids, SAMPLES, args)
-        rates[model.precision] = f["lean"]
+        rates[model.precision] = f["packed"]
         print(
-            f"{model.precision:9s}: audition {f['lean']:6.1f} tokens/s (lean step; transformers' modules "
-            f"{f['modules']:6.1f}; lean with packed weights {f['packed']:6.1f}), bare forward pass "
-            f"{f['bare']:6.1f} tokens/s, overhead ratio: {f['lean'] / f['bare']:.2f} (packed "
-            f"{f['packed'] / f['bare']:.2f}); sampling step outside the model {f['lean share']:.0%} of a step\n"
-            f"{'':11s}decoding step alone: lean {f['lean step'] * rows:6.1f} tokens/s, transformers' modules "
-            f"{f['modules step'] * rows:6.1f}, packed {f['packed step'] * rows:6.1f}"
+            f"{model.precision:9s}: audition {f['packed']:6.1f} tokens/s (the default: lean step with packed "
+            f"weights; without packing {f['lean']:6.1f}; transformers' modules {f['modules']:6.1f}), bare forward "
+            f"pass {f['bare']:6.1f} tokens/s, overhead ratio: {f['packed'] / f['bare']:.2f} (unpacked "
+            f"{f['lean'] / f['bare']:.2f}); sampling step outside the model {f['packed share']:.0%} of a step "
+            f"({f['packed share'] / f['packed'] * rows * 1000:.1f} ms per step)\n"
+            f"{'':11s}decoding step alone: packed {f['packed step'] * rows:6.1f} tokens/s, lean "
+            f"{f['lean step'] * rows:6.1f}, transformers' modules {f['modules step'] * rows:6.1f}"
         )
     folder = cache_root() / cache_key(default_model_path())
     chosen = auto_choice(loaded)
     stored = precision._read(folder / "precision.json").get(precision.machine_key(), {})
     measured = ", ".join(f"{k} {v:.1f} tokens/s" for k, v in stored.get("tokens_per_second", {}).items())
-    print(f"auto chose: {chosen} (its measurement at 16 rows: {measured or 'stored earlier'})")
+    print(f"auto chose: {chosen} (its stored measurement at 16 rows: {measured or 'none'})")
+    fresh = precision.measure(loaded)
+    print("measured again now: " + ", ".join(f"{k} {v:.1f} tokens/s" for k, v in fresh.items()))
     print(f"\n-- one row, 1 preset x 1 sample x {args.tokens} tokens ({machine_line()})")
     for model in (loaded, bf16):
         f = side_by_side(model, passage, presets[:1], passage_ids, 1, args)
         print(
-            f"{model.precision:9s}: audition {f['lean']:5.1f} steps/s (lean step; transformers' modules "
-            f"{f['modules']:5.1f}; packed {f['packed']:5.1f}), bare forward pass {f['bare']:5.1f} steps/s, "
-            f"ratio {f['lean'] / f['bare']:.2f} (modules {f['modules'] / f['bare']:.2f}, packed "
-            f"{f['packed'] / f['bare']:.2f}); sampling step {f['lean share']:.0%} of a step\n"
-            f"{'':11s}decoding step alone: lean {f['lean step']:5.1f} steps/s, transformers' modules "
-            f"{f['modules step']:5.1f}, packed {f['packed step']:5.1f}"
+            f"{model.precision:9s}: audition {f['packed']:5.1f} steps/s (the default; without packing "
+            f"{f['lean']:5.1f}; transformers' modules {f['modules']:5.1f}), bare forward pass {f['bare']:5.1f} "
+            f"steps/s, ratio {f['packed'] / f['bare']:.2f} (unpacked {f['lean'] / f['bare']:.2f}, modules "
+            f"{f['modules'] / f['bare']:.2f}); sampling step {f['packed share']:.0%} of a step\n"
+            f"{'':11s}decoding step alone: packed {f['packed step']:5.1f} steps/s, lean {f['lean step']:5.1f}, "
+            f"transformers' modules {f['modules step']:5.1f}"
         )
     return rates["float32"]
 
