@@ -83,8 +83,11 @@ def top_k(logits: torch.Tensor, k: torch.Tensor) -> torch.Tensor:
     return logits.masked_fill(~keep, NEG_INF)
 
 
-#: How many leading tokens are ranked before a row falls back to a full sort.
-CANDIDATES = 1024
+#: How many leading tokens are ranked, widest last: a row not settled among the
+#: first width's candidates is ranked again among the next, and a row settled
+#: in none of them is ranked in full. Small widths are cheap (``torch.topk``'s
+#: cost grows with the width) and settle peaked rows; flat rows need more.
+RANKING_WIDTHS = (64, 1024, 8192)
 
 
 def _prefix_keep(probs_sorted: torch.Tensor, mass: torch.Tensor) -> torch.Tensor:
@@ -94,18 +97,10 @@ def _prefix_keep(probs_sorted: torch.Tensor, mass: torch.Tensor) -> torch.Tensor
     return keep
 
 
-def _prefix_until_mass(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tensor) -> torch.Tensor:
-    """Rank tokens by ``key`` (descending, ties lower id first) and keep the
-    shortest prefix whose probability reaches ``mass - MASS_TOLERANCE``;
-    always at least the first token.
-
-    Only the top ``CANDIDATES`` keys are ranked (a full sort of the vocabulary
-    costs more than the model's forward pass); a row whose prefix is not
-    settled inside them (its last kept key is not strictly above every key
-    left out) is ranked in full, so the result equals a full stable sort.
-    """
-    vocab = probs.shape[-1]
-    m = min(CANDIDATES, vocab)
+def _prefix_among_top(probs, key, mass, m: int) -> tuple[torch.Tensor, torch.Tensor]:
+    """The prefix of :func:`_prefix_until_mass` ranked among the top ``m`` keys
+    only, and per row whether it is settled there (its last kept key is
+    strictly above every key left out, so a full sort would keep the same)."""
     values, ids = torch.topk(key, m, dim=-1)
     # Candidates in id order first, so the stable sort by value puts ties lower id first.
     by_id = torch.sort(ids, dim=-1).indices
@@ -113,14 +108,40 @@ def _prefix_until_mass(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tenso
     by_value = torch.sort(values, dim=-1, descending=True, stable=True).indices
     values, ids = values.gather(-1, by_value), ids.gather(-1, by_value)
     keep_sorted = _prefix_keep(probs.gather(-1, ids), mass)
-    keep = _mask_from_sorted(keep_sorted, ids, vocab)
-    if m < vocab:
-        last = keep_sorted.sum(-1, keepdim=True) - 1
-        unsettled = (values.gather(-1, last) <= values[..., -1:]).squeeze(-1).nonzero().flatten()
-        if unsettled.numel():
-            order = torch.sort(key[unsettled], dim=-1, descending=True, stable=True).indices
-            full = _prefix_keep(probs[unsettled].gather(-1, order), mass[unsettled])
-            keep[unsettled] = _mask_from_sorted(full, order, vocab)
+    last = keep_sorted.sum(-1, keepdim=True) - 1
+    settled = (values.gather(-1, last) > values[..., -1:]).squeeze(-1)
+    return _mask_from_sorted(keep_sorted, ids, key.shape[-1]), settled
+
+
+def _prefix_until_mass(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tensor) -> torch.Tensor:
+    """Rank tokens by ``key`` (descending, ties lower id first) and keep the
+    shortest prefix whose probability reaches ``mass - MASS_TOLERANCE``;
+    always at least the first token.
+
+    Only the top keys are ranked, ``RANKING_WIDTHS`` at a time (a full sort
+    of the vocabulary costs more than the model's forward pass); a row whose
+    prefix is not settled among any of them is ranked in full, so the result
+    equals a full stable sort.
+    """
+    vocab = probs.shape[-1]
+    keep = torch.zeros(probs.shape, dtype=torch.bool)
+    open_rows: torch.Tensor | None = None  # None: every row, unindexed
+    for m in RANKING_WIDTHS:
+        if m >= vocab:
+            break
+        if open_rows is None:
+            keep, settled = _prefix_among_top(probs, key, mass, m)
+            open_rows = (~settled).nonzero().flatten()
+        elif open_rows.numel():
+            part, settled = _prefix_among_top(probs[open_rows], key[open_rows], mass[open_rows], m)
+            keep[open_rows] = part
+            open_rows = open_rows[~settled]
+    if open_rows is None:
+        open_rows = torch.arange(probs.shape[0])
+    if open_rows.numel():
+        order = torch.sort(key[open_rows], dim=-1, descending=True, stable=True).indices
+        full = _prefix_keep(probs[open_rows].gather(-1, order), mass[open_rows])
+        keep[open_rows] = _mask_from_sorted(full, order, vocab)
     return keep
 
 
