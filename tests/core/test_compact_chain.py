@@ -239,3 +239,32 @@ def test_penalties_skip_only_parts_that_would_change_nothing():
         if preset.no_repeat_ngram_size:
             full = stages.no_repeat_ngram(full, history.banned)
         assert torch.equal(out, full), preset.name
+
+
+def _dead_tail(logits: torch.Tensor) -> torch.Tensor:
+    out = logits.clone()
+    out[0, 30:] = stages.NEG_INF  # a row with fewer live tokens than k
+    return out
+
+
+@pytest.mark.parametrize("name", ["top_k", "top_p", "min_p", "typical_p"])
+@pytest.mark.parametrize("case", ["ties", "quarters", "dead tail", "mixed k"])
+def test_truncation_gathered_directly_equals_the_stage_then_compacted(name, case):
+    # The truncation stages' direct compact forms against the plain stage (Fan et al. 2018; Holtzman
+    # et al. 2020; Nguyen et al. 2024; Meister et al. 2023) on tie-heavy logits: integers, and logits
+    # on a grid of quarters (a quantised model's logits often tie at the cut).
+    rows = [logits_of(s, integer=True) for s in range(4)] if case == "ties" else [logits_of(s) for s in range(4)]
+    logits = torch.stack(rows)
+    if case == "quarters":
+        logits = torch.round(logits * 4) / 4
+    if case == "dead tail":
+        logits = _dead_tail(logits)
+    presets = [Preset("cut", top_k=50, top_p=0.7, min_p=0.1, typical_p=0.6)] * 4
+    if case == "mixed k":
+        wider = Preset("wider", top_k=120, top_p=0.9, min_p=0.02, typical_p=0.9)
+        presets = [presets[0], wider, presets[0], wider]
+    params = RowParams.from_presets(presets)
+    history = RowHistory.build([HISTORY] * 4, [GENERATED] * 4, [0] * 4, VOCAB)
+    out = compact.shape_group(logits, params, history, (name,))
+    plain = compact.guarded(logits, registry.stage(name).apply(logits, params, history))
+    assert torch.equal(widened(out), plain)

@@ -26,6 +26,7 @@ from collections.abc import Sequence
 import torch
 
 from . import registry
+from . import stages as kernels
 from .chain import RowHistory, RowParams, _greedy_if_infinite, _is_neutral, _keep_one_if_empty
 from .stages import NEG_INF
 
@@ -53,12 +54,15 @@ def active_stages(order: Sequence[str], params: RowParams) -> tuple[str, ...]:
     return tuple(name for name in order if not _is_neutral(name, params))
 
 
-def guarded(before: torch.Tensor, after: torch.Tensor) -> torch.Tensor:
+def guarded(before: torch.Tensor, after: torch.Tensor, highest: torch.Tensor | None = None) -> torch.Tensor:
     """The chain's two guards (greedy over ``+inf``, then keep one token if a
     row is empty) with one reduction when neither applies: a row whose largest
-    logit is finite has no ``+inf`` and is not empty. Anything else (``+inf``,
-    an empty row, NaN) goes through the guards themselves."""
-    if bool(torch.isfinite(after.amax(dim=-1)).all()):
+    logit (``highest``, computed here when not given) is finite has no
+    ``+inf`` and is not empty. Anything else (``+inf``, an empty row, NaN)
+    goes through the guards themselves."""
+    if highest is None:
+        highest = after.amax(dim=-1)
+    if bool(torch.isfinite(highest).all()):
         return after
     return _keep_one_if_empty(before, _greedy_if_infinite(after))
 
@@ -72,8 +76,21 @@ def shape_group(logits: torch.Tensor, params: RowParams, history: RowHistory, st
     """
     current, ids = logits, None
     for position, name in enumerate(stages):
-        current = guarded(current, registry.stage(name).apply(current, params, history))
-        if ids is None:
+        narrow, after = _narrowed(name, current, params) if ids is None else (None, None)
+        if narrow is not None:
+            current, ids = narrow
+            if position + 1 < len(stages):
+                history = _gather_history(history, ids)
+            continue
+        if after is None:
+            after = registry.stage(name).apply(current, params, history)
+        if ids is not None:
+            current = guarded(current, after)
+            continue
+        # One pass gives both the guards' check and whether every row has lost a token at all.
+        lowest, highest = torch.aminmax(after, dim=-1)
+        current = guarded(current, after, highest)
+        if bool(torch.isneginf(lowest).all()) or current is not after:
             compact = _compact(current)
             if compact is not None:
                 current, ids = compact
@@ -82,16 +99,73 @@ def shape_group(logits: torch.Tensor, params: RowParams, history: RowHistory, st
     return Shaped(current, ids)
 
 
+#: The truncation stages whose kept tokens can be had as a mask: the live set
+#: is gathered from it directly (the stage itself is ``logits.masked_fill(~kept, -inf)``).
+_KEPT = {"top_p": kernels.top_p_kept, "min_p": kernels.min_p_kept, "typical_p": kernels.typical_p_kept}
+#: The built-in stage functions these shortcuts stand for (a stage registered
+#: again under one of these names runs as it is).
+_BUILT_IN = {name: registry.stage(name).apply for name in ("top_k", *_KEPT)}
+
+
+def _narrowed(name: str, logits: torch.Tensor, params: RowParams):
+    """For a truncation stage on the whole vocabulary: its result already
+    compact (``(narrow, ids)``, None when too wide), and its plain result when
+    that had to be made (else None). A compact result whose rows are not all
+    finite at their best (``+inf``, nothing kept) is refused, so the guards run
+    on the plain result."""
+    if name not in _BUILT_IN or registry.stage(name).apply is not _BUILT_IN[name]:
+        return None, None
+    if name == "top_k":
+        return _top_k_narrow(logits, params), None
+    kept = _KEPT[name](logits, params.values[name])
+    narrow = _gather(logits, kept)
+    if narrow is not None and bool(torch.isfinite(narrow[0].amax(dim=-1)).all()):
+        return narrow, None
+    return None, logits.masked_fill(~kept, NEG_INF)
+
+
+def _top_k_narrow(logits: torch.Tensor, params: RowParams) -> tuple[torch.Tensor, torch.Tensor] | None:
+    """Top-k's result already compact (logits and ascending ids), or None to take the plain stage.
+
+    Every token top-k keeps lies at or above the row's k-th value, so those
+    few are gathered first and the stage's own rule runs on them: above the
+    k-th value stay, and of the ties with it the lowest ids until k are kept
+    (the ties keep their id order in the gathered table). Kept logits are
+    unchanged and finite, so neither guard acts. Rows with different k, or
+    with fewer than k live tokens, take the plain stage.
+    """
+    k = params.values["top_k"]
+    first = int(k[0])
+    if not 0 < first <= min(COMPACT_LIMIT, logits.shape[-1] // 2) or not bool((k == first).all()):
+        return None
+    kth = torch.topk(logits, first, dim=-1).values[:, -1:]
+    if not bool(torch.isfinite(kth).all()):
+        return None
+    gathered = _gather(logits, logits >= kth)
+    if gathered is None:
+        return None
+    narrow, ids = gathered
+    above, tied = narrow > kth, narrow == kth
+    room = first - above.sum(-1, keepdim=True)
+    keep = above | (tied & (torch.cumsum(tied, dim=-1) <= room))
+    return narrow.masked_fill(~keep, NEG_INF), ids
+
+
 def _compact(logits: torch.Tensor) -> tuple[torch.Tensor, torch.Tensor] | None:
-    """The live tokens of every row gathered in ascending id order (logits and
-    ids, padded with ``-inf`` / id 0), or None when a row has more than
-    ``COMPACT_LIMIT`` or more than half the vocabulary (too wide to gain)."""
-    live = logits > NEG_INF
-    counts = live.sum(dim=-1)
+    """The live tokens of every row gathered in ascending id order, or None
+    when a row has too many (see :func:`_gather`)."""
+    return _gather(logits, logits > NEG_INF)
+
+
+def _gather(logits: torch.Tensor, chosen: torch.Tensor) -> tuple[torch.Tensor, torch.Tensor] | None:
+    """The ``chosen`` tokens (bool, rows × vocab) of every row in ascending id
+    order: logits and ids, padded with ``-inf`` / id 0; None when a row has
+    more than ``COMPACT_LIMIT`` or more than half the vocabulary (too wide to gain)."""
+    counts = chosen.sum(dim=-1)
     width = int(counts.max())
     if width > min(COMPACT_LIMIT, logits.shape[-1] // 2):
         return None
-    rows, cols = live.nonzero(as_tuple=True)  # row-major, so ascending ids within a row
+    rows, cols = chosen.nonzero(as_tuple=True)  # row-major, so ascending ids within a row
     slots = torch.arange(rows.numel()) - (torch.cumsum(counts, 0) - counts)[rows]
     ids = torch.zeros(logits.shape[0], width, dtype=torch.long)
     ids[rows, slots] = cols
