@@ -32,7 +32,7 @@ from .stages import NEG_INF
 
 #: Widest live set (tokens per row, the group's widest row) that is gathered
 #: into a compact table; a wider one stays on the whole vocabulary.
-COMPACT_LIMIT = 4096
+COMPACT_LIMIT = 16384
 
 
 @dataclasses.dataclass
@@ -54,15 +54,12 @@ def active_stages(order: Sequence[str], params: RowParams) -> tuple[str, ...]:
     return tuple(name for name in order if not _is_neutral(name, params))
 
 
-def guarded(before: torch.Tensor, after: torch.Tensor, highest: torch.Tensor | None = None) -> torch.Tensor:
+def guarded(before: torch.Tensor, after: torch.Tensor) -> torch.Tensor:
     """The chain's two guards (greedy over ``+inf``, then keep one token if a
     row is empty) with one reduction when neither applies: a row whose largest
-    logit (``highest``, computed here when not given) is finite has no
-    ``+inf`` and is not empty. Anything else (``+inf``, an empty row, NaN)
-    goes through the guards themselves."""
-    if highest is None:
-        highest = after.amax(dim=-1)
-    if bool(torch.isfinite(highest).all()):
+    logit is finite has no ``+inf`` and is not empty. Anything else (``+inf``,
+    an empty row, NaN) goes through the guards themselves."""
+    if bool(torch.isfinite(after.amax(dim=-1)).all()):
         return after
     return _keep_one_if_empty(before, _greedy_if_infinite(after))
 
@@ -87,10 +84,9 @@ def shape_group(logits: torch.Tensor, params: RowParams, history: RowHistory, st
         if ids is not None:
             current = guarded(current, after)
             continue
-        # One pass gives both the guards' check and whether every row has lost a token at all.
-        lowest, highest = torch.aminmax(after, dim=-1)
-        current = guarded(current, after, highest)
-        if bool(torch.isneginf(lowest).all()) or current is not after:
+        current = guarded(current, after)
+        # A row that has lost no token keeps the whole vocabulary: no gain in gathering.
+        if current is not after or bool(torch.isneginf(after.amin(dim=-1)).all()):
             compact = _compact(current)
             if compact is not None:
                 current, ids = compact

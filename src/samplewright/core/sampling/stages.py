@@ -160,6 +160,17 @@ def _prefix_among(probs, key, mass, candidates) -> tuple[torch.Tensor, torch.Ten
     return keep[:, :vocab], settled
 
 
+def _settle(keep, tried, probs, key, mass, m: int, open_rows) -> torch.Tensor:
+    """Rank the rows ``tried`` among their top ``m`` keys, write the settled
+    ones' prefixes into ``keep``; returns the rows of ``open_rows`` still open."""
+    if not tried.numel():
+        return open_rows
+    part, settled = _prefix_among_top(probs[tried], key[tried], mass[tried], m)
+    done = tried[settled]
+    keep[done] = part[settled]
+    return open_rows[~torch.isin(open_rows, done)]
+
+
 def _prefix_until_mass(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tensor, coarse=None) -> torch.Tensor:
     """Rank tokens by ``key`` (descending, ties lower id first) and keep the
     shortest prefix whose probability reaches ``mass - MASS_TOLERANCE``;
@@ -175,9 +186,16 @@ def _prefix_until_mass(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tenso
     vocab = probs.shape[-1]
     keep = torch.zeros(probs.shape, dtype=torch.bool)
     open_rows = torch.arange(probs.shape[0])
+    # m tokens hold at most m times the largest probability: a row that needs more skips that width.
+    needs = (mass - MASS_TOLERANCE) / probs.amax(dim=-1)
     if RANKING_WIDTHS[0] < vocab:
-        keep, settled = _prefix_among_top(probs, key, mass, RANKING_WIDTHS[0])
-        open_rows = (~settled).nonzero().flatten()
+        if bool((needs <= RANKING_WIDTHS[0]).all()):
+            keep, settled = _prefix_among_top(probs, key, mass, RANKING_WIDTHS[0])
+            open_rows = (~settled).nonzero().flatten()
+        else:
+            open_rows = _settle(
+                keep, open_rows[needs <= RANKING_WIDTHS[0]], probs, key, mass, RANKING_WIDTHS[0], open_rows
+            )
     if coarse is not None and open_rows.numel():
         sub = probs[open_rows], key[open_rows], mass[open_rows]
         part = _prefix_among(*sub, _level_candidates(sub[0], coarse[open_rows], sub[2]))
@@ -187,9 +205,7 @@ def _prefix_until_mass(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tenso
     for m in RANKING_WIDTHS[1:]:
         if m >= vocab or not open_rows.numel():
             break
-        part = _prefix_among_top(probs[open_rows], key[open_rows], mass[open_rows], m)
-        keep[open_rows] = part[0]
-        open_rows = open_rows[~part[1]]
+        open_rows = _settle(keep, open_rows[needs[open_rows] <= m], probs, key, mass, m, open_rows)
     if open_rows.numel():
         order = torch.sort(key[open_rows], dim=-1, descending=True, stable=True).indices
         full = _prefix_keep(probs[open_rows].gather(-1, order), mass[open_rows])
