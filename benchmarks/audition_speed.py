@@ -286,7 +286,8 @@ def overhead_and_precision(loaded, passage, presets, passage_ids, args) -> float
             f"{model.precision:9s}: audition {f['lean']:6.1f} tokens/s (lean step; transformers' modules "
             f"{f['modules']:6.1f}; lean with packed weights {f['packed']:6.1f}), bare forward pass "
             f"{f['bare']:6.1f} tokens/s, overhead ratio: {f['lean'] / f['bare']:.2f} (packed "
-            f"{f['packed'] / f['bare']:.2f}); sampling step outside the model {f['lean share']:.0%} of a step\n"
+            f"{f['packed'] / f['bare']:.2f}); sampling step outside the model {f['lean share']:.0%} of a step "
+            f"({f['lean share'] * rows / f['lean'] * 1000:.1f} ms per step)\n"
             f"{'':11s}decoding step alone: lean {f['lean step'] * rows:6.1f} tokens/s, transformers' modules "
             f"{f['modules step'] * rows:6.1f}, packed {f['packed step'] * rows:6.1f}"
         )
