@@ -18,7 +18,7 @@ from samplewright import Preset, shape
 from samplewright.core.engine import batch
 from samplewright.core.engine.backend import PassageState, PassageTokens
 from samplewright.core.results import AuditionRequest
-from samplewright.core.sampling import sampler
+from samplewright.core.sampling import compact, sampler
 
 VOCAB = 300
 PASSAGE = [5, 17, 42, 99, 17, 8, 250, 42, 3, 77]
@@ -28,6 +28,21 @@ PRESETS = [
     Preset("narrow", top_k=12, min_p=0.02, order=["penalties", "top_k", "temperature", "top_p", "min_p", "typical_p"]),
     Preset("typical", typical_p=0.8, repetition_penalty=1.3, frequency_penalty=0.3, no_repeat_ngram_size=2),
     Preset("short", temperature=0.9, max_new_tokens=3),
+    # Stages after a truncation run on the compact table: penalties, greedy, a top-k wider than what is left.
+    Preset(
+        "cut first",
+        min_p=0.05,
+        top_k=200,
+        repetition_penalty=1.5,
+        no_repeat_ngram_size=2,
+        order=["min_p", "top_k", "penalties", "temperature", "top_p", "typical_p"],
+    ),
+    Preset(
+        "greedy cut",
+        top_p=0.7,
+        temperature=0.0,
+        order=["top_p", "temperature", "penalties", "top_k", "min_p", "typical_p"],
+    ),
 ]
 
 
@@ -64,8 +79,11 @@ class ScriptedModel:
         return "".join(f"<{i}>" for i in ids)
 
 
+@pytest.mark.parametrize("compact_limit", [0, compact.COMPACT_LIMIT])
 @pytest.mark.parametrize("seed", [0, 5])
-def test_every_recorded_step_equals_shape_and_the_gumbel_rule(seed):
+def test_every_recorded_step_equals_shape_and_the_gumbel_rule(seed, compact_limit, monkeypatch):
+    # compact_limit 0: every stage on the whole vocabulary; the default: on the live tokens after a cut.
+    monkeypatch.setattr(compact, "COMPACT_LIMIT", compact_limit)
     state = PassageState(tuple(PASSAGE), None, scripted_logits(PASSAGE))
     tokens = PassageTokens(list(PASSAGE), 0, 1024, None)
     result = batch.run_audition(ScriptedModel(), tokens, state, AuditionRequest("passage", PRESETS, 3, 10, seed))

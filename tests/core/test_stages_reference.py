@@ -159,7 +159,7 @@ def test_documented_tie_difference_top_k():
 
 @pytest.mark.parametrize("scale", [0.05, 1.0, 6.0])
 def test_large_vocabulary_matches_transformers(scale):
-    # A vocabulary larger than stages.CANDIDATES: flat rows (small scale) need more
+    # A vocabulary larger than the first of stages.RANKING_WIDTHS: flat rows (small scale) need more
     # tokens than the candidates hold and take the full-sort path.
     z = torch.randn(4, 3000, generator=torch.Generator().manual_seed(7), dtype=torch.float64) * scale
 
@@ -183,10 +183,10 @@ def _reference_prefix(key, probs, mass):
     return set(kept)
 
 
-@pytest.mark.parametrize("candidates", [3, 8, 1024])
-def test_candidate_ranking_equals_full_stable_sort_with_ties(monkeypatch, candidates):
+@pytest.mark.parametrize("widths", [(3,), (3, 8), (8, 24), (1024,)])
+def test_candidate_ranking_equals_full_stable_sort_with_ties(monkeypatch, widths):
     # Integer logits give many exact ties, the case the candidate shortcut must get right.
-    monkeypatch.setattr(stages, "CANDIDATES", candidates)
+    monkeypatch.setattr(stages, "RANKING_WIDTHS", widths)
     gen = torch.Generator().manual_seed(3)
     for trial in range(30):
         z = torch.randint(-3, 3, (1, 40), generator=gen).to(torch.float64)

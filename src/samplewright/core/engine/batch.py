@@ -16,7 +16,6 @@ cache from the passage's, run all rows one step, decode tokens).
 from __future__ import annotations
 
 import dataclasses
-import math
 import time
 from collections.abc import Callable
 
@@ -25,9 +24,10 @@ import torch
 from ..errors import RequestError
 from ..presets import Preset
 from ..results import AuditionRequest, AuditionResult, Sample, TokenEvent, TokenStep
-from ..sampling import sampler
-from ..sampling.chain import RowHistory, RowParams, run_chain
+from ..sampling import compact, sampler
+from ..sampling.chain import RowHistory, RowParams
 from .backend import ModelBackend, PassageState, PassageTokens
+from .drawing import Drawn, draw_step
 
 #: Rows × tokens up to which the rows' generated part is allocated in full at
 #: the start; larger runs start at ``GROWING_CAPACITY`` tokens and double.
@@ -177,23 +177,12 @@ def _cut_at_stop(text: str, stops) -> tuple[str, bool]:
 
 
 @dataclasses.dataclass
-class _Drawn:
-    """The tokens of one step and what the sample records about them (plain lists, one entry per row)."""
+class _Group:
+    """Consecutive batch rows of one preset: their parameters and the stages that act for them."""
 
-    ids: torch.Tensor
-    token_ids: list[int]
-    raw_p: list[float]
-    p: list[float]
-    kept: list[int]
-    raw_entropy: list[float]
-    entropy: list[float]
-
-
-def _entropy_bits(log_probs: torch.Tensor, probs: torch.Tensor) -> torch.Tensor:
-    """Shannon entropy in bits per row over the nonzero probabilities (as
-    :func:`~samplewright.core.sampling.inspection.entropy_bits`). A removed
-    token gives ``0 * -inf = nan``, which ``nansum`` leaves out: one pass, no mask."""
-    return 0.0 - torch.nansum(probs * log_probs, dim=-1) / math.log(2.0)
+    rows: slice
+    params: RowParams
+    stages: tuple[str, ...]
 
 
 class _Batch:
@@ -215,6 +204,8 @@ class _Batch:
         )
         passage_bans = {n: NgramBans(passage_ids, n) for n in {p.no_repeat_ngram_size for p in presets} if n}
         self.ngrams = [_copy_bans(passage_bans.get(p.no_repeat_ngram_size)) for p in presets]
+        self.shared_logits = True  # every row still holds the passage's logits
+        self.groups = self._group()
 
     def run(self, tally: _Tally, should_stop) -> bool:
         """Generate until every row has ended; True if cancelled."""
@@ -239,39 +230,43 @@ class _Batch:
             step += 1
         return False
 
-    def _shaped(self) -> torch.Tensor:
-        """Every row's final logits. The chain runs once per preset: it skips a
-        stage only when that stage is neutral for all the rows it is given."""
-        groups: dict[int, list[int]] = {}
-        for i, row in enumerate(self.rows):
-            groups.setdefault(row.sample.preset_index, []).append(i)
-        if len(groups) == 1:
-            return run_chain(self.logits, self.params, self.history).logits
-        final = torch.empty(self.logits.shape, dtype=torch.float64)
-        for rows in groups.values():
-            index = torch.tensor(rows, dtype=torch.long)
-            final[index] = run_chain(self.logits[index], self.params.select(rows), self.history.select(rows)).logits
-        return final
+    def _group(self) -> list[_Group]:
+        """The rows as runs of one preset (rows are kept in preset order, so
+        each preset is one run); rebuilt only when rows leave."""
+        groups: list[_Group] = []
+        start = 0
+        for i in range(1, len(self.rows) + 1):
+            if i == len(self.rows) or self.rows[i].sample.preset_index != self.rows[start].sample.preset_index:
+                params = self.params.select(range(start, i))
+                groups.append(_Group(slice(start, i), params, compact.active_stages(params.orders[0], params)))
+                start = i
+        return groups
 
-    def _draw(self, step: int) -> _Drawn:
-        log_probs = torch.log_softmax(self._shaped(), dim=-1)
-        raw_log_probs = torch.log_softmax(self.logits.to(torch.float64), dim=-1)
+    def _draw(self, step: int) -> Drawn:
+        """Shape each group's logits with its preset's chain (on the live tokens
+        once truncation leaves few) and draw every row with its sample's shared noise."""
+        if self.shared_logits:
+            raw = self.logits[:1].to(torch.float64).expand(len(self.rows), -1)
+        else:
+            raw = self.logits.to(torch.float64)
+        history = self.history
+        shaped = [
+            (
+                group.rows,
+                compact.shape_group(
+                    raw[group.rows],
+                    group.params,
+                    RowHistory(history.seen[group.rows], history.counts[group.rows], history.banned[group.rows]),
+                    group.stages,
+                ),
+            )
+            for group in self.groups
+        ]
         # One noise vector per sample index, drawn for all rows at once: every preset's sample i shares it.
-        gumbels = sampler.noise_rows(self.seed, [row.sample.sample_index for row in self.rows], step, self.vocab)
-        ids = sampler.draw(log_probs, gumbels)
-        probs, raw_probs = log_probs.exp(), raw_log_probs.exp()
-        pick = ids.unsqueeze(-1)
-        return _Drawn(
-            ids=ids,
-            token_ids=ids.tolist(),
-            raw_p=raw_probs.gather(-1, pick).squeeze(-1).tolist(),
-            p=probs.gather(-1, pick).squeeze(-1).tolist(),
-            kept=(probs > 0).sum(-1).tolist(),
-            raw_entropy=_entropy_bits(raw_log_probs, raw_probs).tolist(),
-            entropy=_entropy_bits(log_probs, probs).tolist(),
-        )
+        noise = sampler.StepNoise(self.seed, [row.sample.sample_index for row in self.rows], step, self.vocab)
+        return draw_step(raw, shaped, noise, self.shared_logits)
 
-    def _record(self, row: _Row, i: int, drawn: _Drawn, step: int, tally: _Tally) -> bool:
+    def _record(self, row: _Row, i: int, drawn: Drawn, step: int, tally: _Tally) -> bool:
         """Add row ``i``'s token to its sample and set the stop reason if the row ends; True when it has ended."""
         token_id = drawn.token_ids[i]
         if token_id in self.eos:
@@ -309,8 +304,10 @@ class _Batch:
             self.params, self.history = self.params.select(keep), self.history.select(keep)
             self.rows, ids = [self.rows[i] for i in keep], ids[index]
             self.ngrams = [self.ngrams[i] for i in keep]
+            self.groups = self._group()
         self._extend_history(ids)
         self.logits = self.model.step(ids, self.cache)
+        self.shared_logits = False
 
     def _extend_history(self, ids: torch.Tensor) -> None:
         rows = torch.arange(len(self.rows))

@@ -7,7 +7,9 @@ passage's keys and values where the model family allows it
 (:mod:`samplewright.core.engine.shared_attention`), else each row gets its
 own copy. The batched
 generation itself lives in :mod:`samplewright.core.engine.batch`; every preset's
-meaning comes from :func:`samplewright.core.sampling.chain.run_chain`.
+meaning is :func:`samplewright.core.sampling.chain.shape`'s (the batch runs the
+same stages, on the live tokens only once truncation leaves few:
+:mod:`samplewright.core.sampling.compact`).
 
 Passage window: the engine keeps the last ``passage_limit`` tokens of a
 passage, ``min(max_passage_tokens, context_length - room)`` where ``room`` is

@@ -172,12 +172,17 @@ def stage_fields() -> tuple[NumberField, ...]:
 def _penalties(logits, params, history):
     from . import stages as kernels
 
-    # Inside the stage: repetition, then frequency/presence, then no-repeat n-gram.
-    out = kernels.repetition_penalty(logits, params.values["repetition_penalty"], history.seen)
-    out = kernels.frequency_presence(
-        out, params.values["frequency_penalty"], params.values["presence_penalty"], history.counts
-    )
-    return kernels.no_repeat_ngram(out, history.banned)
+    # Inside the stage: repetition, then frequency/presence, then no-repeat n-gram. A part whose
+    # parameters are neutral for every row is skipped: it would return its input unchanged.
+    values = params.values
+    out = logits
+    if bool((values["repetition_penalty"] != 1.0).any()):
+        out = kernels.repetition_penalty(out, values["repetition_penalty"], history.seen)
+    if bool((values["frequency_penalty"] != 0.0).any() | (values["presence_penalty"] != 0.0).any()):
+        out = kernels.frequency_presence(out, values["frequency_penalty"], values["presence_penalty"], history.counts)
+    if bool((values["no_repeat_ngram_size"] > 0).any()):
+        out = kernels.no_repeat_ngram(out, history.banned)
+    return out
 
 
 def _one_parameter(name: str) -> StageFunction:

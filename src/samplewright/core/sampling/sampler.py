@@ -39,8 +39,12 @@ def uniforms(seed: int, sample_index: int, step: int, vocab: int) -> np.ndarray:
     Returns:
         float64 array of shape ``(vocab,)``.
     """
-    rng = np.random.Generator(np.random.PCG64(np.random.SeedSequence([seed, sample_index, step])))
-    return np.clip(rng.random(vocab), U_MIN, U_MAX)
+    return np.clip(_stream(seed, sample_index, step).random(vocab), U_MIN, U_MAX)
+
+
+def _stream(seed: int, sample_index: int, step: int) -> np.random.Generator:
+    """The generator keyed by (seed, sample index, step)."""
+    return np.random.Generator(np.random.PCG64(np.random.SeedSequence([seed, sample_index, step])))
 
 
 def gumbel(u) -> torch.Tensor:
@@ -70,17 +74,34 @@ def draw(log_probs: torch.Tensor, gumbels: torch.Tensor) -> torch.Tensor:
 def noise_rows(seed: int, sample_indices: Sequence[int], step: int, vocab: int) -> torch.Tensor:
     """The noise of every row of a batch at ``step``, in one call.
 
-    Row ``r`` gets exactly :func:`noise` ``(seed, sample_indices[r], step, vocab)``:
-    each distinct sample index draws its own keyed stream once, and the
-    Gumbel transform runs once over all of them.
+    Row ``r`` gets exactly :func:`noise` ``(seed, sample_indices[r], step, vocab)``.
 
     Returns:
         float64 tensor of shape ``(len(sample_indices), vocab)``.
     """
-    distinct = sorted(set(int(i) for i in sample_indices))
-    u = np.stack([uniforms(seed, i, step, vocab) for i in distinct])
-    table = gumbel(u)
-    if len(distinct) == len(sample_indices) and distinct == [int(i) for i in sample_indices]:
-        return table
-    where = {index: row for row, index in enumerate(distinct)}
-    return table.index_select(0, torch.tensor([where[int(i)] for i in sample_indices], dtype=torch.long))
+    return StepNoise(seed, sample_indices, step, vocab).at(slice(None))
+
+
+class StepNoise:
+    """The noise of one step for every row of a batch, read where it is needed.
+
+    Each distinct sample index draws its keyed stream once, over the whole
+    vocabulary in id order (so the coupling never depends on which tokens a
+    row keeps); :meth:`at` clips and Gumbel-transforms only the entries asked
+    for. ``at(rows, ids)[r, j]`` equals ``noise(seed, index of row r, step,
+    vocab)[ids[r, j]]`` exactly (the clip and the transform act element by
+    element).
+    """
+
+    def __init__(self, seed: int, sample_indices: Sequence[int], step: int, vocab: int):
+        distinct = sorted(set(int(i) for i in sample_indices))
+        where = {index: row for row, index in enumerate(distinct)}
+        self.table = torch.from_numpy(np.stack([_stream(seed, i, step).random(vocab) for i in distinct]))
+        self.row_of = torch.tensor([where[int(i)] for i in sample_indices], dtype=torch.long)
+
+    def at(self, rows: slice, ids: torch.Tensor | None = None) -> torch.Tensor:
+        """Gumbel noise for the batch rows ``rows``: every id (``ids`` None) or
+        the ids of ``ids`` (rows × width long), as a float64 tensor of the same shape."""
+        which = self.row_of[rows]
+        u = self.table.index_select(0, which) if ids is None else self.table[which.unsqueeze(-1), ids]
+        return gumbel(u.clamp(U_MIN, U_MAX))

@@ -77,14 +77,27 @@ def top_k(logits: torch.Tensor, k: torch.Tensor) -> torch.Tensor:
     kth = torch.topk(logits, k_max, dim=-1).values.gather(-1, (k_eff.clamp(min=1) - 1).unsqueeze(-1))
     above = logits > kth
     tied = logits == kth
-    # Among the ties with the k-th value, keep the lowest ids until k are kept.
+    # Among the ties with the k-th value, keep the lowest ids until k are kept
+    # (counting along the row is needed only where more ties than room remain).
     room = k_eff.unsqueeze(-1) - above.sum(-1, keepdim=True)
-    keep = above | (tied & (torch.cumsum(tied, dim=-1) <= room)) | (k_eff == 0).unsqueeze(-1)
+    if bool((tied.sum(-1, keepdim=True) > room).any()):
+        tied = tied & (torch.cumsum(tied, dim=-1) <= room)
+    keep = above | tied | (k_eff == 0).unsqueeze(-1)
     return logits.masked_fill(~keep, NEG_INF)
 
 
-#: How many leading tokens are ranked before a row falls back to a full sort.
-CANDIDATES = 1024
+#: How many leading tokens are ranked, widest last: a row not settled among the
+#: first width's candidates is ranked again (among coarse levels, then the next
+#: widths), and a row settled in none of them is ranked in full. Small widths
+#: are cheap (``torch.topk``'s cost grows with the width) and settle peaked rows.
+RANKING_WIDTHS = (64, 1024, 8192)
+
+#: Coarse levels: a token's level is how far its log-domain key lies below the
+#: row's best, in steps of ``1 / LEVEL_STEPS`` nats, capped at ``LEVELS - 1``.
+#: The candidates are the levels that hold the mass; at most ``LEVEL_CANDIDATES`` per row.
+LEVELS = 256
+LEVEL_STEPS = 4.0
+LEVEL_CANDIDATES = 16384
 
 
 def _prefix_keep(probs_sorted: torch.Tensor, mass: torch.Tensor) -> torch.Tensor:
@@ -94,33 +107,109 @@ def _prefix_keep(probs_sorted: torch.Tensor, mass: torch.Tensor) -> torch.Tensor
     return keep
 
 
-def _prefix_until_mass(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tensor) -> torch.Tensor:
-    """Rank tokens by ``key`` (descending, ties lower id first) and keep the
-    shortest prefix whose probability reaches ``mass - MASS_TOLERANCE``;
-    always at least the first token.
-
-    Only the top ``CANDIDATES`` keys are ranked (a full sort of the vocabulary
-    costs more than the model's forward pass); a row whose prefix is not
-    settled inside them (its last kept key is not strictly above every key
-    left out) is ranked in full, so the result equals a full stable sort.
-    """
-    vocab = probs.shape[-1]
-    m = min(CANDIDATES, vocab)
-    values, ids = torch.topk(key, m, dim=-1)
+def _prefix_among_top(probs, key, mass, m: int) -> tuple[torch.Tensor, torch.Tensor]:
+    """The prefix of :func:`_prefix_until_mass` ranked among the top ``m`` keys
+    only, and per row whether it is settled there (its last kept key is
+    strictly above every key left out, so a full sort would keep the same)."""
+    values, ids = torch.topk(key, m, dim=-1, sorted=False)
     # Candidates in id order first, so the stable sort by value puts ties lower id first.
     by_id = torch.sort(ids, dim=-1).indices
     values, ids = values.gather(-1, by_id), ids.gather(-1, by_id)
     by_value = torch.sort(values, dim=-1, descending=True, stable=True).indices
     values, ids = values.gather(-1, by_value), ids.gather(-1, by_value)
     keep_sorted = _prefix_keep(probs.gather(-1, ids), mass)
-    keep = _mask_from_sorted(keep_sorted, ids, vocab)
-    if m < vocab:
-        last = keep_sorted.sum(-1, keepdim=True) - 1
-        unsettled = (values.gather(-1, last) <= values[..., -1:]).squeeze(-1).nonzero().flatten()
-        if unsettled.numel():
-            order = torch.sort(key[unsettled], dim=-1, descending=True, stable=True).indices
-            full = _prefix_keep(probs[unsettled].gather(-1, order), mass[unsettled])
-            keep[unsettled] = _mask_from_sorted(full, order, vocab)
+    last = keep_sorted.sum(-1, keepdim=True) - 1
+    settled = (values.gather(-1, last) > values[..., -1:]).squeeze(-1)
+    return _mask_from_sorted(keep_sorted, ids, key.shape[-1]), settled
+
+
+def _level_candidates(probs, coarse, mass) -> torch.Tensor:
+    """Per row, the tokens of the coarse levels (of ``coarse``, a log-domain
+    stand-in for the key) whose probability, best level first, reaches ``mass``."""
+    distance = torch.sub(coarse.amax(dim=-1, keepdim=True) * LEVEL_STEPS, coarse, alpha=LEVEL_STEPS)
+    distance = distance.clamp_(max=LEVELS - 1)
+    levels = distance.to(torch.long)
+    held = torch.zeros(probs.shape[0], LEVELS, dtype=probs.dtype).scatter_add_(-1, levels, probs)
+    last_level = (torch.cumsum(held, dim=-1) < _col(mass) - MASS_TOLERANCE).sum(-1, keepdim=True)
+    return levels <= last_level
+
+
+def _prefix_among(probs, key, mass, candidates) -> tuple[torch.Tensor, torch.Tensor] | None:
+    """The prefix ranked among the ``candidates`` (bool, rows × vocab) only, and
+    per row whether it is settled there (its last kept key strictly above every
+    key outside them); None when a row has more than ``LEVEL_CANDIDATES``."""
+    rows_n, vocab = probs.shape
+    counts = candidates.sum(-1)
+    width = int(counts.max())
+    if width > LEVEL_CANDIDATES:
+        return None
+    rows, cols = candidates.nonzero(as_tuple=True)  # ascending ids within a row
+    slots = torch.arange(rows.numel()) - (torch.cumsum(counts, 0) - counts)[rows]
+    # Padding: key -inf, probability 0, id ``vocab`` (a spare column dropped at the end).
+    ids = torch.full((rows_n, width), vocab, dtype=torch.long)
+    values = torch.full((rows_n, width), NEG_INF, dtype=key.dtype)
+    chosen = torch.zeros((rows_n, width), dtype=probs.dtype)
+    ids[rows, slots], values[rows, slots], chosen[rows, slots] = cols, key[rows, cols], probs[rows, cols]
+    by_value = torch.sort(values, dim=-1, descending=True, stable=True).indices
+    values, ids = values.gather(-1, by_value), ids.gather(-1, by_value)
+    keep_sorted = _prefix_keep(chosen.gather(-1, by_value), mass)
+    last = keep_sorted.sum(-1, keepdim=True) - 1
+    outside = torch.where(candidates, NEG_INF, key).amax(dim=-1, keepdim=True)
+    settled = (values.gather(-1, last) > outside).squeeze(-1)
+    keep = torch.zeros(rows_n, vocab + 1, dtype=torch.bool).scatter_(-1, ids, keep_sorted)
+    return keep[:, :vocab], settled
+
+
+def _settle(keep, tried, probs, key, mass, m: int, open_rows) -> torch.Tensor:
+    """Rank the rows ``tried`` among their top ``m`` keys, write the settled
+    ones' prefixes into ``keep``; returns the rows of ``open_rows`` still open."""
+    if not tried.numel():
+        return open_rows
+    part, settled = _prefix_among_top(probs[tried], key[tried], mass[tried], m)
+    done = tried[settled]
+    keep[done] = part[settled]
+    return open_rows[~torch.isin(open_rows, done)]
+
+
+def _prefix_until_mass(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tensor, coarse=None) -> torch.Tensor:
+    """Rank tokens by ``key`` (descending, ties lower id first) and keep the
+    shortest prefix whose probability reaches ``mass - MASS_TOLERANCE``;
+    always at least the first token.
+
+    A full sort of the vocabulary costs more than the model's forward pass, so
+    only candidates are ranked: the top ``RANKING_WIDTHS[0]`` keys, then (for
+    rows not settled there) the coarse levels of ``coarse`` that hold the mass
+    (a log-domain tensor ordered about like ``key``), then the wider widths; a
+    row settled in none of them is ranked in full. Each try checks that the
+    prefix is settled among its candidates, so the result equals a full stable sort.
+    """
+    vocab = probs.shape[-1]
+    keep = torch.zeros(probs.shape, dtype=torch.bool)
+    open_rows = torch.arange(probs.shape[0])
+    # m tokens hold at most m times the largest probability: a row that needs more skips that width.
+    needs = (mass - MASS_TOLERANCE) / probs.amax(dim=-1)
+    if RANKING_WIDTHS[0] < vocab:
+        if bool((needs <= RANKING_WIDTHS[0]).all()):
+            keep, settled = _prefix_among_top(probs, key, mass, RANKING_WIDTHS[0])
+            open_rows = (~settled).nonzero().flatten()
+        else:
+            open_rows = _settle(
+                keep, open_rows[needs <= RANKING_WIDTHS[0]], probs, key, mass, RANKING_WIDTHS[0], open_rows
+            )
+    if coarse is not None and open_rows.numel():
+        sub = probs[open_rows], key[open_rows], mass[open_rows]
+        part = _prefix_among(*sub, _level_candidates(sub[0], coarse[open_rows], sub[2]))
+        if part is not None:
+            keep[open_rows] = part[0]
+            open_rows = open_rows[~part[1]]
+    for m in RANKING_WIDTHS[1:]:
+        if m >= vocab or not open_rows.numel():
+            break
+        open_rows = _settle(keep, open_rows[needs[open_rows] <= m], probs, key, mass, m, open_rows)
+    if open_rows.numel():
+        order = torch.sort(key[open_rows], dim=-1, descending=True, stable=True).indices
+        full = _prefix_keep(probs[open_rows].gather(-1, order), mass[open_rows])
+        keep[open_rows] = _mask_from_sorted(full, order, vocab)
     return keep
 
 
@@ -128,40 +217,62 @@ def top_p(logits: torch.Tensor, p: torch.Tensor) -> torch.Tensor:
     """Nucleus sampling: keep the shortest run of most probable tokens (ties:
     lower id first) whose mass reaches ``p`` (within ``MASS_TOLERANCE``).
     ``p = 1`` is off and skips the row."""
+    return logits.masked_fill(~top_p_kept(logits, p), NEG_INF)
+
+
+def top_p_kept(logits: torch.Tensor, p: torch.Tensor) -> torch.Tensor:
+    """The tokens :func:`top_p` keeps (bool, rows × vocab)."""
     probs = torch.softmax(logits, dim=-1)
-    keep = _prefix_until_mass(probs, probs, p) | (p >= 1).unsqueeze(-1)
-    return logits.masked_fill(~keep, NEG_INF)
+    # The logits order the tokens as their probabilities do (up to rounding, which the ranking checks).
+    keep = _prefix_until_mass(probs, probs, p, coarse=logits)
+    if bool((p >= 1).any()):
+        keep |= (p >= 1).unsqueeze(-1)
+    return keep
 
 
 def min_p(logits: torch.Tensor, fraction: torch.Tensor) -> torch.Tensor:
     """Keep tokens whose probability is at least ``fraction`` times the top
     token's. ``fraction = 0`` is off; the top token always stays."""
+    return logits.masked_fill(~min_p_kept(logits, fraction), NEG_INF)
+
+
+def min_p_kept(logits: torch.Tensor, fraction: torch.Tensor) -> torch.Tensor:
+    """The tokens :func:`min_p` keeps (bool, rows × vocab)."""
     probs = torch.softmax(logits, dim=-1)
     threshold = _col(fraction) * probs.max(dim=-1, keepdim=True).values
-    return logits.masked_fill(probs < threshold, NEG_INF)
+    return ~(probs < threshold)
 
 
 def typical_p(logits: torch.Tensor, mass: torch.Tensor) -> torch.Tensor:
     """Locally typical sampling: rank tokens by how far their surprisal lies
     from the distribution's entropy and keep the closest ones until they hold
     ``mass`` (ties: lower id first). ``mass = 1`` is off and skips the row."""
+    return logits.masked_fill(~typical_p_kept(logits, mass), NEG_INF)
+
+
+def typical_p_kept(logits: torch.Tensor, mass: torch.Tensor) -> torch.Tensor:
+    """The tokens :func:`typical_p` keeps (bool, rows × vocab)."""
     log_probs = torch.log_softmax(logits, dim=-1)
     probs = log_probs.exp()
     live = probs > 0
     entropy = -torch.where(live, probs * log_probs, torch.zeros_like(probs)).sum(-1, keepdim=True)
     # Closeness = minus the distance of the surprisal from the entropy; removed tokens never rank.
     closeness = torch.where(live, -(-log_probs - entropy).abs(), torch.full_like(probs, NEG_INF))
-    keep = _prefix_until_mass(probs, closeness, mass) | (mass >= 1).unsqueeze(-1)
-    return logits.masked_fill(~keep, NEG_INF)
+    keep = _prefix_until_mass(probs, closeness, mass, coarse=closeness)
+    if bool((mass >= 1).any()):
+        keep |= (mass >= 1).unsqueeze(-1)
+    return keep
 
 
 def repetition_penalty(logits: torch.Tensor, penalty: torch.Tensor, seen: torch.Tensor) -> torch.Tensor:
     """Penalise every distinct token id marked in ``seen`` (bool, rows × vocab)
     once: a positive logit is divided by ``penalty``, a negative one
     multiplied. ``penalty = 1`` is off."""
-    p = _col(penalty)
-    scaled = torch.where(logits > 0, logits / p, logits * p)
-    return torch.where(seen, scaled, logits)
+    rows, ids = seen.nonzero(as_tuple=True)  # only the marked tokens change: a few of the vocabulary
+    values, p = logits[rows, ids], penalty.to(torch.float64)[rows]
+    out = logits.clone()
+    out[rows, ids] = torch.where(values > 0, values / p, values * p)
+    return out
 
 
 def frequency_presence(
