@@ -311,9 +311,9 @@ def test_the_after_export_check_waits_for_the_audition_on_the_engine_thread(wind
     # the same model and cores (Qt: queued slots of one thread run one after the other).
     from PySide6.QtCore import QThread
 
-    from samplewright.qt import export_check
+    from samplewright.core.engines import folder_check
 
-    where, ended, real = [], [], export_check.check_folder
+    where, ended, real = [], [], folder_check.check_folder
     # Direct connection: recorded on the engine thread the moment the audition's result is sent.
     window.engine.worker.audition_ready.connect(lambda *args: ended.append(True), Qt.DirectConnection)
 
@@ -321,7 +321,7 @@ def test_the_after_export_check_waits_for_the_audition_on_the_engine_thread(wind
         where.append((QThread.currentThread() is window.engine.thread, bool(ended)))
         return real(*args)
 
-    monkeypatch.setattr(export_check, "check_folder", recording)
+    monkeypatch.setattr(folder_check, "check_folder", recording)
     record = window.library.records()[0]
     window.library_list.set_chosen([record.id])
     window.prompts.choose_export_target = lambda presets, add_closest: ExportChoice("transformers", check=True)

@@ -11,47 +11,19 @@ status bar and a message.
 
 from __future__ import annotations
 
-import dataclasses
 from collections.abc import Callable, Sequence
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
 
 from PySide6.QtCore import QObject, Signal
 from PySide6.QtWidgets import QStatusBar
 
+from ..core.engines.folder_check import FolderCheck
 from ..core.presets import Preset
 from .prompts import QtPrompts
 
 if TYPE_CHECKING:
     from .workers import EngineThread
-
-
-@dataclasses.dataclass(frozen=True)
-class FolderCheck:
-    """One exported folder's check: the verdict and largest difference, or why it could not run."""
-
-    preset: str
-    folder: Path
-    verdict: str | None = None
-    max_tv: float | None = None
-    problem: str | None = None
-
-    def line(self) -> str:
-        """One line for the user: ``name: verdict (largest difference 0.0012)``."""
-        if self.problem is not None:
-            return f"{self.preset}: not checked ({self.problem})"
-        return f"{self.preset}: {self.verdict} (largest difference {self.max_tv:.3g})"
-
-
-def check_folder(folder: Path, preset: Preset, loaded: Any, passage: str) -> FolderCheck:
-    """Check one exported folder (runs the model: call it off the UI thread)."""
-    from ..core.engines.fidelity import verify_folder
-
-    try:
-        measure = verify_folder(folder, preset, loaded, passage)
-    except Exception as error:  # reported in the result; the other folders are still checked
-        return FolderCheck(preset.name, folder, problem=str(error) or type(error).__name__)
-    return FolderCheck(preset.name, folder, measure.verdict, measure.max_tv)
 
 
 class ExportChecker(QObject):

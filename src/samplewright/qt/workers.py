@@ -252,14 +252,14 @@ class EngineWorker(QObject):
     @Slot(int, object, str)
     def check_export(self, serial: int, jobs, passage: str) -> None:
         """Run each exported folder of ``jobs`` ((folder, preset) pairs) through transformers on ``passage``."""
-        from .export_check import check_folder
+        from ..core.engines import folder_check
 
         def job():
             loaded = self._need_engine().loaded
             results = []
             for folder, preset in jobs:
                 self._check(serial)
-                results.append(check_folder(folder, preset, loaded, passage))
+                results.append(folder_check.check_folder(folder, preset, loaded, passage))
             self.export_checked.emit(serial, results)
 
         self._guard(serial, "export check", job)
