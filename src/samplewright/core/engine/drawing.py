@@ -63,23 +63,32 @@ def _draw_group(shaped: Shaped, noise: StepNoise, rows: slice) -> _Part:
 def raw_statistics(raw: torch.Tensor, ids: torch.Tensor, shared: bool = False) -> tuple[torch.Tensor, torch.Tensor]:
     """Raw probability of ``ids`` (one per row) and raw entropy in bits, from float64 ``raw`` (rows × vocab).
 
-    The entropy is ``log Z - E_p[z]`` (softmax ``p`` of logits ``z``, ``Z``
-    their normaliser, ``log Z = max z - log max p``): one softmax, one dot
-    product and two maxima. A row with a ``-inf`` logit (``0 * -inf``) takes
-    the masked form instead. With
+    With ``m`` the row's largest logit, ``e = exp(z - m)`` and ``S = sum e``,
+    ``p = e / S`` and the entropy is ``log Z - E_p[z] = m + log S - (e · z) / S``:
+    one exponential pass, two sums and a maximum, with no normalised copy of
+    the row. The dot product is a multiply and a sum, not a BLAS call (whose
+    own threads cost more than they give on a busy machine). A row with a
+    ``-inf`` logit (``0 * -inf``) takes the masked form instead. With
     ``shared`` every row holds the first row's logits, computed once.
     """
     if shared:
         raw = raw[:1]
-    probs = torch.softmax(raw, dim=-1)
-    log_normaliser = raw.amax(dim=-1) - torch.log(probs.amax(dim=-1))
-    nats = log_normaliser - torch.linalg.vecdot(probs, raw)
+    top = raw.amax(dim=-1, keepdim=True)
+    weights = torch.sub(raw, top).exp_()
+    total = weights.sum(dim=-1)
+    if shared:
+        drawn = weights[0, ids] / total[0]
+    else:
+        drawn = weights.gather(-1, ids.unsqueeze(-1)).squeeze(-1) / total
+    # In place: one row-sized buffer per step (a fresh one costs its page faults).
+    nats = top.squeeze(-1) + torch.log(total) - weights.mul_(raw).sum(dim=-1) / total
     bad = torch.isnan(nats)
     if bool(bad.any()):
+        probs = torch.softmax(raw, dim=-1)
         nats = torch.where(bad, -torch.nansum(probs * torch.log(probs), dim=-1), nats)
     if shared:
-        return probs[0, ids], nats.expand(len(ids)) / math.log(2.0)
-    return probs.gather(-1, ids.unsqueeze(-1)).squeeze(-1), nats / math.log(2.0)
+        return drawn, nats.expand(len(ids)) / math.log(2.0)
+    return drawn, nats / math.log(2.0)
 
 
 def draw_step(raw: torch.Tensor, groups: list[tuple[slice, Shaped]], noise: StepNoise, shared: bool) -> Drawn:

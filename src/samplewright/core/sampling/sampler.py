@@ -96,7 +96,10 @@ class StepNoise:
     def __init__(self, seed: int, sample_indices: Sequence[int], step: int, vocab: int):
         distinct = sorted(set(int(i) for i in sample_indices))
         where = {index: row for row, index in enumerate(distinct)}
-        self.table = torch.from_numpy(np.stack([_stream(seed, i, step).random(vocab) for i in distinct]))
+        table = np.empty((len(distinct), vocab))
+        for row, index in enumerate(distinct):  # each stream writes its row in place: no stacking copy
+            _stream(seed, index, step).random(out=table[row])
+        self.table = torch.from_numpy(table)
         self.row_of = torch.tensor([where[int(i)] for i in sample_indices], dtype=torch.long)
 
     def at(self, rows: slice, ids: torch.Tensor | None = None) -> torch.Tensor:
