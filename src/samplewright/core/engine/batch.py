@@ -205,6 +205,7 @@ class _Batch:
         passage_bans = {n: NgramBans(passage_ids, n) for n in {p.no_repeat_ngram_size for p in presets} if n}
         self.ngrams = [_copy_bans(passage_bans.get(p.no_repeat_ngram_size)) for p in presets]
         self.shared_logits = True  # every row still holds the passage's logits
+        self.raw_buffer: torch.Tensor | None = None
         self.groups = self._group()
 
     def run(self, tally: _Tally, should_stop) -> bool:
@@ -248,7 +249,13 @@ class _Batch:
         if self.shared_logits:
             raw = self.logits[:1].to(torch.float64).expand(len(self.rows), -1)
         else:
-            raw = self.logits.to(torch.float64)
+            # One float64 buffer for the whole run (rows only leave, so a prefix
+            # always fits): a fresh 6 MB table per step cost its page faults.
+            # Nothing keeps ``raw`` past this step (the draw returns plain lists).
+            if self.raw_buffer is None:
+                self.raw_buffer = torch.empty(self.logits.shape, dtype=torch.float64)
+            raw = self.raw_buffer[: len(self.rows)]
+            raw.copy_(self.logits)
         history = self.history
         shaped = [
             (
