@@ -74,11 +74,16 @@ def apply_precision(loaded, precision: str, choice_file: Path | None = None):
     return dataclasses.replace(loaded, precision=precision)
 
 
+#: Bumped when the measurement changes, so choices stored by an older one are measured again
+#: (2: alternating rounds, each precision's best).
+MEASUREMENT = 2
+
+
 def machine_key() -> str:
-    """What a stored choice depends on besides the model: CPU, torch version, threads."""
+    """What a stored choice depends on besides the model: CPU, torch version, threads, how it was measured."""
     import torch
 
-    return f"{cpu_name()} | torch {torch.__version__} | {torch.get_num_threads()} threads"
+    return f"{cpu_name()} | torch {torch.__version__} | {torch.get_num_threads()} threads | measurement {MEASUREMENT}"
 
 
 def choose(loaded, choice_file: Path | None) -> str:
