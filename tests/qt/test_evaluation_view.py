@@ -195,6 +195,19 @@ def test_main_window_menu_opens_the_evaluation_window(qtbot, window):
     opened.close()
 
 
+def test_closing_after_qt_deleted_the_evaluation_window_is_quiet(qtbot, window):
+    # At exit Qt deletes top-level windows in its own order; the main window's "destroyed" then
+    # asks the opener to close a window whose C++ object is gone (shiboken6.isValid tells).
+    import shiboken6
+
+    window.evaluation.open()
+    opened = window.evaluation_window()
+    opened.view.shutdown()
+    shiboken6.delete(opened)
+    window.evaluation.close()  # raised "Internal C++ object already deleted" before
+    assert window.evaluation_window() is None
+
+
 def test_progress_shows_time_left_while_running(qtbot, view):
     view.sets_panel.check("newsletter")
     view.tick_presets(["Greedy baseline"])

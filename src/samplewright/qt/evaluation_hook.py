@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from typing import Any
 
+import shiboken6
 from PySide6.QtWidgets import QApplication, QMainWindow
 
 from .evaluation_view import EvaluationWindow
@@ -42,7 +43,7 @@ class EvaluationOpener:
         self._shown.activateWindow()
 
     def close(self) -> None:
-        """Close the evaluation window, if one is open."""
-        if self._shown is not None:
-            self._shown.close()
-            self._shown = None
+        """Close the evaluation window, if one is open (at exit Qt may have deleted it already)."""
+        shown, self._shown = self._shown, None
+        if shown is not None and shiboken6.isValid(shown):
+            shown.close()
