@@ -113,6 +113,10 @@ def _narrowed(name: str, logits: torch.Tensor, params: RowParams):
         return None, None
     if name == "top_k":
         return _top_k_narrow(logits, params), None
+    if name == "top_p":
+        table = kernels.top_p_table(logits, params.values[name])
+        if table is not None:
+            return _from_table(logits, table)
     kept = _KEPT[name](logits, params.values[name])
     narrow = _gather(logits, kept)
     if narrow is not None and bool(torch.isfinite(narrow[0].amax(dim=-1)).all()):
@@ -145,6 +149,20 @@ def _top_k_narrow(logits: torch.Tensor, params: RowParams) -> tuple[torch.Tensor
     room = first - above.sum(-1, keepdim=True)
     keep = above | (tied & (torch.cumsum(tied, dim=-1) <= room))
     return narrow.masked_fill(~keep, NEG_INF), ids
+
+
+def _from_table(logits: torch.Tensor, table: torch.Tensor):
+    """:func:`_narrowed`'s answer for a stage whose kept ids came as a table
+    (ascending ids per row, padded at the end with id ``vocab``)."""
+    vocab = logits.shape[-1]
+    padding = table == vocab
+    if table.shape[-1] <= min(COMPACT_LIMIT, vocab // 2):
+        ids = table.masked_fill(padding, 0)
+        narrow = logits.gather(-1, ids).masked_fill_(padding, NEG_INF)
+        if bool(torch.isfinite(narrow.amax(dim=-1)).all()):
+            return (narrow, ids), None
+    kept = torch.zeros(logits.shape[0], vocab + 1, dtype=torch.bool).scatter_(-1, table, True)[:, :vocab]
+    return None, logits.masked_fill(~kept, NEG_INF)
 
 
 def _compact(logits: torch.Tensor) -> tuple[torch.Tensor, torch.Tensor] | None:

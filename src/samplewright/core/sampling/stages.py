@@ -48,12 +48,6 @@ def _col(values: torch.Tensor) -> torch.Tensor:
     return values.to(torch.float64).unsqueeze(-1)
 
 
-def _mask_from_sorted(keep_sorted: torch.Tensor, order: torch.Tensor, vocab: int) -> torch.Tensor:
-    """Scatter a keep-flag per ranked position back to token ids."""
-    keep = torch.zeros(*keep_sorted.shape[:-1], vocab, dtype=torch.bool)
-    return keep.scatter(-1, order, keep_sorted)
-
-
 def temperature(logits: torch.Tensor, t: torch.Tensor) -> torch.Tensor:
     """Divide the logits by ``t`` (per row). ``t = 0`` is greedy: only the
     first arg-max survives (ties to the lowest id, as ``torch.argmax``).
@@ -107,20 +101,20 @@ def _prefix_keep(probs_sorted: torch.Tensor, mass: torch.Tensor) -> torch.Tensor
     return keep
 
 
-def _prefix_among_top(probs, key, mass, m: int) -> tuple[torch.Tensor, torch.Tensor]:
+def _prefix_among_top(probs, key, mass, m: int) -> tuple[torch.Tensor, torch.Tensor, torch.Tensor]:
     """The prefix of :func:`_prefix_until_mass` ranked among the top ``m`` keys
-    only, and per row whether it is settled there (its last kept key is
-    strictly above every key left out, so a full sort would keep the same)."""
+    only: the ranked ids, how many of them are kept, and per row whether it is
+    settled there (its last kept key is strictly above every key left out, so
+    a full sort would keep the same)."""
     values, ids = torch.topk(key, m, dim=-1, sorted=False)
     # Candidates in id order first, so the stable sort by value puts ties lower id first.
     by_id = torch.sort(ids, dim=-1).indices
     values, ids = values.gather(-1, by_id), ids.gather(-1, by_id)
     by_value = torch.sort(values, dim=-1, descending=True, stable=True).indices
     values, ids = values.gather(-1, by_value), ids.gather(-1, by_value)
-    keep_sorted = _prefix_keep(probs.gather(-1, ids), mass)
-    last = keep_sorted.sum(-1, keepdim=True) - 1
-    settled = (values.gather(-1, last) > values[..., -1:]).squeeze(-1)
-    return _mask_from_sorted(keep_sorted, ids, key.shape[-1]), settled
+    count = _prefix_keep(probs.gather(-1, ids), mass).sum(-1)
+    settled = (values.gather(-1, (count - 1).unsqueeze(-1)) > values[..., -1:]).squeeze(-1)
+    return ids, count, settled
 
 
 def _level_candidates(probs, coarse, mass) -> torch.Tensor:
@@ -134,10 +128,11 @@ def _level_candidates(probs, coarse, mass) -> torch.Tensor:
     return levels <= last_level
 
 
-def _prefix_among(probs, key, mass, candidates) -> tuple[torch.Tensor, torch.Tensor] | None:
-    """The prefix ranked among the ``candidates`` (bool, rows × vocab) only, and
-    per row whether it is settled there (its last kept key strictly above every
-    key outside them); None when a row has more than ``LEVEL_CANDIDATES``."""
+def _prefix_among(probs, key, mass, candidates) -> tuple[torch.Tensor, torch.Tensor, torch.Tensor] | None:
+    """The prefix ranked among the ``candidates`` (bool, rows × vocab) only: the
+    ranked ids (padded with id ``vocab``), how many are kept, and per row
+    whether it is settled there (its last kept key strictly above every key
+    outside them); None when a row has more than ``LEVEL_CANDIDATES``."""
     rows_n, vocab = probs.shape
     counts = candidates.sum(-1)
     width = int(counts.max())
@@ -152,23 +147,92 @@ def _prefix_among(probs, key, mass, candidates) -> tuple[torch.Tensor, torch.Ten
     ids[rows, slots], values[rows, slots], chosen[rows, slots] = cols, key[rows, cols], probs[rows, cols]
     by_value = torch.sort(values, dim=-1, descending=True, stable=True).indices
     values, ids = values.gather(-1, by_value), ids.gather(-1, by_value)
-    keep_sorted = _prefix_keep(chosen.gather(-1, by_value), mass)
-    last = keep_sorted.sum(-1, keepdim=True) - 1
+    count = _prefix_keep(chosen.gather(-1, by_value), mass).sum(-1)
     outside = torch.where(candidates, NEG_INF, key).amax(dim=-1, keepdim=True)
-    settled = (values.gather(-1, last) > outside).squeeze(-1)
-    keep = torch.zeros(rows_n, vocab + 1, dtype=torch.bool).scatter_(-1, ids, keep_sorted)
-    return keep[:, :vocab], settled
+    settled = (values.gather(-1, (count - 1).unsqueeze(-1)) > outside).squeeze(-1)
+    return ids, count, settled
 
 
-def _settle(keep, tried, probs, key, mass, m: int, open_rows) -> torch.Tensor:
-    """Rank the rows ``tried`` among their top ``m`` keys, write the settled
-    ones' prefixes into ``keep``; returns the rows of ``open_rows`` still open."""
+class _Ranked:
+    """Rows' ranked ids and how many of each are kept, collected over the tries."""
+
+    def __init__(self, rows_n: int) -> None:
+        self.parts: list[tuple[torch.Tensor | None, torch.Tensor, torch.Tensor]] = []
+        self.rows_n = rows_n
+
+    def add(self, rows: torch.Tensor | None, ids: torch.Tensor, count: torch.Tensor) -> None:
+        """Record ``ids`` (ranked, rows of ``rows``; None: every row) of which the first ``count`` are kept."""
+        if ids.shape[0]:
+            self.parts.append((rows, ids, count))
+
+    def table(self, vocab: int) -> torch.Tensor:
+        """The kept ids of every row in ascending order, padded at the end with id ``vocab``."""
+        width = max(int(count.max()) for _, _, count in self.parts)
+        table = torch.full((self.rows_n, width), vocab, dtype=torch.long)
+        for rows, ids, count in self.parts:
+            part = ids[:, :width]
+            kept = torch.arange(part.shape[-1]).unsqueeze(0) < count.unsqueeze(-1)
+            part = torch.where(kept, part, vocab)
+            if rows is None:
+                table[:, : part.shape[-1]] = part
+            else:
+                table[rows, : part.shape[-1]] = part
+        return torch.sort(table, dim=-1).values
+
+
+def _settle(ranked: _Ranked, tried, probs, key, mass, m: int, open_rows) -> torch.Tensor:
+    """Rank the rows ``tried`` among their top ``m`` keys, record the settled
+    ones' prefixes in ``ranked``; returns the rows of ``open_rows`` still open."""
     if not tried.numel():
         return open_rows
-    part, settled = _prefix_among_top(probs[tried], key[tried], mass[tried], m)
+    ids, count, settled = _prefix_among_top(probs[tried], key[tried], mass[tried], m)
     done = tried[settled]
-    keep[done] = part[settled]
+    ranked.add(done, ids[settled], count[settled])
     return open_rows[~torch.isin(open_rows, done)]
+
+
+def _prefix_table(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tensor, coarse=None) -> torch.Tensor:
+    """The tokens :func:`_prefix_until_mass` keeps, as a table of ids (rows ×
+    the widest row's count) in ascending order, padded at the end with id ``vocab``."""
+    vocab = probs.shape[-1]
+    ranked = _Ranked(probs.shape[0])
+    open_rows = torch.arange(probs.shape[0])
+    # m tokens hold at most m times the largest probability: a row that needs more skips that width.
+    needs = (mass - MASS_TOLERANCE) / probs.amax(dim=-1)
+    if RANKING_WIDTHS[0] < vocab:
+        if bool((needs <= RANKING_WIDTHS[0]).all()):
+            ids, count, settled = _prefix_among_top(probs, key, mass, RANKING_WIDTHS[0])
+            if bool(settled.all()):
+                ranked.add(None, ids, count)
+                return ranked.table(vocab)
+            ranked.add(open_rows[settled], ids[settled], count[settled])
+            open_rows = (~settled).nonzero().flatten()
+        else:
+            open_rows = _settle(
+                ranked, open_rows[needs <= RANKING_WIDTHS[0]], probs, key, mass, RANKING_WIDTHS[0], open_rows
+            )
+    if coarse is not None and open_rows.numel():
+        sub = probs[open_rows], key[open_rows], mass[open_rows]
+        part = _prefix_among(*sub, _level_candidates(sub[0], coarse[open_rows], sub[2]))
+        if part is not None:
+            ids, count, settled = part
+            ranked.add(open_rows[settled], ids[settled], count[settled])
+            open_rows = open_rows[~settled]
+    for m in RANKING_WIDTHS[1:]:
+        if m >= vocab or not open_rows.numel():
+            break
+        open_rows = _settle(ranked, open_rows[needs[open_rows] <= m], probs, key, mass, m, open_rows)
+    if open_rows.numel():
+        order = torch.sort(key[open_rows], dim=-1, descending=True, stable=True).indices
+        count = _prefix_keep(probs[open_rows].gather(-1, order), mass[open_rows]).sum(-1)
+        ranked.add(open_rows, order, count)
+    return ranked.table(vocab)
+
+
+def _mask_from_table(table: torch.Tensor, vocab: int) -> torch.Tensor:
+    """A table of ids padded with id ``vocab`` as a bool mask (rows × vocab)."""
+    keep = torch.zeros(table.shape[0], vocab + 1, dtype=torch.bool)
+    return keep.scatter_(-1, table, True)[:, :vocab]
 
 
 def _prefix_until_mass(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tensor, coarse=None) -> torch.Tensor:
@@ -183,34 +247,7 @@ def _prefix_until_mass(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tenso
     row settled in none of them is ranked in full. Each try checks that the
     prefix is settled among its candidates, so the result equals a full stable sort.
     """
-    vocab = probs.shape[-1]
-    keep = torch.zeros(probs.shape, dtype=torch.bool)
-    open_rows = torch.arange(probs.shape[0])
-    # m tokens hold at most m times the largest probability: a row that needs more skips that width.
-    needs = (mass - MASS_TOLERANCE) / probs.amax(dim=-1)
-    if RANKING_WIDTHS[0] < vocab:
-        if bool((needs <= RANKING_WIDTHS[0]).all()):
-            keep, settled = _prefix_among_top(probs, key, mass, RANKING_WIDTHS[0])
-            open_rows = (~settled).nonzero().flatten()
-        else:
-            open_rows = _settle(
-                keep, open_rows[needs <= RANKING_WIDTHS[0]], probs, key, mass, RANKING_WIDTHS[0], open_rows
-            )
-    if coarse is not None and open_rows.numel():
-        sub = probs[open_rows], key[open_rows], mass[open_rows]
-        part = _prefix_among(*sub, _level_candidates(sub[0], coarse[open_rows], sub[2]))
-        if part is not None:
-            keep[open_rows] = part[0]
-            open_rows = open_rows[~part[1]]
-    for m in RANKING_WIDTHS[1:]:
-        if m >= vocab or not open_rows.numel():
-            break
-        open_rows = _settle(keep, open_rows[needs[open_rows] <= m], probs, key, mass, m, open_rows)
-    if open_rows.numel():
-        order = torch.sort(key[open_rows], dim=-1, descending=True, stable=True).indices
-        full = _prefix_keep(probs[open_rows].gather(-1, order), mass[open_rows])
-        keep[open_rows] = _mask_from_sorted(full, order, vocab)
-    return keep
+    return _mask_from_table(_prefix_table(probs, key, mass, coarse), probs.shape[-1])
 
 
 def top_p(logits: torch.Tensor, p: torch.Tensor) -> torch.Tensor:
@@ -228,6 +265,15 @@ def top_p_kept(logits: torch.Tensor, p: torch.Tensor) -> torch.Tensor:
     if bool((p >= 1).any()):
         keep |= (p >= 1).unsqueeze(-1)
     return keep
+
+
+def top_p_table(logits: torch.Tensor, p: torch.Tensor) -> torch.Tensor | None:
+    """The tokens :func:`top_p` keeps as a table of ids per row, ascending,
+    padded at the end with id ``vocab``; None when a row has ``p >= 1`` (keeps all)."""
+    if bool((p >= 1).any()):
+        return None
+    probs = torch.softmax(logits, dim=-1)
+    return _prefix_table(probs, probs, p, coarse=logits)
 
 
 def min_p(logits: torch.Tensor, fraction: torch.Tensor) -> torch.Tensor:
