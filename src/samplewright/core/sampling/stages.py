@@ -185,10 +185,19 @@ def _settle(ranked: _Ranked, tried, probs, key, mass, m: int, open_rows) -> torc
     ones' prefixes in ``ranked``; returns the rows of ``open_rows`` still open."""
     if not tried.numel():
         return open_rows
-    ids, count, settled = _prefix_among_top(probs[tried], key[tried], mass[tried], m)
+    ids, count, settled = _prefix_among_top(*_rows_of(tried, probs, key, mass), m)
     done = tried[settled]
     ranked.add(done, ids[settled], count[settled])
     return open_rows[~torch.isin(open_rows, done)]
+
+
+def _rows_of(rows: torch.Tensor, *tensors: torch.Tensor) -> list[torch.Tensor]:
+    """The ``rows`` of each tensor; no copy when ``rows`` is every row, one
+    copy for a tensor passed twice (top-p ranks its probabilities by themselves)."""
+    if rows.numel() == tensors[0].shape[0]:
+        return list(tensors)
+    picked: dict[int, torch.Tensor] = {}
+    return [picked.setdefault(id(t), t[rows]) for t in tensors]
 
 
 def _prefix_table(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tensor, coarse=None) -> torch.Tensor:
@@ -212,8 +221,8 @@ def _prefix_table(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tensor, co
                 ranked, open_rows[needs <= RANKING_WIDTHS[0]], probs, key, mass, RANKING_WIDTHS[0], open_rows
             )
     if coarse is not None and open_rows.numel():
-        sub = probs[open_rows], key[open_rows], mass[open_rows]
-        part = _prefix_among(*sub, _level_candidates(sub[0], coarse[open_rows], sub[2]))
+        sub = _rows_of(open_rows, probs, key, mass, coarse)
+        part = _prefix_among(*sub[:3], _level_candidates(sub[0], sub[3], sub[2]))
         if part is not None:
             ids, count, settled = part
             ranked.add(open_rows[settled], ids[settled], count[settled])
