@@ -185,7 +185,8 @@ def _settle(ranked: _Ranked, tried, probs, key, mass, m: int, open_rows) -> torc
     ones' prefixes in ``ranked``; returns the rows of ``open_rows`` still open."""
     if not tried.numel():
         return open_rows
-    ids, count, settled = _prefix_among_top(*_rows_of(tried, probs, key, mass), m)
+    sub_probs, sub_key, sub_mass = _rows_of(tried, probs, key, mass)
+    ids, count, settled = _prefix_among_top(sub_probs, sub_key, sub_mass, m)
     done = tried[settled]
     ranked.add(done, ids[settled], count[settled])
     return open_rows[~torch.isin(open_rows, done)]
@@ -221,8 +222,8 @@ def _prefix_table(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tensor, co
                 ranked, open_rows[needs <= RANKING_WIDTHS[0]], probs, key, mass, RANKING_WIDTHS[0], open_rows
             )
     if coarse is not None and open_rows.numel():
-        sub = _rows_of(open_rows, probs, key, mass, coarse)
-        part = _prefix_among(*sub[:3], _level_candidates(sub[0], sub[3], sub[2]))
+        sub_probs, sub_key, sub_mass, sub_coarse = _rows_of(open_rows, probs, key, mass, coarse)
+        part = _prefix_among(sub_probs, sub_key, sub_mass, _level_candidates(sub_probs, sub_coarse, sub_mass))
         if part is not None:
             ids, count, settled = part
             ranked.add(open_rows[settled], ids[settled], count[settled])
