@@ -161,8 +161,7 @@ def _from_table(logits: torch.Tensor, table: torch.Tensor):
         narrow = logits.gather(-1, ids).masked_fill_(padding, NEG_INF)
         if bool(torch.isfinite(narrow.amax(dim=-1)).all()):
             return (narrow, ids), None
-    kept = torch.zeros(logits.shape[0], vocab + 1, dtype=torch.bool).scatter_(-1, table, True)[:, :vocab]
-    return None, logits.masked_fill(~kept, NEG_INF)
+    return None, logits.masked_fill(~kernels.kept_from_table(table, vocab), NEG_INF)
 
 
 def _compact(logits: torch.Tensor) -> tuple[torch.Tensor, torch.Tensor] | None:

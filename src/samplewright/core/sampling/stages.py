@@ -120,7 +120,9 @@ def _prefix_among_top(probs, key, mass, m: int) -> tuple[torch.Tensor, torch.Ten
 def _level_candidates(probs, coarse, mass) -> torch.Tensor:
     """Per row, the tokens of the coarse levels (of ``coarse``, a log-domain
     stand-in for the key) whose probability, best level first, reaches ``mass``."""
-    distance = torch.sub(coarse.amax(dim=-1, keepdim=True) * LEVEL_STEPS, coarse, alpha=LEVEL_STEPS)
+    # The difference first: scaling the best logit alone can overflow near the float64 limit
+    # (inf - inf = NaN, and NaN has no integer level).
+    distance = torch.sub(coarse.amax(dim=-1, keepdim=True), coarse).mul_(LEVEL_STEPS)
     distance = distance.clamp_(max=LEVELS - 1)
     levels = distance.to(torch.long)
     held = torch.zeros(probs.shape[0], LEVELS, dtype=probs.dtype).scatter_add_(-1, levels, probs)
@@ -239,7 +241,7 @@ def _prefix_table(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tensor, co
     return ranked.table(vocab)
 
 
-def _mask_from_table(table: torch.Tensor, vocab: int) -> torch.Tensor:
+def kept_from_table(table: torch.Tensor, vocab: int) -> torch.Tensor:
     """A table of ids padded with id ``vocab`` as a bool mask (rows × vocab)."""
     keep = torch.zeros(table.shape[0], vocab + 1, dtype=torch.bool)
     return keep.scatter_(-1, table, True)[:, :vocab]
@@ -257,7 +259,7 @@ def _prefix_until_mass(probs: torch.Tensor, key: torch.Tensor, mass: torch.Tenso
     row settled in none of them is ranked in full. Each try checks that the
     prefix is settled among its candidates, so the result equals a full stable sort.
     """
-    return _mask_from_table(_prefix_table(probs, key, mass, coarse), probs.shape[-1])
+    return kept_from_table(_prefix_table(probs, key, mass, coarse), probs.shape[-1])
 
 
 def top_p(logits: torch.Tensor, p: torch.Tensor) -> torch.Tensor:
