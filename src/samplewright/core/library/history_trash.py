@@ -91,12 +91,7 @@ def move_into_history(changes: FileChanges, library: Path, record: PresetRecord,
     folder = library / HISTORY_DIR / record.id
     changes.make_folder(library / HISTORY_DIR)
     changes.make_folder(folder)
-    target = folder / f"{record.revision}.json"
-    for n in itertools.count(2):
-        if not os.path.lexists(target):
-            break
-        target = folder / f"{record.revision}.{n}.json"
-    changes.move(source, target)
+    changes.move(source, _unused_entry(folder, str(record.revision)))
 
 
 def trash_files(library: Path) -> list[tuple[PresetRecord, Path]]:
@@ -140,14 +135,20 @@ def latest_known_revision(library: Path, record_id: str) -> int:
     return max([0, old_layout, *history, *trash_revisions(library, record_id)])
 
 
+def _unused_entry(folder: Path, stem: str) -> Path:
+    """``folder/stem.json``, or ``stem.2.json``, ``stem.3.json`` … when taken: an entry never overwrites another."""
+    target = folder / f"{stem}.json"
+    for n in itertools.count(2):
+        if not os.path.lexists(target):
+            return target
+        target = folder / f"{stem}.{n}.json"
+    raise AssertionError("unreachable")
+
+
 def move_to_trash(changes: FileChanges, library: Path, record_id: str, revision: int) -> Path:
     """Move the current file of ``record_id`` into the trash as its own entry; returns the entry."""
     trash = library / TRASH_DIR
     changes.make_folder(trash)
-    target = trash / f"{record_id}.{revision}.json"
-    for n in itertools.count(2):
-        if not os.path.lexists(target):
-            break
-        target = trash / f"{record_id}.{revision}.{n}.json"
+    target = _unused_entry(trash, f"{record_id}.{revision}")
     changes.move(library / record_file_name(record_id), target)
     return target
